@@ -1,0 +1,24 @@
+"""Exceptions and warnings shared by every layer.
+
+``InputError`` is the caller's mistake (bad data, bad option); the command line turns it into
+exit code 2 with its message and no traceback.  Warnings report conditions under which a
+result is still returned but must be read with care.
+"""
+
+from __future__ import annotations
+
+
+class InputError(ValueError):
+    """Bad input: the message names the problem, the offending value and the fix."""
+
+
+class WeakInstrumentWarning(UserWarning):
+    """The first stage is weak: Wald intervals and tests may be badly sized."""
+
+
+class InaccurateSolveWarning(UserWarning):
+    """An optimisation solver returned a solution it flags as inaccurate."""
+
+
+class SolverError(RuntimeError):
+    """An optimisation solver failed; the status is in the message."""

@@ -1,0 +1,287 @@
+"""Cross-product moments and per-row score sums: the only layer that touches rows.
+
+Everything downstream (2SLS, diagnostics, sensitivity bounds) is computed from two passes:
+
+* **Pass 1** — :func:`accumulate` returns :class:`Moments`: the weighted mean ``μ`` and the
+  centred co-moment matrix ``C = Σ wᵢ (dᵢ − μ)(dᵢ − μ)'`` of the data columns
+  ``d = [y, X, Z, W]``.  Chunks are combined exactly with the pairwise update of Chan, Golub &
+  LeVeque (1979), so a file read in pieces gives the same moments as the whole frame.
+* **Pass 2** — :func:`score_sums` evaluates, for linear maps fixed after pass 1, per-row score
+  vectors ``gᵢ = wᵢ · vec(aᵢ ⊗ eᵢ)`` (``aᵢ``: regressors or instruments, ``eᵢ``: residuals) and
+  returns ``Σ gᵢgᵢ'`` (heteroskedasticity-robust) or ``Σ_g s_g s_g'`` with cluster sums ``s_g``.
+
+All linear maps act on the *augmented centred row* ``d̃ᵢ = [1, dᵢ − μ]``; in those
+coordinates the weighted cross-product matrix is block diagonal, ``M = diag(Σw, C)``, which
+keeps columns with a large mean (a calendar year, incomes in cents) well conditioned.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from sensiv.errors import InputError
+
+
+@dataclass(frozen=True, slots=True)
+class Moments:
+    """Weighted first and centred second moments of the data columns.
+
+    Attributes
+    ----------
+    columns : tuple of str
+        Names of the ``p`` data columns (outcome, treatments, instruments, controls).
+    n : int
+        Rows used.
+    n_dropped : int
+        Rows dropped listwise for a missing value.
+    weight_sum : float
+        ``Σ wᵢ`` (equals ``n`` without weights).
+    mean : ndarray, shape (p,)
+        Weighted means ``μ``.
+    comoment : ndarray, shape (p, p)
+        ``Σ wᵢ (dᵢ − μ)(dᵢ − μ)'``.
+    """
+
+    columns: tuple[str, ...]
+    n: int
+    n_dropped: int
+    weight_sum: float
+    mean: np.ndarray
+    comoment: np.ndarray
+
+    def __add__(self, other: Moments) -> Moments:
+        """Combine the moments of two disjoint sets of rows (Chan, Golub & LeVeque 1979)."""
+        if self.columns != other.columns:
+            raise ValueError("cannot add moments of different columns")
+        if other.n == 0:
+            return Moments(self.columns, self.n, self.n_dropped + other.n_dropped,
+                           self.weight_sum, self.mean, self.comoment)
+        if self.n == 0:
+            return Moments(other.columns, other.n, self.n_dropped + other.n_dropped,
+                           other.weight_sum, other.mean, other.comoment)
+        total = self.weight_sum + other.weight_sum
+        delta = other.mean - self.mean
+        mean = self.mean + delta * (other.weight_sum / total)
+        comoment = (self.comoment + other.comoment
+                    + np.outer(delta, delta) * (self.weight_sum * other.weight_sum / total))
+        return Moments(self.columns, self.n + other.n, self.n_dropped + other.n_dropped,
+                       total, mean, comoment)
+
+    @property
+    def augmented(self) -> np.ndarray:
+        """``M = Σ wᵢ d̃ᵢ d̃ᵢ'`` for ``d̃ᵢ = [1, dᵢ − μ]``: ``diag(Σw, C)``, shape (1+p, 1+p)."""
+        p = len(self.columns)
+        out = np.zeros((p + 1, p + 1))
+        out[0, 0] = self.weight_sum
+        out[1:, 1:] = self.comoment
+        return out
+
+    def variance(self, column: str) -> float:
+        """Weighted variance (divisor ``Σw``) of one column."""
+        j = self.columns.index(column)
+        return float(self.comoment[j, j] / self.weight_sum)
+
+    def relative_difference(self, other: Moments) -> float:
+        """Largest relative difference of means and co-moments (for consistency checks)."""
+        scale_m = np.maximum(np.abs(self.mean), np.sqrt(np.diag(self.comoment) / self.weight_sum))
+        scale_m = np.where(scale_m > 0, scale_m, 1.0)
+        d_mean = np.max(np.abs(self.mean - other.mean) / scale_m)
+        sd = np.sqrt(np.diag(self.comoment))
+        sd = np.where(sd > 0, sd, 1.0)
+        d_com = np.max(np.abs(self.comoment - other.comoment) / np.outer(sd, sd))
+        d_w = abs(self.weight_sum - other.weight_sum) / self.weight_sum
+        return float(max(d_mean, d_com, d_w))
+
+
+def empty_moments(columns: Sequence[str]) -> Moments:
+    """Moments of zero rows (the identity of ``+``)."""
+    p = len(columns)
+    return Moments(tuple(columns), 0, 0, 0.0, np.zeros(p), np.zeros((p, p)))
+
+
+def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarray | None,
+                  n_dropped: int = 0) -> Moments:
+    """Moments of one block of rows, by the two-pass (mean, then centred product) formula.
+
+    Parameters
+    ----------
+    columns : sequence of str
+        Column names, ``p`` of them.
+    values : ndarray, shape (n, p)
+        Finite data.
+    weights : ndarray, shape (n,), or None
+        Positive analytic weights.
+    n_dropped : int
+        Rows of this block dropped before ``values`` was formed (carried along for reporting).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> m = chunk_moments(["a"], np.array([[1.0], [3.0]]), None)
+    >>> float(m.mean[0]), float(m.comoment[0, 0])
+    (2.0, 2.0)
+    """
+    n = values.shape[0]
+    if n == 0:
+        out = empty_moments(columns)
+        return Moments(out.columns, 0, n_dropped, 0.0, out.mean, out.comoment)
+    if weights is None:
+        total = float(n)
+        mean = values.mean(axis=0)
+        centred = values - mean
+        comoment = centred.T @ centred
+    else:
+        total = float(weights.sum())
+        mean = (weights @ values) / total
+        centred = values - mean
+        comoment = (centred * weights[:, None]).T @ centred
+    comoment = 0.5 * (comoment + comoment.T)
+    return Moments(tuple(columns), n, n_dropped, total, mean, comoment)
+
+
+def accumulate(chunks: Iterable, columns: Sequence[str]) -> Moments:
+    """Pass 1: moments of every chunk (objects with ``values``, ``weights``, ``n_dropped``), summed."""
+    total = empty_moments(columns)
+    for chunk in chunks:
+        total = total + chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped)
+    return total
+
+
+@dataclass(frozen=True, slots=True)
+class ScoreBlock:
+    """A request for one sum of score outer products in pass 2.
+
+    Per row, ``aᵢ = d̃ᵢ @ left`` and ``eᵢ = d̃ᵢ @ right``; the score is
+    ``gᵢ = wᵢ · vec(aᵢ ⊗ eᵢ)`` with ``aᵢ`` varying slowest.
+
+    Attributes
+    ----------
+    name : str
+    left : ndarray, shape (1+p, k_a)
+    right : ndarray, shape (1+p, k_e)
+    """
+
+    name: str
+    left: np.ndarray
+    right: np.ndarray
+
+    @property
+    def size(self) -> int:
+        return self.left.shape[1] * self.right.shape[1]
+
+
+@dataclass(frozen=True, slots=True)
+class ScoreSums:
+    """Result of pass 2: one ``(size, size)`` matrix per requested block.
+
+    ``n_clusters`` is the number of distinct cluster labels (``None`` for robust sums).
+    """
+
+    meats: dict[str, np.ndarray]
+    n_clusters: int | None
+
+
+def _block_scores(block: ScoreBlock, augmented_rows: np.ndarray,
+                  weights: np.ndarray | None) -> np.ndarray:
+    a = augmented_rows @ block.left
+    e = augmented_rows @ block.right
+    g = (a[:, :, None] * e[:, None, :]).reshape(a.shape[0], block.size)
+    if weights is not None:
+        g *= weights[:, None]
+    return g
+
+
+class _ClusterIndex:
+    """Maps cluster labels met in successive chunks to consecutive integer codes."""
+
+    def __init__(self) -> None:
+        self._codes: dict = {}
+
+    def encode(self, labels: np.ndarray) -> tuple[np.ndarray, int]:
+        import pandas as pd
+
+        local, uniques = pd.factorize(labels, sort=False)
+        mapping = np.empty(len(uniques), dtype=np.int64)
+        for j, label in enumerate(uniques.tolist()):
+            code = self._codes.get(label)
+            if code is None:
+                code = len(self._codes)
+                self._codes[label] = code
+            mapping[j] = code
+        return mapping[local], len(self._codes)
+
+    def __len__(self) -> int:
+        return len(self._codes)
+
+
+def _augment(values: np.ndarray, mean: np.ndarray) -> np.ndarray:
+    out = np.empty((values.shape[0], values.shape[1] + 1))
+    out[:, 0] = 1.0
+    np.subtract(values, mean, out=out[:, 1:])
+    return out
+
+
+def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
+               cluster: bool) -> ScoreSums:
+    """Pass 2: robust or cluster sums of score outer products for every block.
+
+    Parameters
+    ----------
+    chunks : iterable of chunks
+        The same rows as in pass 1 (objects with ``values``, ``weights``, ``clusters``).
+    mean : ndarray, shape (p,)
+        ``Moments.mean`` from pass 1, defining the augmented centred rows.
+    blocks : sequence of ScoreBlock
+    cluster : bool
+        Sum scores within clusters first (one-way clustering) when true.
+
+    Returns
+    -------
+    ScoreSums
+        ``Σ gᵢgᵢ'`` or ``Σ_g s_g s_g'`` per block.
+    """
+    meats = {b.name: np.zeros((b.size, b.size)) for b in blocks}
+    if not cluster:
+        for chunk in chunks:
+            rows = _augment(chunk.values, mean)
+            for b in blocks:
+                g = _block_scores(b, rows, chunk.weights)
+                meats[b.name] += g.T @ g
+        return ScoreSums({k: 0.5 * (v + v.T) for k, v in meats.items()}, None)
+
+    index = _ClusterIndex()
+    sums = {b.name: np.zeros((0, b.size)) for b in blocks}
+    for chunk in chunks:
+        if chunk.clusters is None:
+            raise ValueError("cluster sums requested but the chunks carry no cluster labels")
+        codes, n_groups = index.encode(chunk.clusters)
+        rows = _augment(chunk.values, mean)
+        for b in blocks:
+            g = _block_scores(b, rows, chunk.weights)
+            acc = sums[b.name]
+            if acc.shape[0] < n_groups:
+                acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], b.size))])
+            for j in range(b.size):
+                acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
+            sums[b.name] = acc
+    for b in blocks:
+        s = sums[b.name]
+        meats[b.name] = s.T @ s
+    return ScoreSums(meats, len(index))
+
+
+def iterate_chunks(source) -> Iterator:
+    """The chunks of a data-layer source (kept as a function so tests can wrap it)."""
+    return iter(source.chunks())
+
+
+def check_rows(moments: Moments, n_parameters: int) -> None:
+    """Raise :class:`InputError` unless there are more rows than parameters."""
+    if moments.n <= n_parameters:
+        raise InputError(
+            f"only {moments.n} usable rows (after dropping {moments.n_dropped} with missing "
+            f"values) for {n_parameters} parameters; 2SLS needs more rows than parameters: "
+            "supply more data or use fewer controls")

@@ -1,0 +1,74 @@
+"""Small shared result types and JSON helpers.
+
+Every result object in sensiv is a frozen dataclass with ``to_dict()`` returning plain
+JSON-ready values.  An infinite interval end is kept as ``inf`` in Python and written as JSON
+``null``; it is never replaced by a large number.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+
+def json_number(value: float | None) -> float | None:
+    """Return ``value`` as a JSON-safe float: ``None`` for ±inf, NaN or ``None``."""
+    if value is None:
+        return None
+    value = float(value)
+    if math.isinf(value) or math.isnan(value):
+        return None
+    return value
+
+
+@dataclass(frozen=True, slots=True)
+class Interval:
+    """A closed interval ``[low, high]``; either end may be infinite.
+
+    Used for confidence intervals, identified sets and the pieces of a confidence set that is a
+    union of intervals.
+
+    Examples
+    --------
+    >>> Interval(-1.0, float("inf")).to_list()
+    [-1.0, None]
+    """
+
+    low: float
+    high: float
+
+    def __post_init__(self) -> None:
+        if self.low > self.high:
+            raise ValueError(f"interval low {self.low} exceeds high {self.high}")
+
+    @property
+    def bounded(self) -> bool:
+        return math.isfinite(self.low) and math.isfinite(self.high)
+
+    @property
+    def width(self) -> float:
+        return self.high - self.low
+
+    def contains(self, value: float) -> bool:
+        return self.low <= value <= self.high
+
+    def to_list(self) -> list[float | None]:
+        """``[low, high]`` with JSON ``null`` for an infinite end."""
+        return [json_number(self.low), json_number(self.high)]
+
+    def __str__(self) -> str:
+        return f"[{format_number(self.low)}, {format_number(self.high)}]"
+
+
+def format_number(value: float, digits: int = 4) -> str:
+    """Readable number: ``-inf``/``inf`` spelled out, otherwise ``digits`` significant digits."""
+    if math.isnan(value):
+        return "n/a"
+    if math.isinf(value):
+        return "-inf" if value < 0 else "+inf"
+    return f"{value:.{digits}g}"
+
+
+def intervals_to_lists(pieces: tuple[Interval, ...]) -> list[list[float | None]]:
+    """A union of intervals as a JSON list of ``[low, high]`` pairs."""
+    return [piece.to_list() for piece in pieces]

@@ -1,0 +1,66 @@
+"""Readable plain-text summaries of result objects (formatting only, no new statistics)."""
+
+from __future__ import annotations
+
+from sensiv.results import format_number
+
+
+def _table(header: list[str], rows: list[list[str]]) -> list[str]:
+    widths = [max(len(r[j]) for r in [header, *rows]) for j in range(len(header))]
+    line = "  ".join(h.ljust(w) if j == 0 else h.rjust(w) for j, (h, w) in
+                     enumerate(zip(header, widths)))
+    out = [line, "-" * len(line)]
+    for r in rows:
+        out.append("  ".join(c.ljust(w) if j == 0 else c.rjust(w) for j, (c, w) in
+                             enumerate(zip(r, widths))))
+    return out
+
+
+def fit_summary(fit) -> str:
+    """Text table of a :class:`sensiv.iv.IVFit`: 2SLS beside OLS, first stages, AR set, overid."""
+    pct = f"{100 * fit.confidence_level:g}%"
+    se_label = fit.se_type + (", small-sample" if fit.small else "")
+    lines = [
+        f"2SLS of {fit.outcome} on {', '.join(fit.treatments)} "
+        f"(instruments: {', '.join(fit.instruments)})",
+        f"n = {fit.n} (dropped {fit.n_dropped} with missing values)"
+        + (f", clusters = {fit.n_clusters}" if fit.n_clusters is not None else "")
+        + f", covariance: {se_label}" + (", weighted" if fit.weighted else ""),
+        "",
+    ]
+    rows = []
+    for name in fit.tsls.names:
+        ci = fit.conf_int(name)
+        rows.append([name, format_number(fit.tsls.value(name)),
+                     format_number(fit.tsls.std_error(name)),
+                     f"[{format_number(ci.low)}, {format_number(ci.high)}]",
+                     format_number(fit.ols.value(name)), format_number(fit.ols.std_error(name))])
+    lines += _table(["coefficient", "2SLS", "se", f"{pct} CI", "OLS", "OLS se"], rows)
+    lines.append("")
+    lines.append("First stage (controls partialled out)")
+    rows = []
+    for fs in fit.first_stages:
+        for inst in fit.instruments:
+            rows.append([f"{fs.treatment} <- {inst}", format_number(fs.coef[inst]),
+                         format_number(fs.se[inst]), "", "", ""])
+        eff = format_number(fs.effective_f, 4) if fs.effective_f is not None else "n/a"
+        rows.append([f"{fs.treatment}: F", format_number(fs.f, 4), "",
+                     f"p = {format_number(fs.f_p_value, 3)}",
+                     f"partial R2 = {format_number(fs.partial_r2, 3)}", f"eff. F = {eff}"])
+    lines += _table(["equation", "coef", "se", "", "", ""], rows)
+    if fit.ar_set is not None:
+        pieces = " U ".join(str(p) for p in fit.ar_set) if fit.ar_set else "empty"
+        lines += ["", f"Anderson-Rubin {pct} set for {fit.treatments[0]}: {pieces}"]
+    if fit.overid is not None:
+        o = fit.overid
+        lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} "
+                     f"on {o.df} df, p = {format_number(o.p_value, 3)}")
+    else:
+        lines.append("Overidentification: not testable (exactly identified)")
+    for note in fit.notes:
+        lines += ["", "Warning: " + note]
+    lines += ["", "Assumptions:"] + [f"  - {a}" for a in fit.assumptions()]
+    from sensiv.iv import CAUTION
+
+    lines += ["", CAUTION]
+    return "\n".join(lines)
