@@ -46,6 +46,9 @@ DEFAULT_CHUNK_ROWS = 250_000
 TYPE_SAMPLE_ROWS = 100_000
 """Leading rows read from a file to decide which controls are text before streaming."""
 
+PARQUET_BUFFER_BYTES = 1 << 20
+"""Read buffer for streaming Parquet column chunks."""
+
 MAX_LISTED_COLUMNS = 25
 """Available columns listed in an unknown-column message before the list is cut."""
 
@@ -258,7 +261,8 @@ def _check_columns(spec: Spec, available: Sequence[Any], description: str) -> No
     for role, name, close in problems:
         hint = f"; did you mean {' or '.join(map(repr, close))}?" if close else ""
         parts.append(f"{role} column {name!r} not found in {description}{hint}")
-    raise InputError("; ".join(parts) + f" available: {listed}")
+    message = "; ".join(parts)
+    raise InputError(message + (" " if message.endswith("?") else "; ") + f"available: {listed}")
 
 
 def _suggest(name: str, labels: list[str]) -> list[str]:
@@ -272,7 +276,8 @@ def _dtype_kind(dtype: Any) -> str:
     import pandas as pd
 
     api = pd.api.types
-    if api.is_bool_dtype(dtype) or (api.is_numeric_dtype(dtype) and not api.is_complex_dtype(dtype)):
+    if api.is_bool_dtype(dtype) or (
+            api.is_numeric_dtype(dtype) and not api.is_complex_dtype(dtype)):
         return "numeric"
     if isinstance(dtype, pd.CategoricalDtype) or api.is_string_dtype(dtype):
         return "text"
@@ -655,7 +660,9 @@ def _reader(path: Path, fmt: str, columns: list[str] | None, rows: int | None,
     def parquet() -> Iterator[pd.DataFrame]:
         import pyarrow.parquet as pq
 
-        with pq.ParquetFile(path) as handle:
+        # Without pre-buffering pyarrow reads column chunks as the batches need them; with it,
+        # memory grows with the file instead of the batch.
+        with pq.ParquetFile(path, pre_buffer=False, buffer_size=PARQUET_BUFFER_BYTES) as handle:
             if rows is None:
                 yield _parquet_frame(handle.read(columns=columns))
                 return

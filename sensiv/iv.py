@@ -27,6 +27,7 @@ from typing import Literal
 
 import numpy as np
 
+from sensiv import distributions as dist
 from sensiv import linalg
 from sensiv.errors import InputError, WeakInstrumentWarning
 from sensiv.moments import Moments, ScoreBlock, ScoreSums, accumulate, check_rows, score_sums
@@ -35,6 +36,9 @@ from sensiv.results import Interval, format_number, intervals_to_lists, json_num
 SEType = Literal["classic", "robust", "cluster"]
 SE_TYPES: tuple[str, ...] = ("classic", "robust", "cluster")
 CONSTANT = "const"
+# A column whose standard deviation is below this fraction of its root mean square is constant
+# up to rounding (a mean of 1e6 with unit spread is still well within double precision).
+CONSTANT_RELATIVE_SD = 1e-12
 # Rule-of-thumb first-stage F below which Wald inference is unreliable (Staiger & Stock 1997).
 WEAK_F = 10.0
 CAUTION = ("Caution: these estimates assume the exclusion restriction holds exactly. "
@@ -113,15 +117,24 @@ def build_design(moments: Moments, outcome: str, treatments: Sequence[str],
                   x, z, w, transform)
 
 
-def check_design(design: Design, weighted_gram: np.ndarray) -> None:
-    """Raise :class:`InputError` for a constant outcome or collinear regressors/instruments."""
-    y = design.y
-    # Outcome variation: the centred part of y.
-    y_c = y.copy()
-    y_c[0] = 0.0
-    if not float(y_c @ weighted_gram @ y_c) > 0:
-        raise InputError(f"outcome '{design.outcome}' is constant in the rows used; "
-                         "choose an outcome that varies")
+def _constant_columns(moments: Moments) -> set[str]:
+    """Columns whose spread is negligible next to their level (or exactly zero)."""
+    var = np.diag(moments.comoment) / moments.weight_sum
+    level = var + moments.mean**2
+    return {name for name, v, m in zip(moments.columns, var, level)
+            if not v > CONSTANT_RELATIVE_SD**2 * m}
+
+
+def check_design(design: Design, weighted_gram: np.ndarray, moments: Moments) -> None:
+    """Raise :class:`InputError` for constant or collinear outcome, regressors or instruments."""
+    constant = _constant_columns(moments)
+    roles = [(design.outcome, "outcome"), *((t, "treatment") for t in design.treatments),
+             *((i, "instrument") for i in design.instruments),
+             *((c, "control") for c in design.control_names if c != CONSTANT)]
+    for name, role in roles:
+        if name in constant:
+            raise InputError(f"{role} '{name}' is constant in the {moments.n} rows used; "
+                             f"choose a {role} that varies")
     n_w = len(design.control_names)
     for maps, names, role in (
         (design.instrument_set, (*design.control_names, *design.instruments), "instrument"),
@@ -134,13 +147,9 @@ def check_design(design: Design, weighted_gram: np.ndarray) -> None:
         j, share = found
         name = names[j]
         if j < n_w:
-            what = ("is constant" if share == 0.0 else "is collinear with the constant and the "
-                    "controls listed before it")
-            raise InputError(f"control '{name}' {what}; drop it (or pass --no-constant if it is "
+            raise InputError(f"control '{name}' is collinear with the constant and the controls "
+                             "listed before it; drop it (or pass --no-constant if it completes "
                              "a full set of indicators)")
-        if share == 0.0:
-            raise InputError(f"{role} '{name}' is constant in the rows used; choose another "
-                             f"{role}")
         raise InputError(
             f"{role} '{name}' is collinear with the controls (and the {role}s before it): only "
             f"a share {share:.1e} of its variation is left after partialling them out; drop it "
@@ -308,17 +317,19 @@ class IVFit:
     notes: tuple[str, ...] = field(default=())
 
     @property
+    def caution(self) -> str:
+        return CAUTION
+
+    @property
     def df_resid(self) -> int:
         return self.n - len(self.tsls.names)
 
     def critical_value(self) -> float:
         """Two-sided critical value for Wald intervals: normal, or t(n − k) with ``small``."""
-        from scipy import stats
-
         upper = 0.5 + 0.5 * self.confidence_level
         if self.small:
-            return float(stats.t.ppf(upper, self.df_resid))
-        return float(stats.norm.ppf(upper))
+            return dist.t_quantile(upper, self.df_resid)
+        return dist.normal_quantile(upper)
 
     def conf_int(self, name: str) -> Interval:
         b = self.tsls.value(name)
@@ -405,7 +416,7 @@ def prepare(moments: Moments, layout) -> Pieces:
     k_params = max(design.regressors.shape[1], design.instrument_set.shape[1])
     check_rows(moments, k_params)
     gram = moments.augmented * (moments.n / moments.weight_sum)
-    check_design(design, gram)
+    check_design(design, gram, moments)
     tsls = solve_linear(gram, design.y, design.regressors, design.instrument_set)
     ols = solve_linear(gram, design.y, design.regressors, design.regressors)
     w = design.w
@@ -498,8 +509,6 @@ def first_stage_covariance(pieces: Pieces, meat: np.ndarray | None, se: str, sma
 
 def _first_stages(pieces: Pieces, joint: np.ndarray, se: str, small: bool) -> tuple[
         tuple[FirstStage, ...], np.ndarray, np.ndarray]:
-    from scipy import stats
-
     d = pieces.design
     zt = pieces.z_partialled
     zz = zt.T @ pieces.gram @ zt
@@ -520,7 +529,7 @@ def _first_stages(pieces: Pieces, joint: np.ndarray, se: str, small: bool) -> tu
         pi = coef[:, j]
         v = joint[j, :, j, :]
         f = linalg.wald_statistic(pi, v) / k_z
-        p = float(stats.f.sf(f, k_z, df2) if small else stats.chi2.sf(f * k_z, k_z))
+        p = dist.f_sf(f, k_z, df2) if small else dist.chi2_sf(f * k_z, k_z)
         r2 = float(pi @ zz @ pi) / float(x_t[:, j] @ pieces.gram @ x_t[:, j])
         eff = None
         if len(d.treatments) == 1:
@@ -534,22 +543,18 @@ def _first_stages(pieces: Pieces, joint: np.ndarray, se: str, small: bool) -> tu
 def anderson_rubin_set(pieces: Pieces, joint: np.ndarray, coef: np.ndarray, level: float,
                        small: bool) -> tuple[Interval, ...]:
     """Anderson–Rubin confidence set for one treatment, by inverting the AR test exactly."""
-    from scipy import stats
-
     k_z = coef.shape[0]
     pi, rho = coef[:, 0], coef[:, 1]
     if small:
         df2 = pieces.n - pieces.design.instrument_set.shape[1]
-        critical = k_z * float(stats.f.ppf(level, k_z, df2))
+        critical = k_z * dist.f_quantile(level, k_z, df2)
     else:
-        critical = float(stats.chi2.ppf(level, k_z))
+        critical = dist.chi2_quantile(level, k_z)
     return linalg.quadratic_ratio_set(rho, pi, joint[1, :, 1, :], joint[1, :, 0, :],
                                       joint[0, :, 0, :], critical)
 
 
 def _overid_test(pieces: Pieces, sums: ScoreSums | None, se: str) -> OverId | None:
-    from scipy import stats
-
     d = pieces.design
     df = d.z.shape[1] - d.x.shape[1]
     if df == 0:
@@ -566,7 +571,7 @@ def _overid_test(pieces: Pieces, sums: ScoreSums | None, se: str) -> OverId | No
         stat = linalg.wald_statistic(score, sums.meats["overid"])
         name = ("Wooldridge score (heteroskedasticity-robust)" if se == "robust"
                 else "Wooldridge score (cluster-robust)")
-    return OverId(name, float(stat), df, float(stats.chi2.sf(stat, df)))
+    return OverId(name, float(stat), df, dist.chi2_sf(stat, df))
 
 
 def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,

@@ -38,16 +38,15 @@ def fit_summary(fit) -> str:
     lines += _table(["coefficient", "2SLS", "se", f"{pct} CI", "OLS", "OLS se"], rows)
     lines.append("")
     lines.append("First stage (controls partialled out)")
-    rows = []
+    rows = [[fs.treatment, inst, format_number(fs.coef[inst]), format_number(fs.se[inst])]
+            for fs in fit.first_stages for inst in fit.instruments]
+    lines += _table(["treatment", "instrument", "coef", "se"], rows)
     for fs in fit.first_stages:
-        for inst in fit.instruments:
-            rows.append([f"{fs.treatment} <- {inst}", format_number(fs.coef[inst]),
-                         format_number(fs.se[inst]), "", "", ""])
-        eff = format_number(fs.effective_f, 4) if fs.effective_f is not None else "n/a"
-        rows.append([f"{fs.treatment}: F", format_number(fs.f, 4), "",
-                     f"p = {format_number(fs.f_p_value, 3)}",
-                     f"partial R2 = {format_number(fs.partial_r2, 3)}", f"eff. F = {eff}"])
-    lines += _table(["equation", "coef", "se", "", "", ""], rows)
+        eff = (f", effective F = {format_number(fs.effective_f, 4)}"
+               if fs.effective_f is not None else "")
+        lines.append(f"  {fs.treatment}: F = {format_number(fs.f, 4)} "
+                     f"(p = {format_number(fs.f_p_value, 3)}), partial R2 = "
+                     f"{format_number(fs.partial_r2, 3)}{eff}")
     if fit.ar_set is not None:
         pieces = " U ".join(str(p) for p in fit.ar_set) if fit.ar_set else "empty"
         lines += ["", f"Anderson-Rubin {pct} set for {fit.treatments[0]}: {pieces}"]
@@ -60,7 +59,5 @@ def fit_summary(fit) -> str:
     for note in fit.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in fit.assumptions()]
-    from sensiv.iv import CAUTION
-
-    lines += ["", CAUTION]
+    lines += ["", fit.caution]
     return "\n".join(lines)

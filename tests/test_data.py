@@ -8,6 +8,9 @@ from __future__ import annotations
 
 import gzip
 import re
+import subprocess
+import sys
+import textwrap
 
 import numpy as np
 import pandas as pd
@@ -106,7 +109,8 @@ def test_spec_accepts_lists_and_strings():
     ({"treatments": ["x1", "x2"], "instruments": ["z"]},
      re.escape("2 treatments need at least 2 instruments; got 1: add an instrument or drop a "
                "treatment")),
-    ({"treatments": ["x"], "instruments": ["x"]}, "'x' is named both as treatment and as instrument"),
+    ({"treatments": ["x"], "instruments": ["x"]},
+     "'x' is named both as treatment and as instrument"),
     ({"treatments": ["x"], "instruments": ["z", "z"]}, "'z' is named twice as instrument"),
     ({"treatments": ["x"], "instruments": ["z"], "weight": "y"}, "'y' .*outcome and as weight"),
     ({"treatments": ["x"], "instruments": ["z"], "controls": ["w", "x"]},
@@ -336,7 +340,8 @@ def test_directory_given(tmp_path):
 def test_unsupported_suffix_lists_accepted(tmp_path):
     path = tmp_path / "data.xlsx"
     path.write_text("y\n1\n")
-    with pytest.raises(InputError, match=r"unsupported file type '\.xlsx'.*\.csv.*\.parquet.*\.dta"):
+    accepted = r"unsupported file type '\.xlsx'.*\.csv.*\.parquet.*\.dta"
+    with pytest.raises(InputError, match=accepted):
         from_file(path, SPEC)
 
 
@@ -394,7 +399,8 @@ def test_unknown_column_suggests_close_name(tmp_path):
 
 
 def test_unknown_columns_all_reported(frame):
-    with pytest.raises(InputError, match="outcome column 'why'.*instrument column 'zz'"):
+    with pytest.raises(InputError, match="outcome column 'why'.*instrument column 'zz' not found "
+                                         "in DataFrame; available: 'y', 'x1'"):
         from_frame(frame, Spec("why", "x1", "zz"))
 
 
@@ -515,3 +521,41 @@ def test_bad_containers():
         from_chunks([make_frame(), {"y": 1}], SPEC)
     with pytest.raises(InputError, match="expected a file path; got int"):
         load(3, SPEC)
+
+
+# --------------------------------------------------------------------------- resources
+def _run(code: str, *args: str) -> str:
+    result = subprocess.run([sys.executable, "-c", textwrap.dedent(code), *args],
+                            capture_output=True, text=True, check=True)
+    return result.stdout
+
+
+def test_import_is_light():
+    out = _run("""
+        import sys
+        import sensiv.data
+        print(sorted(m for m in ("pandas", "pyarrow", "scipy") if m in sys.modules))
+    """)
+    assert out.strip() == "[]"
+
+
+def test_parquet_streaming_memory_does_not_grow_with_rows(tmp_path):
+    # Peak of pyarrow's allocator while streaming 40 row groups, in a fresh process; reading
+    # the whole file at once would need about the frame's size.
+    out = _run("""
+        import sys
+        import numpy as np, pandas as pd, pyarrow as pa
+        import sensiv.data as data
+        data.TYPE_SAMPLE_ROWS = 1000
+        n, groups = 200_000, 40
+        rng = np.random.default_rng(0)
+        frame = pd.DataFrame({c: rng.normal(size=n) for c in "yxzw"})
+        frame.to_parquet(sys.argv[1], row_group_size=n // groups)
+        spec = data.Spec("y", "x", "z", ["w"])
+        source = data.from_file(sys.argv[1], spec, chunk_rows=n // groups)
+        rows = sum(len(chunk.values) for chunk in source.chunks())
+        print(rows, pa.default_memory_pool().max_memory(), frame.memory_usage().sum())
+    """, str(tmp_path / "big.parquet"))
+    rows, peak, size = map(int, out.split())
+    assert rows == 200_000
+    assert peak < size / 3  # measured ~1/6 streaming, ~4/3 with pyarrow pre-buffering
