@@ -32,7 +32,7 @@ def _fail(message: str) -> None:
     raise typer.Exit(EXIT_BAD_INPUT)
 
 
-def _guarded(command):
+def guarded(command):
     """Turn the caller's mistakes (``InputError``) into exit code 2 with a clean message."""
     @functools.wraps(command)
     def wrapper(*args, **kwargs):
@@ -72,7 +72,7 @@ CONSTANT = typer.Option(True, "--constant/--no-constant", help="Include a consta
 JSON = typer.Option(False, "--json", help="Print exactly one JSON document on stdout.")
 
 
-def _spec(outcome, treatment, instrument, control, cluster, weight, constant):
+def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant):
     from sensiv.data import Spec
 
     return Spec(outcome=outcome, treatments=tuple(treatment), instruments=tuple(instrument),
@@ -80,7 +80,7 @@ def _spec(outcome, treatment, instrument, control, cluster, weight, constant):
                 constant=constant)
 
 
-def _emit(document: dict, text: str, as_json: bool) -> None:
+def emit(document: dict, text: str, as_json: bool) -> None:
     from sensiv.report import to_json
 
     if as_json:
@@ -90,7 +90,7 @@ def _emit(document: dict, text: str, as_json: bool) -> None:
 
 
 @app.command()
-@_guarded
+@guarded
 def fit(
     data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
     outcome: str = OUTCOME,
@@ -111,17 +111,17 @@ def fit(
     from sensiv.data import from_file
     from sensiv.report import fit_markdown, to_json, write_bundle
 
-    spec = _spec(outcome, treatment, instrument, control, cluster, weight, constant)
+    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
     document = result.to_dict()
     if out is not None:
         write_bundle(out, {"fit.json": to_json(document), "fit.md": fit_markdown(result)})
-    _emit(document, str(result), as_json)
+    emit(document, str(result), as_json)
 
 
 @app.command()
-@_guarded
+@guarded
 def demo(
     out: Path = typer.Option(Path("sensiv-demo"), "--out", help="Folder for the demo's tables and data."),
     as_json: bool = JSON,
@@ -164,7 +164,12 @@ def demo(
         "README.md": readme,
     })
     lines.append(f"Written to {out}/: fit.json, fit.md, {scenario.name}.csv, README.md")
-    _emit(document, "\n".join(lines), as_json)
+    emit(document, "\n".join(lines), as_json)
+
+
+# Commands of the partial-identification layer live in their own modules and register
+# themselves on ``app`` when imported.
+from sensiv import cli_corrbound, cli_discrete  # noqa: E402,F401
 
 
 def main() -> None:

@@ -130,7 +130,7 @@ def quadratic_ratio_set(a0: np.ndarray, a1: np.ndarray, v00: np.ndarray, v01: np
     >>> s = quadratic_ratio_set(np.array([2.0]), np.array([1.0]), np.eye(1) * 0.01,
     ...                         np.zeros((1, 1)), np.eye(1) * 0.0001, 3.84)
     >>> [round(p.low, 3) for p in s], [round(p.high, 3) for p in s]
-    ([1.804], [2.204])
+    ([1.801], [2.201])
     """
     from scipy.linalg import eigvals
 

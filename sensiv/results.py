@@ -38,6 +38,8 @@ class Interval:
     high: float
 
     def __post_init__(self) -> None:
+        object.__setattr__(self, "low", float(self.low))
+        object.__setattr__(self, "high", float(self.high))
         if self.low > self.high:
             raise ValueError(f"interval low {self.low} exceeds high {self.high}")
 
