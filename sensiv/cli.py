@@ -167,6 +167,103 @@ def demo(
     emit(document, "\n".join(lines), as_json)
 
 
+FOCUS = typer.Option(None, "--focus", help="Treatment whose coefficient is examined [default: the first].")
+THRESHOLD = typer.Option(0.0, "--threshold", help="The conclusion examined is 'effect > threshold' (or '<').")
+
+
+def _data_options(data, outcome, treatment, instrument, control, cluster, weight, constant):
+    from sensiv.data import from_file
+
+    return from_file(data, spec_from_options(outcome, treatment, instrument, control, cluster,
+                                             weight, constant))
+
+
+@app.command()
+@guarded
+def sweep(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    control: Optional[list[str]] = CONTROL,
+    se: Optional[str] = SE,
+    cluster: Optional[str] = CLUSTER,
+    weight: Optional[str] = WEIGHT,
+    level: float = LEVEL,
+    small: bool = SMALL,
+    constant: bool = CONSTANT,
+    direct: Optional[list[str]] = typer.Option(
+        None, "--direct",
+        help="Assumed range LOW:HIGH of one instrument's direct effect on the outcome, one per "
+             "instrument in order; suffix 'rf' = share of the reduced form, 'sd' = outcome SDs "
+             "per instrument SD. Write --direct=-0.1:0.1 when LOW is negative."),
+    direct_polytope: Optional[Path] = typer.Option(
+        None, "--direct-polytope",
+        help="CSV with one column per instrument and 'bound': rows a'g <= bound."),
+    threshold: float = THRESHOLD,
+    points: int = typer.Option(101, "--points", help="Curve points over scalings 0..1 of the set."),
+    focus: Optional[str] = FOCUS,
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Write sweep.json, sweep.md and curve.csv here."),
+) -> None:
+    """Direct-effect sweep: identified set, union of intervals, breakdown point, robust set."""
+    from sensiv import bounds, iv
+    from sensiv.report import sweep_files, write_bundle
+
+    iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    source = _data_options(data, outcome, treatment, instrument, control, cluster, weight,
+                           constant)
+    result = bounds.sweep(source, direct=direct or None,
+                          polytope=str(direct_polytope) if direct_polytope else None, se=se,
+                          confidence_level=level, small=small, threshold=threshold,
+                          points=points, focus=focus)
+    if out is not None:
+        write_bundle(out, sweep_files(result))
+    emit(result.to_dict(), str(result), as_json)
+
+
+@app.command()
+@guarded
+def prior(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    control: Optional[list[str]] = CONTROL,
+    se: Optional[str] = SE,
+    cluster: Optional[str] = CLUSTER,
+    weight: Optional[str] = WEIGHT,
+    level: float = LEVEL,
+    small: bool = SMALL,
+    constant: bool = CONSTANT,
+    prior_law: Optional[list[str]] = typer.Option(
+        None, "--prior",
+        help="Prior of one instrument's direct effect: normal:MEAN:SD, uniform:LOW:HIGH or "
+             "triangular:LOW:MODE:HIGH; one per instrument in order."),
+    prior_file: Optional[Path] = typer.Option(
+        None, "--prior-file", help="TOML or JSON with 'mean' and 'cov' (multivariate normal)."),
+    draws: int = typer.Option(200_000, "--draws", help="Monte Carlo draws (non-normal laws, several instruments)."),
+    seed: int = typer.Option(0, "--seed", help="Seed of the Monte Carlo draws."),
+    focus: Optional[str] = FOCUS,
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Write prior.json and prior.md here."),
+) -> None:
+    """Interval for the effect when the direct effect follows a prior law."""
+    from sensiv import iv
+    from sensiv import prior as prior_layer
+    from sensiv.report import prior_files, write_bundle
+
+    iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    source = _data_options(data, outcome, treatment, instrument, control, cluster, weight,
+                           constant)
+    result = prior_layer.prior_analysis(
+        source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
+        se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed)
+    if out is not None:
+        write_bundle(out, prior_files(result))
+    emit(result.to_dict(), str(result), as_json)
+
+
 # Commands of the partial-identification layer live in their own modules and register
 # themselves on ``app`` when imported.
 from sensiv import cli_corrbound, cli_discrete  # noqa: E402,F401

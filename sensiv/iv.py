@@ -638,6 +638,43 @@ def check_clusters(sums: ScoreSums | None, cluster: str | None) -> None:
                          "robust or another cluster variable")
 
 
+def as_source(data, spec=None, *, chunk_rows: int | None = None):
+    """A data-layer source from a source, a DataFrame or a path (with ``spec``)."""
+    if hasattr(data, "chunks"):
+        return data
+    from sensiv import data as data_layer
+
+    return data_layer.load(data, spec, chunk_rows=chunk_rows)
+
+
+def default_se(spec) -> str:
+    return "cluster" if spec.cluster else "robust"
+
+
+def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
+                    extra_blocks=None) -> tuple[IVFit, Pieces, ScoreSums | None]:
+    """Two passes over ``source``: the fit plus the pass-1 pieces and pass-2 sums.
+
+    ``extra_blocks(pieces)`` may add score requests (for the sensitivity layers) to the same
+    second pass, so the rows are read exactly twice whatever is computed.
+    """
+    spec = source.spec
+    check_options(se, spec.cluster, confidence_level)
+    layout = source.layout
+    moments = accumulate(source.chunks(), layout.columns)
+    pieces = prepare(moments, layout)
+    blocks = score_blocks(pieces, se) + (list(extra_blocks(pieces)) if extra_blocks else [])
+    sums = None
+    if blocks:
+        sums = normalise_weights(
+            score_sums(source.chunks(), moments.mean, blocks, cluster=(se == "cluster")),
+            moments)
+        check_clusters(sums, spec.cluster)
+    result = fit_from_moments(pieces, sums, layout, se=se, confidence_level=confidence_level,
+                              small=small, weighted=spec.weight is not None)
+    return result, pieces, sums
+
+
 def fit(data, spec=None, *, se: SEType | None = None, confidence_level: float = 0.95,
         small: bool = False, chunk_rows: int | None = None) -> IVFit:
     """Fit 2SLS with diagnostics from a data source, a DataFrame or a file path.
@@ -659,25 +696,7 @@ def fit(data, spec=None, *, se: SEType | None = None, confidence_level: float = 
     -------
     IVFit
     """
-    if hasattr(data, "chunks"):
-        source = data
-    else:
-        from sensiv import data as data_layer
-
-        source = data_layer.load(data, spec, chunk_rows=chunk_rows)
-    spec = source.spec
-    if se is None:
-        se = "cluster" if spec.cluster else "robust"
-    check_options(se, spec.cluster, confidence_level)
-    layout = source.layout
-    moments = accumulate(source.chunks(), layout.columns)
-    pieces = prepare(moments, layout)
-    blocks = score_blocks(pieces, se)
-    sums = None
-    if blocks:
-        sums = normalise_weights(
-            score_sums(source.chunks(), moments.mean, blocks, cluster=(se == "cluster")),
-            moments)
-        check_clusters(sums, spec.cluster)
-    return fit_from_moments(pieces, sums, layout, se=se, confidence_level=confidence_level,
-                            small=small, weighted=spec.weight is not None)
+    source = as_source(data, spec, chunk_rows=chunk_rows)
+    result, _, _ = fit_with_pieces(source, se=se or default_se(source.spec),
+                                   confidence_level=confidence_level, small=small)
+    return result

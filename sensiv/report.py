@@ -103,3 +103,75 @@ def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes])
         return out
     finally:
         shutil.rmtree(staging, ignore_errors=True)
+
+
+def _interval_row(label: str, interval) -> list[str]:
+    return [label, str(interval)]
+
+
+def sweep_markdown(res) -> str:
+    """Markdown report of a direct-effect sweep."""
+    from sensiv.bounds import CAUTION
+
+    pct = f"{100 * res.confidence_level:g}%"
+    b = res.breakdown
+    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale, 6)
+    rows = [
+        ["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
+                                       f"{format_number(res.se, 6)})"],
+        ["identified set", str(res.identified_set)],
+        [f"union of {pct} intervals", str(res.union_ci)],
+        [f"weak-IV-robust {pct} set", " ∪ ".join(str(p) for p in res.ar_set)
+         if res.ar_set else ("empty" if res.ar_set is not None else "n/a")],
+        ["conclusion examined", b.conclusion],
+        ["breakdown scale of the set", scale],
+    ]
+    for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
+        rows.append([f"breakdown direct effect, {z} alone",
+                     f"{'none' if lo is None else format_number(lo, 6)} / "
+                     f"{'none' if hi is None else format_number(hi, 6)}"])
+    ranges = markdown_table(
+        ["instrument", "outcome units", "share of reduced form", "SD units"],
+        [[z, str(a), str(r), str(s)] for z, a, r, s in
+         zip(res.instruments, res.direct_set, res.direct_set_rf, res.direct_set_sd)])
+    notes = "".join(f"\n**Warning:** {n}\n" for n in res.notes)
+    return (f"# Direct-effect sensitivity: {res.focus} → {res.outcome}\n\n"
+            f"n = {res.n}, covariance: {res.se_type}.\n\n## Assumed direct effects\n\n{ranges}\n"
+            f"## Results\n\n{markdown_table(['quantity', 'value'], rows)}{notes}\n"
+            "## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
+            + f"\n\n> {CAUTION}\n")
+
+
+def curve_csv(res) -> str:
+    """The sensitivity curve as CSV (scale, union interval, identified set)."""
+    lines = ["scale,lower,upper,id_lower,id_upper"]
+    for row in res.curve.to_list():
+        lines.append(",".join("" if row[k] is None else repr(float(row[k]))
+                              for k in ("scale", "lower", "upper", "id_lower", "id_upper")))
+    return "\n".join(lines) + "\n"
+
+
+def sweep_files(res) -> dict[str, str]:
+    return {"sweep.json": to_json(res.to_dict()), "sweep.md": sweep_markdown(res),
+            "curve.csv": curve_csv(res)}
+
+
+def prior_markdown(res) -> str:
+    from sensiv.bounds import CAUTION
+
+    pct = f"{100 * res.confidence_level:g}%"
+    rows = [["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
+                                           f"{format_number(res.se, 6)})"],
+            [f"{pct} prior interval", str(res.interval)],
+            ["center", format_number(res.center, 6)],
+            ["method", res.method],
+            ["Monte Carlo error", "n/a" if res.mc_error is None else format_number(res.mc_error,
+                                                                                   3)]]
+    return (f"# Prior interval: {res.focus} → {res.outcome}\n\n"
+            + markdown_table(["quantity", "value"], rows)
+            + "\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
+            + f"\n\n> {CAUTION}\n")
+
+
+def prior_files(res) -> dict[str, str]:
+    return {"prior.json": to_json(res.to_dict()), "prior.md": prior_markdown(res)}

@@ -61,3 +61,79 @@ def fit_summary(fit) -> str:
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in fit.assumptions()]
     lines += ["", fit.caution]
     return "\n".join(lines)
+
+
+def _pieces(pieces) -> str:
+    if pieces is None:
+        return "n/a"
+    return " U ".join(str(p) for p in pieces) if pieces else "empty"
+
+
+def sweep_summary(res) -> str:
+    """Text summary of a :class:`sensiv.bounds.SweepResult`."""
+    pct = f"{100 * res.confidence_level:g}%"
+    b = res.breakdown
+    lines = [
+        f"Direct-effect sensitivity of the effect of {res.focus} on {res.outcome} "
+        f"(n = {res.n}, covariance: {res.se_type})",
+        f"2SLS at zero direct effect: {format_number(res.estimate)} "
+        f"(se {format_number(res.se)})",
+        "",
+        "Assumed direct effects (outcome units | share of reduced form | outcome SD per "
+        "instrument SD):",
+    ]
+    for z, a, r, s in zip(res.instruments, res.direct_set, res.direct_set_rf, res.direct_set_sd):
+        lines.append(f"  {z}: {a} | {r} | {s}")
+    lines += [
+        "",
+        f"Identified set (no sampling error):    {res.identified_set}",
+        f"Union of {pct} intervals over the set: {res.union_ci}",
+        f"Weak-instrument-robust {pct} set:      {_pieces(res.ar_set)}"
+        + (f" ({res.ar_method})" if res.ar_method else ""),
+        "",
+        f"Conclusion examined: {b.conclusion}",
+        "Breakdown scale of the set: "
+        + ("never within 1000x" if b.scale is None else f"{format_number(b.scale)}x"
+           + (" (the conclusion survives the assumed set)" if b.scale > 1 else
+              " (the conclusion does NOT survive the assumed set)" if b.scale > 0 else "")),
+    ]
+    for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
+        lo_t = "none" if lo is None else format_number(lo)
+        hi_t = "none" if hi is None else format_number(hi)
+        lines.append(f"  {z} alone: the interval reaches {b.threshold:g} at a direct effect of "
+                     f"{lo_t} (below zero) or {hi_t} (above zero)")
+    if res.fit.overid is not None:
+        o = res.fit.overid
+        lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "
+                     f"p = {format_number(o.p_value, 3)}")
+    for note in res.notes:
+        lines += ["", "Warning: " + note]
+    lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
+    from sensiv.bounds import CAUTION
+
+    lines += ["", CAUTION]
+    return "\n".join(lines)
+
+
+def prior_summary(res) -> str:
+    """Text summary of a :class:`sensiv.prior.PriorResult`."""
+    pct = f"{100 * res.confidence_level:g}%"
+    lines = [
+        f"Prior interval for the effect of {res.focus} on {res.outcome} "
+        f"(n = {res.n}, covariance: {res.se_type})",
+        f"2SLS at zero direct effect: {format_number(res.estimate)} "
+        f"(se {format_number(res.se)})",
+        f"Prior: " + "; ".join(f"{z} ~ {p}" for z, p in zip(res.instruments, res.priors)),
+        "",
+        f"{pct} prior interval: {res.interval}  (center {format_number(res.center)}, "
+        f"method: {res.method}"
+        + (f", Monte Carlo error {format_number(res.mc_error, 2)}, {res.draws} draws, seed "
+           f"{res.seed}" if res.mc_error is not None else "") + ")",
+    ]
+    for note in res.notes:
+        lines += ["", "Warning: " + note]
+    lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
+    from sensiv.bounds import CAUTION
+
+    lines += ["", CAUTION]
+    return "\n".join(lines)

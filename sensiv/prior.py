@@ -1,0 +1,345 @@
+r"""Prior intervals for the focus coefficient when the direct effect ``γ`` is random.
+
+The estimator satisfies ``β̂ ≈ β + a'γ + e`` with ``e ~ N(0, V)`` (``V``: the variance at
+``γ = 0``).  Given a prior law for ``γ``:
+
+* **normal** ``γ ~ N(μ, Ω)`` (Conley, Hansen & Rossi 2012, "local-to-zero"): closed form
+  ``β̂ − a'μ ± c·√(V + a'Ωa)``;
+* **other laws, one instrument**: the law of ``S = a'γ + e`` is a convolution whose CDF
+  ``F(s) = E_γ Φ((s − aγ)/√V)`` is integrated numerically (quadrature) and inverted by root
+  finding;
+* **other laws, several instruments**: Monte Carlo, with the Monte Carlo error of the interval
+  ends reported (batch means).
+
+The interval is ``[β̂ − q_S(1 − α/2), β̂ − q_S(α/2)]``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from sensiv import iv
+from sensiv.bounds import CAUTION, Core, build_core, focus_block
+from sensiv.errors import InputError
+from sensiv.inference import Progress
+from sensiv.results import Interval, json_number
+
+PRIOR_KINDS = ("normal", "uniform", "triangular")
+MC_DRAWS = 200_000
+MC_BATCHES = 20
+QUANTILE_SPAN = 12.0     # search quantiles within this many SDs of the mean
+PSD_TOL = 1e-12          # relative tolerance for negative eigenvalues of a prior covariance
+
+
+@dataclass(frozen=True, slots=True)
+class Prior:
+    """Prior law of one instrument's direct effect (outcome units)."""
+
+    kind: str
+    params: tuple[float, ...]
+
+    def mean(self) -> float:
+        if self.kind == "normal":
+            return self.params[0]
+        return sum(self.params) / len(self.params)
+
+    def variance(self) -> float:
+        if self.kind == "normal":
+            return self.params[1] ** 2
+        if self.kind == "uniform":
+            lo, hi = self.params
+            return (hi - lo) ** 2 / 12.0
+        a, c, b = self.params
+        return (a * a + b * b + c * c - a * b - a * c - b * c) / 18.0
+
+    def sample(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        if self.kind == "normal":
+            return rng.normal(self.params[0], self.params[1], size)
+        if self.kind == "uniform":
+            return rng.uniform(self.params[0], self.params[1], size)
+        a, c, b = self.params
+        return rng.triangular(a, c, b, size)
+
+    def density(self, g: np.ndarray | float) -> np.ndarray:
+        g = np.asarray(g, float)
+        if self.kind == "uniform":
+            lo, hi = self.params
+            return np.where((g >= lo) & (g <= hi), 1.0 / (hi - lo), 0.0)
+        a, c, b = self.params
+        up = np.where(c > a, 2 * (g - a) / ((b - a) * max(c - a, 1e-300)), 0.0)
+        down = np.where(b > c, 2 * (b - g) / ((b - a) * max(b - c, 1e-300)), 0.0)
+        return np.where((g >= a) & (g <= b), np.where(g <= c, up, down), 0.0)
+
+    def text(self) -> str:
+        return f"{self.kind}:" + ":".join(f"{p:g}" for p in self.params)
+
+
+def parse_prior(text: str) -> Prior:
+    """Parse ``normal:MEAN:SD``, ``uniform:LOW:HIGH`` or ``triangular:LOW:MODE:HIGH``.
+
+    Examples
+    --------
+    >>> parse_prior("normal:0:0.01")
+    Prior(kind='normal', params=(0.0, 0.01))
+    """
+    kind, _, rest = text.strip().partition(":")
+    if kind not in PRIOR_KINDS:
+        raise InputError(f"--prior '{text}': unknown law '{kind}'; use normal:MEAN:SD, "
+                         "uniform:LOW:HIGH or triangular:LOW:MODE:HIGH")
+    try:
+        params = tuple(float(p) for p in rest.split(":")) if rest else ()
+    except ValueError as exc:
+        raise InputError(f"--prior '{text}': parameters must be numbers") from exc
+    expected = {"normal": 2, "uniform": 2, "triangular": 3}[kind]
+    if len(params) != expected or not all(math.isfinite(p) for p in params):
+        raise InputError(f"--prior '{text}': {kind} takes {expected} finite numbers")
+    if kind == "normal" and not params[1] > 0:
+        raise InputError(f"--prior '{text}': the SD must be positive (got {params[1]:g}); for a "
+                         "known direct effect use --direct VALUE:VALUE with `sensiv sweep`")
+    if kind == "uniform" and not params[0] < params[1]:
+        raise InputError(f"--prior '{text}': LOW must be below HIGH")
+    if kind == "triangular" and not (params[0] <= params[1] <= params[2]
+                                     and params[0] < params[2]):
+        raise InputError(f"--prior '{text}': need LOW <= MODE <= HIGH with LOW < HIGH")
+    return Prior(kind, params)
+
+
+def read_prior_file(path, instruments: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Mean vector and covariance of a multivariate normal prior from TOML or JSON.
+
+    The file holds ``mean`` (one number per instrument) and ``cov`` (a square matrix), e.g. in
+    TOML: ``mean = [0.0, 0.0]`` and ``cov = [[1e-4, 0.0], [0.0, 4e-4]]``.
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(f"prior file '{path}' does not exist; check the path")
+    try:
+        if p.suffix.lower() == ".toml":
+            import tomllib
+
+            content = tomllib.loads(p.read_text(encoding="utf-8"))
+        else:
+            content = json.loads(p.read_text(encoding="utf-8"))
+    except (ValueError, UnicodeDecodeError) as exc:
+        raise InputError(f"prior file '{path}' could not be parsed: {exc}") from exc
+    if not isinstance(content, dict) or "mean" not in content or "cov" not in content:
+        raise InputError(f"prior file '{path}' needs keys 'mean' (one value per instrument) and "
+                         "'cov' (a square matrix)")
+    k = len(instruments)
+    try:
+        mean = np.asarray(content["mean"], float).ravel()
+        cov = np.atleast_2d(np.asarray(content["cov"], float))
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"prior file '{path}': 'mean' and 'cov' must be numbers") from exc
+    if mean.size != k or cov.shape != (k, k):
+        raise InputError(f"prior file '{path}': need a mean of length {k} and a {k}x{k} "
+                         f"covariance for instruments {', '.join(instruments)}")
+    if not (np.all(np.isfinite(mean)) and np.all(np.isfinite(cov))):
+        raise InputError(f"prior file '{path}': values must be finite")
+    if not np.allclose(cov, cov.T, rtol=1e-10, atol=0):
+        raise InputError(f"prior file '{path}': the covariance is not symmetric")
+    eig = np.linalg.eigvalsh(cov)
+    if eig.min() < -PSD_TOL * max(1.0, abs(eig).max()):
+        raise InputError(f"prior file '{path}': the covariance is not positive semidefinite "
+                         f"(smallest eigenvalue {eig.min():.3g})")
+    return mean, cov
+
+
+@dataclass(frozen=True, slots=True)
+class PriorResult:
+    """Interval for the focus coefficient under a prior law of the direct effect."""
+
+    focus: str
+    outcome: str
+    instruments: tuple[str, ...]
+    n: int
+    se_type: str
+    confidence_level: float
+    estimate: float
+    se: float
+    interval: Interval
+    center: float
+    method: str
+    mc_error: float | None
+    priors: tuple[str, ...]
+    draws: int | None
+    seed: int | None
+    fit: iv.IVFit
+    notes: tuple[str, ...] = field(default=())
+
+    def assumptions(self) -> list[str]:
+        return [
+            f"direct effects of the instruments on {self.outcome}: "
+            + "; ".join(f"{z} ~ {p}" for z, p in zip(self.instruments, self.priors)),
+            "the direct effect is independent of the sampling error of 2SLS, whose law is "
+            "approximately normal",
+            "apart from the direct effect, the instruments are as good as randomly assigned "
+            "given the controls",
+        ]
+
+    def to_dict(self) -> dict:
+        return {
+            "interval": self.interval.to_list(),
+            "center": json_number(self.center),
+            "method": self.method,
+            "mc_error": json_number(self.mc_error),
+            "focus": self.focus,
+            "estimate": self.estimate,
+            "se": self.se,
+            "n": self.n,
+            "se_type": self.se_type,
+            "confidence_level": self.confidence_level,
+            "priors": list(self.priors),
+            "draws": self.draws,
+            "seed": self.seed,
+            "overid": self.fit.overid.to_dict() if self.fit.overid else None,
+            "notes": list(self.notes),
+            "assumptions": self.assumptions(),
+            "caution": CAUTION,
+        }
+
+    def __str__(self) -> str:
+        from sensiv.summary import prior_summary
+
+        return prior_summary(self)
+
+
+def normal_interval(core: Core, mean: np.ndarray, cov: np.ndarray) -> tuple[Interval, float]:
+    """Closed form ``β̂ − a'μ ± c·√(V + a'Ωa)`` (Conley, Hansen & Rossi 2012)."""
+    center = core.estimate - float(core.slope @ mean)
+    sd = math.sqrt(core.quad[0, 0] + float(core.slope @ cov @ core.slope))
+    return Interval(center - core.critical * sd, center + core.critical * sd), center
+
+
+def _tail_probabilities(level: float) -> tuple[float, float]:
+    alpha = 1.0 - level
+    return 0.5 * alpha, 1.0 - 0.5 * alpha
+
+
+def quadrature_interval(core: Core, prior: Prior, level: float) -> tuple[Interval, float]:
+    """One instrument, non-normal prior: invert the CDF of ``S = aγ + e`` by quadrature."""
+    from scipy.integrate import quad
+    from scipy.optimize import brentq
+    from scipy.special import ndtr
+
+    a = float(core.slope[0])
+    sigma = math.sqrt(core.quad[0, 0])
+    lo_g, hi_g = prior.params[0], prior.params[-1]
+    breaks = sorted(set(prior.params))
+
+    def cdf(s: float) -> float:
+        def integrand(g: float) -> float:
+            return float(ndtr((s - a * g) / sigma) * prior.density(g))
+
+        total = 0.0
+        for left, right in zip(breaks[:-1], breaks[1:]):
+            total += quad(integrand, left, right, epsabs=1e-13, epsrel=1e-11, limit=200)[0]
+        return total
+
+    mean_s = a * prior.mean()
+    sd_s = math.sqrt(sigma**2 + a * a * prior.variance())
+    p_lo, p_hi = _tail_probabilities(level)
+    span = QUANTILE_SPAN * sd_s + abs(a) * (hi_g - lo_g)
+    q = [brentq(lambda s, p=p: cdf(s) - p, mean_s - span, mean_s + span, xtol=1e-14 * sd_s)
+         for p in (p_lo, p_hi)]
+    center = core.estimate - mean_s
+    return Interval(core.estimate - q[1], core.estimate - q[0]), center
+
+
+def simulated_interval(core: Core, priors: Sequence[Prior], level: float, draws: int,
+                       seed: int | None) -> tuple[Interval, float, float]:
+    """Monte Carlo interval with its Monte Carlo error (largest batch-means SE of the ends)."""
+    rng = np.random.default_rng(seed)
+    sigma = math.sqrt(core.quad[0, 0])
+    per_batch = max(draws // MC_BATCHES, 1)
+    p_lo, p_hi = _tail_probabilities(level)
+    samples, ends = [], []
+    progress = Progress(MC_BATCHES, label="simulating the prior interval")
+    for b in range(MC_BATCHES):
+        gamma = np.column_stack([p.sample(rng, per_batch) for p in priors])
+        s = gamma @ core.slope + sigma * rng.standard_normal(per_batch)
+        samples.append(s)
+        ends.append(np.quantile(s, [p_lo, p_hi]))
+        progress.update(b + 1)
+    progress.close()
+    s = np.concatenate(samples)
+    q_lo, q_hi = np.quantile(s, [p_lo, p_hi])
+    ends = np.array(ends)
+    mc_error = float(np.max(ends.std(axis=0, ddof=1)) / math.sqrt(MC_BATCHES))
+    center = core.estimate - float(core.slope @ np.array([p.mean() for p in priors]))
+    return Interval(core.estimate - q_hi, core.estimate - q_lo), center, mc_error
+
+
+def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = None,
+                   prior_file: str | None = None, se: str | None = None,
+                   confidence_level: float = 0.95, small: bool = False,
+                   focus: str | None = None, draws: int = MC_DRAWS, seed: int | None = 0,
+                   chunk_rows: int | None = None) -> PriorResult:
+    """Prior interval for the focus coefficient from data (two passes over the rows).
+
+    Parameters
+    ----------
+    priors : sequence of Prior or str, optional
+        One law per instrument (``normal:MEAN:SD``, ``uniform:LOW:HIGH``,
+        ``triangular:LOW:MODE:HIGH``), independent across instruments.
+    prior_file : path, optional
+        TOML/JSON with a mean vector and covariance (multivariate normal), instead of ``priors``.
+    draws, seed : Monte Carlo settings (used only for non-normal laws with several instruments).
+    """
+    if (priors is None) == (prior_file is None):
+        raise InputError("give either one --prior per instrument or --prior-file FILE")
+    laws = [parse_prior(p) if isinstance(p, str) else p for p in (priors or [])]
+    if not isinstance(draws, int) or draws < MC_BATCHES * 50:
+        raise InputError(f"--draws {draws} is too few; give at least {MC_BATCHES * 50}")
+    source = iv.as_source(data, spec, chunk_rows=chunk_rows)
+    instruments = source.layout.instruments
+    if laws and len(laws) != len(instruments):
+        raise InputError(f"{len(laws)} --prior law(s) for {len(instruments)} instrument(s) "
+                         f"({', '.join(instruments)}); give one per instrument, in order")
+    moments_file = read_prior_file(prior_file, instruments) if prior_file else None
+    treatments = source.layout.treatments
+    if focus is not None and focus not in treatments:
+        raise InputError(f"--focus '{focus}' is not a treatment; choose one of "
+                         f"{', '.join(treatments)}")
+    j = treatments.index(focus) if focus is not None else 0
+    se = se or iv.default_se(source.spec)
+    result, pieces, sums = iv.fit_with_pieces(
+        source, se=se, confidence_level=confidence_level, small=small,
+        extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
+    core = build_core(pieces, sums, result, j)
+    mc_error, used_draws, used_seed = None, None, None
+    if moments_file is not None:
+        mean, cov = moments_file
+        interval, center = normal_interval(core, mean, cov)
+        method = "closed-form"
+        texts = tuple(f"normal:{m:g}:{math.sqrt(max(c, 0.0)):g} (joint, from {prior_file})"
+                      for m, c in zip(mean, np.diag(cov)))
+    elif all(p.kind == "normal" for p in laws):
+        mean = np.array([p.params[0] for p in laws])
+        cov = np.diag([p.params[1] ** 2 for p in laws])
+        interval, center = normal_interval(core, mean, cov)
+        method = "closed-form"
+        texts = tuple(p.text() for p in laws)
+    elif len(laws) == 1:
+        interval, center = quadrature_interval(core, laws[0], confidence_level)
+        method = "quadrature"
+        texts = (laws[0].text(),)
+    else:
+        interval, center, mc_error = simulated_interval(core, laws, confidence_level, draws,
+                                                        seed)
+        method = "simulation"
+        used_draws, used_seed = draws, seed
+        texts = tuple(p.text() for p in laws)
+    return PriorResult(
+        focus=core.focus, outcome=pieces.design.outcome, instruments=core.instruments,
+        n=result.n, se_type=result.se_type, confidence_level=confidence_level,
+        estimate=core.estimate, se=core.se, interval=interval, center=center, method=method,
+        mc_error=mc_error, priors=texts, draws=used_draws, seed=used_seed, fit=result,
+        notes=result.notes)
+
