@@ -40,9 +40,9 @@ DEFAULT_POINTS = 101
 ROOT_TOL = 1e-12            # relative tolerance for degenerate quadratic coefficients
 VERTEX_TOL = 1e-9           # feasibility slack when enumerating polytope vertices
 MAX_VERTEX_RANK = 8         # enumerating vertices by active sets is for small k_z
-MC_DRAWS = 200_000          # default Monte Carlo draws for non-normal priors
-MC_BATCHES = 20             # batches for the Monte Carlo error (batch means)
-AR_GRID = 801               # grid for the weak-IV-robust set with several instruments
+# Grids that locate the weak-IV-robust set with several instruments (then refined by roots):
+AR_GRID = 401               # box: bounded least squares per point
+AR_GRID_POLYTOPE = 101      # polytope: one quadratic programme per point
 # The weak-IV-robust set "differs materially" from the Wald union when their hulls differ by
 # more than this share of the Wald union's width.
 MATERIAL_SHARE = 0.25
@@ -504,34 +504,57 @@ def reduced_form(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit) ->
                        joint[0, :, 0, :], critical)
 
 
-def _ar_min_over_set(rf: ReducedForm, dset: DirectSet, beta0: float) -> float:
-    """``min_{γ∈Γ} (ρ − β₀π − γ)' V(β₀)⁻¹ (ρ − β₀π − γ)``."""
-    a = rf.rho - beta0 * rf.pi
-    v = rf.v_rr - beta0 * (rf.v_rp + rf.v_rp.T) + beta0**2 * rf.v_pp
-    chol = linalg.scaled_cholesky(v)
-    whiten = chol.whiten(np.eye(len(a)))
-    target = whiten @ a
+def _ar_minimiser(rf: ReducedForm, dset: DirectSet):
+    """``β₀ ↦ min_{γ∈Γ} (ρ − β₀π − γ)' V(β₀)⁻¹ (ρ − β₀π − γ)``.
+
+    A box uses bounded least squares (BVLS, exact); a general polytope a quadratic programme
+    built once with cvxpy Parameters and re-solved for each ``β₀``.
+    """
+    k = len(rf.rho)
+
+    def whitened(beta0: float) -> tuple[np.ndarray, np.ndarray]:
+        a = rf.rho - beta0 * rf.pi
+        v = rf.v_rr - beta0 * (rf.v_rp + rf.v_rp.T) + beta0**2 * rf.v_pp
+        whiten = linalg.scaled_cholesky(v).whiten(np.eye(k))
+        return whiten, whiten @ a
+
     if dset.box is not None:
         from scipy.optimize import lsq_linear
 
         lows = np.array([b.low for b in dset.box])
         highs = np.array([b.high for b in dset.box])
         free = lows < highs
-        r0 = target - whiten[:, ~free] @ lows[~free]
-        if not free.any():
-            return float(r0 @ r0)
-        res = lsq_linear(whiten[:, free], r0, bounds=(lows[free], highs[free]), method="bvls",
-                         tol=1e-14)
-        r = r0 - whiten[:, free] @ res.x
-        return float(r @ r)
+
+        def box_min(beta0: float) -> float:
+            whiten, target = whitened(beta0)
+            r0 = target - whiten[:, ~free] @ lows[~free]
+            if not free.any():
+                return float(r0 @ r0)
+            res = lsq_linear(whiten[:, free], r0, bounds=(lows[free], highs[free]),
+                             method="bvls", tol=1e-14)
+            r = r0 - whiten[:, free] @ res.x
+            return float(r @ r)
+
+        return box_min
+
     import cvxpy as cp
 
     from sensiv.partial_id.solver import solve
 
-    gamma = cp.Variable(len(a))
-    problem = cp.Problem(cp.Minimize(cp.sum_squares(target - whiten @ gamma)),
+    # Programme: minimise ‖t − P γ‖² over γ subject to A γ ≤ b, with P (whitening of V(β₀))
+    # and t (whitened ρ − β₀π) as parameters, so the problem is compiled once.
+    gamma = cp.Variable(k)
+    p_par = cp.Parameter((k, k))
+    t_par = cp.Parameter(k)
+    problem = cp.Problem(cp.Minimize(cp.sum_squares(t_par - p_par @ gamma)),
                          [dset.constraints @ gamma <= dset.rhs])
-    return solve(problem, solver="CLARABEL", what="weak-IV-robust programme").value
+    assert problem.is_dcp(dpp=True)
+
+    def polytope_min(beta0: float) -> float:
+        p_par.value, t_par.value = whitened(beta0)
+        return solve(problem, solver="CLARABEL", what="weak-IV-robust programme").value
+
+    return polytope_min
 
 
 def robust_set(rf: ReducedForm, dset: DirectSet) -> tuple[tuple[Interval, ...], str]:
@@ -562,8 +585,10 @@ def robust_set(rf: ReducedForm, dset: DirectSet) -> tuple[tuple[Interval, ...], 
 def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...]:
     from scipy.optimize import brentq
 
+    minimum = _ar_minimiser(rf, dset)
+
     def g(b: float) -> float:
-        return _ar_min_over_set(rf, dset, b) - rf.critical
+        return minimum(b) - rf.critical
 
     # Exact pieces at the vertices locate the region; the set is unbounded exactly when the
     # first-stage Wald statistic π'V_ππ⁻¹π is at most the critical value.
@@ -580,7 +605,7 @@ def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...
     lo, hi = lo - 2 * width, hi + 2 * width
     while not unbounded and (g(lo) <= 0 or g(hi) <= 0):
         lo, hi = lo - 2 * (hi - lo), hi + 2 * (hi - lo)
-    grid = np.linspace(lo, hi, AR_GRID)
+    grid = np.linspace(lo, hi, AR_GRID if dset.box is not None else AR_GRID_POLYTOPE)
     values = np.array([g(b) for b in grid])
     inside = values <= 0
     edges = []

@@ -1,3 +1,68 @@
-"""Command `sensiv corrbound` (registered on the shared typer app when imported)."""
+"""Command `sensiv corrbound` (registered on the shared typer app when imported).
+
+Correlation-restriction bounds for an imperfect instrument (Nevo & Rosen 2012): parse the
+options, call :func:`sensiv.partial_id.correlation.correlation_bounds`, print or write.
+"""
 
 from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from sensiv.cli import (CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
+                        WEIGHT, app, emit, guarded, spec_from_options)
+
+MAX_RATIO = typer.Option(1.0, "--max-ratio", help="Largest ratio r̄ in [0, 1] of |corr(Z, u)| to |corr(X, u)|; 0 is the exclusion restriction.")
+ENDOGENEITY = typer.Option("unknown", "--endogeneity", help="Sign of corr(X, u): positive, negative or unknown (union over both).")
+THRESHOLD = typer.Option(0.0, "--threshold", help="Effect size for the breakdown ratio (smallest r̄ whose set contains it).")
+REPS = typer.Option(999, "--reps", help="Bootstrap replicates (whole clusters are resampled with --cluster).")
+SEED = typer.Option(None, "--seed", help="Seed of the bootstrap [default: drawn and reported].")
+POINTS = typer.Option(51, "--points", help="Ratios on the curve from 0 to --max-ratio.")
+
+
+@app.command()
+@guarded
+def corrbound(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    control: Optional[list[str]] = CONTROL,
+    cluster: Optional[str] = CLUSTER,
+    weight: Optional[str] = WEIGHT,
+    max_ratio: float = MAX_RATIO,
+    endogeneity: str = ENDOGENEITY,
+    threshold: float = THRESHOLD,
+    reps: int = REPS,
+    seed: Optional[int] = SEED,
+    points: int = POINTS,
+    level: float = LEVEL,
+    constant: bool = CONSTANT,
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Also write corrbound.json and corrbound.md here."),
+) -> None:
+    """Bounds on the effect when each instrument may be correlated with the error, in the
+    treatment's direction and at most --max-ratio times as strongly (Nevo & Rosen 2012)."""
+    from sensiv.data import from_file
+    from sensiv.errors import InputError
+    from sensiv.partial_id.correlation import (bounds_markdown, check_one_treatment, check_options,
+                                              correlation_bounds)
+    from sensiv.report import to_json, write_bundle
+
+    if reps < 1:
+        raise InputError(f"--reps {reps} is not a number of bootstrap replicates; give a "
+                         "positive integer such as 999")
+    check_options(max_ratio=max_ratio, endogeneity=endogeneity, threshold=threshold,
+                  points=points, reps=reps, seed=seed, confidence_level=level)
+    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
+    check_one_treatment(spec)
+    result = correlation_bounds(from_file(data, spec), max_ratio=max_ratio,
+                                endogeneity=endogeneity, threshold=threshold, points=points,
+                                reps=reps, seed=seed, confidence_level=level, progress=True)
+    document = result.to_dict()
+    if out is not None:
+        write_bundle(out, {"corrbound.json": to_json(document),
+                           "corrbound.md": bounds_markdown(result)})
+    emit(document, str(result), as_json)

@@ -1,3 +1,130 @@
 """Command `sensiv discrete` (registered on the shared typer app when imported)."""
 
 from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from sensiv.cli import INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, app, emit, guarded
+
+EXIT_SOLVER_FAILURE = 1
+
+
+def _one(names: list[str], role: str) -> str:
+    from sensiv.errors import InputError
+
+    if len(names) != 1:
+        raise InputError(f"`sensiv discrete` takes exactly one --{role}; got {len(names)} "
+                         f"({', '.join(map(repr, names))}): give one")
+    return names[0]
+
+
+@app.command()
+@guarded
+def discrete(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file: one row per unit, "
+                                          "or a table of counts with --counts."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    counts: bool = typer.Option(False, "--counts", help="DATA is a counts table: columns for the "
+                                "instrument, treatment and outcome plus a 'count' column."),
+    budget: float = typer.Option(0.1, "--budget", help="Largest share of units whose outcome "
+                                 "the instrument changes directly, in [0, 1]; 0 is the "
+                                 "exclusion restriction."),
+    monotone: bool = typer.Option(False, "--monotone", help="Assume no defiers: the treatment "
+                                  "never falls as the instrument moves up its sorted levels."),
+    defier_budget: float = typer.Option(0.0, "--defier-budget", help="With --monotone: largest "
+                                        "share of defiers allowed, in [0, 1]."),
+    threshold: float = typer.Option(0.0, "--threshold", help="Effect value for the breakdown "
+                                    "budget (smallest budget whose bounds contain it)."),
+    reps: int = typer.Option(999, "--reps", help="Bootstrap replicates (0: no interval)."),
+    seed: Optional[int] = typer.Option(None, "--seed", help="Seed of the bootstrap [default: "
+                                       "drawn and reported]."),
+    points: int = typer.Option(51, "--points", help="Budgets on the curve."),
+    max_budget: Optional[float] = typer.Option(None, "--max-budget", help="End of the curve "
+                                               "[default: the budget, at least 0.1, extended "
+                                               "past the breakdown budget]."),
+    level: float = LEVEL,
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Also write discrete.json and "
+                                       "discrete.md here."),
+) -> None:
+    """Bounds on the effect of a discrete treatment with a budget for direct effects of a
+    randomised discrete instrument (Balke-Pearl bounds at budget 0)."""
+    from sensiv.errors import SolverError
+    from sensiv.partial_id.discrete import discrete_bounds
+    from sensiv.report import to_json, write_bundle
+
+    x, z = _one(treatment, "treatment"), _one(instrument, "instrument")
+    if counts:
+        from sensiv.partial_id.discrete_data import read_counts
+
+        table = read_counts(data, outcome=outcome, treatment=x, instrument=z)
+    else:
+        from sensiv.data import Spec, from_file
+        from sensiv.partial_id.discrete_data import tabulate
+
+        table = tabulate(from_file(data, Spec(outcome=outcome, treatments=(x,),
+                                              instruments=(z,))))
+    try:
+        result = discrete_bounds(table, budget, monotone=monotone, defier_budget=defier_budget,
+                                 threshold=threshold, reps=reps, seed=seed, points=points,
+                                 max_budget=max_budget, confidence_level=level,
+                                 progress=not as_json)
+    except SolverError as exc:
+        typer.echo(f"error: {exc}; the bounds could not be computed (report this with the "
+                   "data, if you can)", err=True)
+        raise typer.Exit(EXIT_SOLVER_FAILURE) from exc
+    document = result.to_dict()
+    if out is not None:
+        write_bundle(out, {"discrete.json": to_json(document), "discrete.md": _markdown(result)})
+    emit(document, str(result), as_json)
+
+
+def _markdown(result) -> str:
+    """Markdown report of a discrete-bounds result (formatting only)."""
+    from sensiv.partial_id.discrete_data import _plain
+    from sensiv.report import markdown_table
+    from sensiv.results import format_number
+
+    t = result.table
+    pct = f"{100 * result.confidence_level:g}%"
+
+    def number(value) -> str:
+        return format_number(value) if value is not None else "n/a"
+
+    rows = [[f"{_plain(c.level)} vs {_plain(c.base)}",
+             str(c.bounds) if c.bounds is not None else "empty (no fit)",
+             str(c.ci) if c.ci is not None else "n/a",
+             number(c.breakdown_budget) if c.breakdown_budget is not None else "never"]
+            for c in result.contrasts]
+    ineq = result.inequality
+    parts = [
+        f"# Discrete bounds: {t.treatment} on {t.outcome}, instrument {t.instrument}\n\n",
+        f"Data: {t.description}, n = {t.n} ({t.n_dropped} rows dropped for missing values). "
+        f"Estimand: {result.estimand()}. Budget: {result.budget:g}"
+        + (f"; monotone with defier budget {result.defier_budget:g}" if result.monotone
+           else "") + ".\n\n",
+        markdown_table(["contrast", "bounds", f"{pct} CI",
+                        f"breakdown budget (θ₀ = {result.threshold:g})"], rows),
+        f"\nInstrumental inequality (Pearl 1995): {ineq.value:.4g} — "
+        f"{'holds' if ineq.holds else 'fails'}. Smallest budget that fits the data: "
+        f"{number(result.min_budget) if result.min_budget is not None else 'none'}.\n",
+    ]
+    if result.bootstrap is not None:
+        b = result.bootstrap
+        parts.append(f"\nBootstrap: {b.reps} replicates (seed {b.seed}); {b.used} used, "
+                     f"{b.infeasible} without a fit, {b.skipped} skipped.\n")
+    parts.append("\n## Curve\n\n")
+    parts.append(markdown_table(
+        ["budget", "lower", "upper"],
+        [[format_number(p.budget), number(p.bounds.low if p.bounds else None),
+          number(p.bounds.high if p.bounds else None)] for p in result.curve]))
+    parts += [f"\n**Note:** {note}\n" for note in result.notes]
+    parts.append("\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in result.assumptions())
+                 + "\n")
+    parts.append(f"\n> {result.caution}\n")
+    return "".join(parts)
