@@ -380,7 +380,7 @@ def write_examples(directory: str | Path) -> list[Path]:
     paths = []
     for data in (irrigation(), nudge()):
         path = directory / f"{data.name}.csv"
-        path.write_bytes(_csv_bytes(data.frame))
+        path.write_bytes(csv_bytes(data.frame))
         paths.append(path)
     path = directory / "published_table.json"
     path.write_bytes((json.dumps(published_table(), indent=2) + "\n").encode("utf-8"))
@@ -406,7 +406,7 @@ def _check_size(name: str, value: int, minimum: int) -> int:
     return value
 
 
-def _csv_bytes(frame: pd.DataFrame) -> bytes:
+def csv_bytes(frame: pd.DataFrame) -> bytes:
     """CSV text with fixed decimals per float column (integers and labels as they are)."""
     import pandas as pd
 

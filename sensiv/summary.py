@@ -92,10 +92,12 @@ def sweep_summary(res) -> str:
         + (f" ({res.ar_method})" if res.ar_method else ""),
         "",
         f"Conclusion examined: {b.conclusion}",
-        "Breakdown scale of the set: "
-        + ("never within 1000x" if b.scale is None else f"{format_number(b.scale)}x"
-           + (" (the conclusion survives the assumed set)" if b.scale > 1 else
-              " (the conclusion does NOT survive the assumed set)" if b.scale > 0 else "")),
+        "Breakdown: " + (
+            "the conclusion holds for every scaling of the set up to 1000x" if b.scale is None
+            else "no conclusion to break" if b.scale == 0 else
+            f"the conclusion holds until the set is scaled by {format_number(b.scale)}"
+            + (" (it survives the assumed set)" if b.scale > 1 else
+               " (it does NOT survive the assumed set)")),
     ]
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
         lo_t = "none" if lo is None else format_number(lo)

@@ -58,11 +58,16 @@ def test_readme_demo(tmp_path):
     assert "INVENTED" in result.stdout
     assert "Anderson-Rubin" in result.stdout
     assert "Caution" in result.stdout
-    assert {p.name for p in out.iterdir()} == {"fit.json", "fit.md", "irrigation.csv",
-                                               "README.md"}
-    document = json.loads((out / "fit.json").read_text())
+    assert {p.name for p in out.iterdir()} == {
+        "demo.json", "fit.json", "fit.md", "sweep.json", "sweep.md", "curve.csv", "prior.json",
+        "prior.md", "irrigation.csv", "README.md"}
+    document = json.loads((out / "demo.json").read_text())
     assert document["invented"] is True
     assert document["fit"]["coef"]["irrigation_hours"] > 0
+    # the invented truth lies inside the union interval over the assumed direct effects
+    assert document["truth_covered_by_union_ci"] is True
+    # the shipped example file is the demo's data, byte for byte
+    assert (out / "irrigation.csv").read_bytes() == EXAMPLE.read_bytes()
 
 
 def test_readme_demo_json(tmp_path):
@@ -237,3 +242,27 @@ def test_bad_input_leaves_no_output_dir(data, tmp_path):
                "--out", out), "constant")
     assert not out.exists()
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".never")]
+
+
+def test_readme_python_example(monkeypatch, capsys):
+    # the Python block of the README runs as written (from the repository root)
+    import re
+
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    blocks = re.findall(r"```python\n(.*?)```", text, flags=re.S)
+    assert blocks, "README has a Python example"
+    monkeypatch.chdir(ROOT)
+    for block in blocks:
+        exec(compile(block, "README.md", "exec"), {})
+    assert "irrigation_hours" in capsys.readouterr().out
+
+
+def test_readme_commands_are_tested():
+    # every `sensiv <command>` shown in a README code block is exercised in this test suite
+    import re
+
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    shown = set(re.findall(r"^\s*(?:pip install [^&]*&& )?sensiv (\w+)", text, flags=re.M))
+    tests = "".join(p.read_text(encoding="utf-8") for p in (ROOT / "tests").glob("test_cli*.py"))
+    for command in shown:
+        assert f'"{command}"' in tests, f"README shows `sensiv {command}` without a CLI test"

@@ -1,0 +1,114 @@
+"""`sensiv sweep` and `sensiv prior` on the command line: contracts and bad input.
+
+Common practice, no source: these check the interface, the numbers are checked in
+tests/test_bounds.py against the reference library.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from sensiv.cli import app
+
+ROOT = Path(__file__).resolve().parents[1]
+EXAMPLE = ROOT / "examples" / "irrigation.csv"
+ROLES = ("--outcome", "maize_yield", "--treatment", "irrigation_hours", "--instrument",
+         "height_m", "--control", "plot_ha", "--control", "soil", "--cluster", "village")
+runner = CliRunner()
+
+
+def invoke(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def bad(result, *fragments):
+    assert result.exit_code == 2, (result.exit_code, result.stdout, result.stderr)
+    assert "Traceback" not in result.stderr + result.stdout
+    assert result.stdout == ""
+    for fragment in fragments:
+        assert fragment.lower() in result.stderr.lower(), result.stderr
+
+
+def test_readme_sweep_example(tmp_path):
+    out = tmp_path / "sweep"
+    result = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--out", out)
+    assert result.exit_code == 0, result.stderr
+    assert "Union of 95% intervals" in result.stdout
+    assert "Caution" in result.stdout
+    assert {p.name for p in out.iterdir()} == {"sweep.json", "sweep.md", "curve.csv"}
+    curve = pd.read_csv(out / "curve.csv")
+    assert len(curve) == 101 and list(curve.columns) == ["scale", "lower", "upper", "id_lower",
+                                                          "id_upper"]
+
+
+def test_readme_sweep_json_contract():
+    result = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.2:0.2rf", "--points", "11", "--json")
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    for key in ("estimate", "se", "direct_set", "identified_set", "union_ci", "breakdown",
+                "curve", "ar_set"):
+        assert key in doc
+    assert set(doc["breakdown"]) >= {"threshold", "scale", "direct_lower", "direct_upper"}
+    assert set(doc["curve"][0]) == {"scale", "lower", "upper", "id_lower", "id_upper"}
+    assert len(doc["curve"]) == 11
+    assert doc["direct_set_rf"][0] == pytest.approx([-0.2, 0.2])
+    assert doc["caution"]
+
+
+def test_readme_prior_examples(tmp_path):
+    result = invoke("prior", EXAMPLE, *ROLES, "--prior", "normal:0:0.003", "--json")
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert set(doc) >= {"interval", "center", "method", "mc_error"}
+    assert doc["method"] == "closed-form" and doc["mc_error"] is None
+    result = invoke("prior", EXAMPLE, *ROLES, "--prior", "uniform:-0.006:0", "--out",
+                    tmp_path / "p")
+    assert result.exit_code == 0, result.stderr
+    assert "quadrature" in result.stdout
+    assert (tmp_path / "p" / "prior.json").exists()
+
+
+@pytest.mark.parametrize("args,fragments", [
+    (("--direct=0.1:-0.1",), ("exceeds",)),
+    (("--direct=-0.1:0.1", "--direct=0:1"), ("2 --direct", "1 instrument")),
+    (("--direct=-0.1:0.1pp",), ("unit suffix",)),
+    ((), ("--direct",)),
+    (("--direct=-0.1:0.1", "--focus", "plot_ha"), ("--focus 'plot_ha'",)),
+    (("--direct=-0.1:0.1", "--points", "1"), ("--points",)),
+])
+def test_sweep_bad_input(args, fragments):
+    bad(invoke("sweep", EXAMPLE, *ROLES, *args), *fragments)
+
+
+def test_sweep_bad_polytope(tmp_path):
+    path = tmp_path / "poly.csv"
+    pd.DataFrame({"height_m": [1.0], "bound": [0.01]}).to_csv(path, index=False)
+    bad(invoke("sweep", EXAMPLE, *ROLES, "--direct-polytope", path), "unbounded")
+    empty = tmp_path / "empty.csv"
+    empty.write_text("height_m,bound\n")
+    bad(invoke("sweep", EXAMPLE, *ROLES, "--direct-polytope", empty), "no rows")
+    infeasible = tmp_path / "inf.csv"
+    pd.DataFrame({"height_m": [1.0, -1.0], "bound": [-0.01, -0.01]}).to_csv(infeasible,
+                                                                           index=False)
+    bad(invoke("sweep", EXAMPLE, *ROLES, "--direct-polytope", infeasible), "empty")
+
+
+@pytest.mark.parametrize("args,fragments", [
+    (("--prior", "normal:0:-1"), ("SD must be positive",)),
+    (("--prior", "normal:0:0.1", "--prior", "normal:0:0.1"), ("2 --prior",)),
+    (("--prior", "beta:1:1"), ("unknown law",)),
+    (("--prior", "uniform:1:0"), ("LOW must be below HIGH",)),
+])
+def test_prior_bad_input(args, fragments):
+    bad(invoke("prior", EXAMPLE, *ROLES, *args), *fragments)
+
+
+def test_prior_file_not_psd(tmp_path):
+    path = tmp_path / "p.json"
+    path.write_text('{"mean": [0.0], "cov": [[-1.0]]}')
+    bad(invoke("prior", EXAMPLE, *ROLES, "--prior-file", path), "positive semidefinite")
