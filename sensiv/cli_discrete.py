@@ -86,7 +86,7 @@ def discrete(
 
 def _markdown(result) -> str:
     """Markdown report of a discrete-bounds result (formatting only)."""
-    from sensiv.partial_id.discrete_data import _plain
+    from sensiv.partial_id.discrete_data import plain_number
     from sensiv.report import markdown_table
     from sensiv.results import format_number
 
@@ -96,7 +96,7 @@ def _markdown(result) -> str:
     def number(value) -> str:
         return format_number(value) if value is not None else "n/a"
 
-    rows = [[f"{_plain(c.level)} vs {_plain(c.base)}",
+    rows = [[f"{plain_number(c.level)} vs {plain_number(c.base)}",
              str(c.bounds) if c.bounds is not None else "empty (no fit)",
              str(c.ci) if c.ci is not None else "n/a",
              number(c.breakdown_budget) if c.breakdown_budget is not None else "never"]

@@ -25,6 +25,7 @@ Examples
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import os
 import struct
@@ -40,7 +41,7 @@ from sensiv.errors import InputError
 if TYPE_CHECKING:
     import pandas as pd
 
-DEFAULT_CHUNK_ROWS = 250_000
+DEFAULT_CHUNK_ROWS = 100_000
 """Rows per chunk when streaming from a file."""
 
 TYPE_SAMPLE_ROWS = 100_000
@@ -223,6 +224,8 @@ class Source:
     description: str
     _frames: Callable[[], Iterator[pd.DataFrame]] = field(repr=False, compare=False)
     _levels: dict[str, tuple[str, ...]] = field(repr=False, compare=False)
+    # In-memory sources keep the chunks they validated, so later passes do not convert again.
+    _cache: tuple[Chunk, ...] | None = field(default=None, repr=False, compare=False)
 
     def chunks(self) -> Iterator[Chunk]:
         """Yield clean chunks from the first row on; each call starts again.
@@ -233,6 +236,9 @@ class Source:
             Bad values found in a chunk (raised when that chunk is reached), or, after the
             last chunk, a column with no values or no rows left.
         """
+        if self._cache is not None:
+            yield from self._cache
+            return
         tally = _Tally(self.spec, self.description)
         for frame in self._frames():
             yield _to_chunk(frame, self, tally)
@@ -435,9 +441,10 @@ def _to_chunk(frame: pd.DataFrame, source: Source, tally: _Tally) -> Chunk:
 
     values = np.empty((n_kept, len(layout.columns)), dtype=np.float64)
     j = 0
+    everything = n_kept == len(frame)
     for name in (spec.outcome, *spec.treatments, *spec.instruments, *spec.controls):
         if name not in source._levels:
-            values[:, j] = numeric[name][keep]
+            values[:, j] = numeric[name] if everything else numeric[name][keep]
             j += 1
             continue
         levels = source._levels[name]
@@ -522,8 +529,7 @@ def _build(spec: Spec, description: str, available: Sequence[Any],
         )
     source = Source(spec, layout, description, frames, levels)
     if eager:
-        for _ in source.chunks():
-            pass
+        return dataclasses.replace(source, _cache=tuple(source.chunks()))
     return source
 
 

@@ -128,16 +128,22 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
     if n == 0:
         out = empty_moments(columns)
         return Moments(out.columns, 0, n_dropped, 0.0, out.mean, out.comoment)
+    # Shift by the first row before summing, so that a column whose mean dwarfs its spread
+    # (a calendar year, incomes in cents) is accumulated as small deviations: the mean is then
+    # accurate to rounding of the spread, not of the level.
+    shift = values[0]
+    centred = values - shift
     if weights is None:
         total = float(n)
-        mean = values.mean(axis=0)
-        centred = values - mean
+        offset = centred.mean(axis=0)
+        centred -= offset
         comoment = centred.T @ centred
     else:
         total = float(weights.sum())
-        mean = (weights @ values) / total
-        centred = values - mean
+        offset = (weights @ centred) / total
+        centred -= offset
         comoment = (centred * weights[:, None]).T @ centred
+    mean = shift + offset
     comoment = 0.5 * (comoment + comoment.T)
     return Moments(tuple(columns), n, n_dropped, total, mean, comoment)
 
@@ -184,11 +190,14 @@ class ScoreSums:
     n_clusters: int | None
 
 
-def _block_scores(block: ScoreBlock, augmented_rows: np.ndarray,
+def _block_scores(block: ScoreBlock, a: np.ndarray, e: np.ndarray,
                   weights: np.ndarray | None) -> np.ndarray:
-    a = augmented_rows @ block.left
-    e = augmented_rows @ block.right
-    g = (a[:, :, None] * e[:, None, :]).reshape(a.shape[0], block.size)
+    if e.shape[1] == 1:
+        g = a * e
+    elif a.shape[1] == 1:
+        g = e * a
+    else:
+        g = (a[:, :, None] * e[:, None, :]).reshape(a.shape[0], block.size)
     if weights is not None:
         g *= weights[:, None]
     return g
@@ -217,11 +226,28 @@ class _ClusterIndex:
         return len(self._codes)
 
 
-def _augment(values: np.ndarray, mean: np.ndarray) -> np.ndarray:
-    out = np.empty((values.shape[0], values.shape[1] + 1))
-    out[:, 0] = 1.0
-    np.subtract(values, mean, out=out[:, 1:])
-    return out
+class _RowMaps:
+    """All blocks' row maps applied in one product per chunk.
+
+    ``d̃ @ L = values @ L[1:] + (L[0] − μ @ L[1:])``, so the augmented rows are never formed.
+    """
+
+    def __init__(self, blocks: Sequence[ScoreBlock], mean: np.ndarray) -> None:
+        maps = [m for b in blocks for m in (b.left, b.right)]
+        stack = np.hstack(maps)
+        # Stored transposed: (maps × columns) @ (columns × rows) is much faster in BLAS than a
+        # tall-skinny (rows × columns) @ (columns × maps) product, and yields column-major
+        # per-map columns that the elementwise products below read contiguously.
+        self._stack_t = np.ascontiguousarray(stack[1:].T)
+        self._offset = stack[0] - mean @ stack[1:]
+        edges = np.cumsum([0, *(m.shape[1] for m in maps)])
+        self._slices = [(slice(edges[2 * i], edges[2 * i + 1]),
+                         slice(edges[2 * i + 1], edges[2 * i + 2])) for i in range(len(blocks))]
+
+    def apply(self, values: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+        mapped = (self._stack_t @ values.T).T
+        mapped += self._offset
+        return [(mapped[:, left], mapped[:, right]) for left, right in self._slices]
 
 
 def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
@@ -244,11 +270,11 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
         ``Σ gᵢgᵢ'`` or ``Σ_g s_g s_g'`` per block.
     """
     meats = {b.name: np.zeros((b.size, b.size)) for b in blocks}
+    maps = _RowMaps(blocks, mean)
     if not cluster:
         for chunk in chunks:
-            rows = _augment(chunk.values, mean)
-            for b in blocks:
-                g = _block_scores(b, rows, chunk.weights)
+            for b, (a, e) in zip(blocks, maps.apply(chunk.values)):
+                g = _block_scores(b, a, e, chunk.weights)
                 meats[b.name] += g.T @ g
         return ScoreSums({k: 0.5 * (v + v.T) for k, v in meats.items()}, None)
 
@@ -258,9 +284,8 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
         if chunk.clusters is None:
             raise ValueError("cluster sums requested but the chunks carry no cluster labels")
         codes, n_groups = index.encode(chunk.clusters)
-        rows = _augment(chunk.values, mean)
-        for b in blocks:
-            g = _block_scores(b, rows, chunk.weights)
+        for b, (a, e) in zip(blocks, maps.apply(chunk.values)):
+            g = _block_scores(b, a, e, chunk.weights)
             acc = sums[b.name]
             if acc.shape[0] < n_groups:
                 acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], b.size))])

@@ -24,7 +24,8 @@ from sensiv.errors import InputError
 from sensiv.partial_id.discrete import discrete_bounds, instrumental_inequality
 from sensiv.partial_id.discrete_data import (counts_from_frame, from_counts, read_counts,
                                              tabulate)
-from sensiv.partial_id.discrete_programme import Programmes, is_defier, x_types
+from sensiv.partial_id.discrete_programme import Programmes, curve
+from sensiv.partial_id.discrete_types import is_defier, x_types
 
 ROOT = Path(__file__).resolve().parents[1]
 NUDGE = ROOT / "examples" / "nudge.csv"
@@ -150,9 +151,9 @@ def test_public_api_at_zero_budget_equals_balke_pearl():
 
 
 def test_balke_pearl_vitamin_a_example():
-    # Vitamin A supplementation trial (Sommer et al.) as analysed by Balke & Pearl (1997,
-    # JASA, Section "Example": the table of counts by assignment z, receipt x and survival y),
-    # printed bounds -0.1946 <= ACE <= 0.0054 — counts and bounds from memory.
+    # Balke & Pearl (1997, JASA), worked example: the vitamin A supplementation trial of
+    # Sommer et al. (counts by assignment z, receipt x and survival y), printed bounds
+    # -0.1946 <= ACE <= 0.0054 (four decimals) — counts and bounds from memory.
     counts = np.zeros((2, 2, 2), dtype=np.int64)
     counts[0, 0, 0], counts[0, 0, 1] = 74, 11514  # control arm: nobody received vitamin A
     counts[1, 0, 0], counts[1, 0, 1] = 34, 2385
@@ -170,8 +171,7 @@ def test_distributions_violating_the_instrumental_inequality(shape):
     # the outcome is 0 for every unit at z = 0 and 1 for a share t at z = 1.
     K, J, L = shape
     for t in (0.05, 0.3, 1.0):
-        share = np.full((K, J, L), 0.0)
-        share[:, 1, :] = 0.0
+        share = np.zeros((K, J, L))
         share[0, 0, 0] = 1.0
         share[1:, 0, 1] = t
         share[1:, 0, 0] = 1.0 - t
@@ -352,6 +352,32 @@ def test_three_level_treatment_reports_each_contrast():
     assert doc["contrast"] == {"level": 2, "base": 0} and len(doc["contrasts"]) == 2
 
 
+def test_adaptive_curve_equals_solving_every_point():
+    rng = np.random.default_rng(12)
+    grid = np.linspace(0.0, 1.0, 41)
+    solves = np.zeros(2, dtype=int)
+    for shape in ((2, 2, 2), (3, 2, 3), (2, 3, 2)):
+        K, J, L = shape
+        programmes = Programmes(shape, np.arange(L, dtype=float))
+        calls = []
+        solve_one = programmes.interval
+        programmes.interval = lambda *args: calls.append(args) or solve_one(*args)
+        for defiers in (1.0, 0.0):
+            programmes.set_data(rng.integers(0, 40, size=shape) + 1)
+            start = programmes.min_budget(defiers)
+            for c in range(1, J):
+                calls.clear()
+                adaptive = curve(programmes, c, grid, defiers, start)
+                n_adaptive = len(calls)
+                every = curve(programmes, c, grid, defiers, start, every_point=True)
+                solves += (n_adaptive, len(calls) - n_adaptive)
+                for a, b in zip(adaptive, every):
+                    assert (a is None) == (b is None)
+                    if a is not None:
+                        assert a == pytest.approx(b, abs=1e-8)
+    assert solves[0] < solves[1] / 2
+
+
 # --------------------------------------------------------------------------- the reduction
 def _compare_encodings(shape, n_tables, seed):
     K, J, L = shape
@@ -422,6 +448,20 @@ def test_counts_input_equals_individual_input():
     first = run(table_rows, reps=20, seed=9)
     second = run(table_counts, reps=20, seed=9)
     assert first.bounds == second.bounds and first.ci == second.ci
+
+
+def test_counts_file_formats_agree(tmp_path):
+    cells = pd.DataFrame({"arm": [1, 1, 1, 1, 2, 2, 2, 2], "took": [0, 0, 1, 1] * 2,
+                          "ok": [0, 1] * 4, "count": [10, 20, 5, 5, 8, 8, 12, 30]})
+    cells.to_csv(tmp_path / "c.csv", index=False)
+    cells.to_parquet(tmp_path / "c.parquet")
+    roles = {"outcome": "ok", "treatment": "took", "instrument": "arm"}
+    first = read_counts(tmp_path / "c.csv", **roles)
+    second = read_counts(tmp_path / "c.parquet", **roles)
+    np.testing.assert_array_equal(first.counts, second.counts)
+    assert first.instrument_levels == (1.0, 2.0) and first.n == 98
+    with pytest.raises(InputError, match="does not exist"):
+        read_counts(tmp_path / "missing.csv", **roles)
 
 
 def test_bootstrap_is_deterministic_given_the_seed():

@@ -1,8 +1,10 @@
 r"""Bounds on the effect of a discrete treatment when a randomised discrete instrument may
 change the outcome directly, with a budget on how many units it does so for.
 
-The model and its programmes are in :mod:`sensiv.partial_id.discrete_programme`; the counts
-tables in :mod:`sensiv.partial_id.discrete_data`.  In words: every unit has a treatment for
+The response types and their exact reduction are in :mod:`sensiv.partial_id.discrete_types`,
+the cvxpy programmes in :mod:`sensiv.partial_id.discrete_programme`, the counts tables in
+:mod:`sensiv.partial_id.discrete_data` and the result objects in
+:mod:`sensiv.partial_id.discrete_results`.  In words: every unit has a treatment for
 each level of ``Z`` and an outcome for each pair (treatment, ``Z``); ``Z`` is randomised; the
 budget ``ε`` caps the share of units whose outcome ``Z`` changes for some treatment level.  The
 effect of treatment level ``c`` against the base (lowest) level is
@@ -30,14 +32,20 @@ Examples
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 
 import numpy as np
 
 from sensiv.errors import InputError
-from sensiv.partial_id.discrete_data import CountsTable, _plain
-from sensiv.partial_id.discrete_programme import Enumeration, Programmes
-from sensiv.results import Interval, format_number, json_number
+from sensiv.partial_id.discrete_data import CountsTable, plain_number
+from sensiv.partial_id.discrete_programme import Programmes, curve
+from sensiv.partial_id.discrete_results import (CAUTION, Bootstrap, ContrastBounds,
+                                                CurvePoint, DiscreteBounds,
+                                                InstrumentalInequality)
+from sensiv.partial_id.discrete_types import Enumeration
+from sensiv.results import Interval
+
+__all__ = ["CAUTION", "Bootstrap", "ContrastBounds", "CurvePoint", "DiscreteBounds",
+           "InstrumentalInequality", "discrete_bounds", "instrumental_inequality"]
 
 DEFAULT_BUDGET = 0.1
 DEFAULT_POINTS = 51
@@ -49,188 +57,6 @@ CURVE_FLOOR = 0.1
 CURVE_MARGIN = 1.25
 """... and this far beyond the smallest fitting budget and the breakdown budget."""
 INEQUALITY_TOLERANCE = 1e-12  # round-off of shares computed from counts
-
-CAUTION = ("Caution: these bounds hold only under the stated assumptions — a randomised "
-           "instrument and at most the stated share of units whose outcome the instrument "
-           "changes directly (and, if assumed, the monotonicity of the treatment in the "
-           "instrument). A model that fits the data, or an instrumental inequality that holds, "
-           "does not prove the instrument valid.")
-
-
-# --------------------------------------------------------------------------- results
-@dataclass(frozen=True, slots=True)
-class InstrumentalInequality:
-    """Pearl's (1995) inequality: ``value = max_x Σ_y max_z P(y, x | z)``, which a valid
-    instrument keeps at or below 1; ``treatment_level`` is the maximising ``x``."""
-
-    value: float
-    holds: bool
-    treatment_level: float
-
-    def to_dict(self) -> dict:
-        return {"value": self.value, "holds": self.holds,
-                "treatment_level": _plain(self.treatment_level)}
-
-
-@dataclass(frozen=True, slots=True)
-class CurvePoint:
-    """Bounds at one budget; ``bounds`` is ``None`` where the model does not fit the data."""
-
-    budget: float
-    bounds: Interval | None
-
-    def to_dict(self) -> dict:
-        low, high = self.bounds.to_list() if self.bounds is not None else (None, None)
-        return {"budget": self.budget, "lower": low, "upper": high}
-
-
-@dataclass(frozen=True, slots=True)
-class ContrastBounds:
-    """Bounds on ``E[Y(level) − Y(base)]`` (averaged over ``P(z)``) with their inference."""
-
-    level: float
-    base: float
-    bounds: Interval | None
-    se: tuple[float, float] | None
-    ci: Interval | None
-    curve: tuple[CurvePoint, ...]
-    breakdown_budget: float | None
-
-    def to_dict(self) -> dict:
-        return {
-            "level": _plain(self.level),
-            "base": _plain(self.base),
-            "bounds": self.bounds.to_list() if self.bounds is not None else None,
-            "se": [json_number(s) for s in self.se] if self.se is not None else None,
-            "ci": self.ci.to_list() if self.ci is not None else None,
-            "curve": [point.to_dict() for point in self.curve],
-            "breakdown_budget": self.breakdown_budget,
-        }
-
-
-@dataclass(frozen=True, slots=True)
-class Bootstrap:
-    """Multinomial bootstrap of the counts: ``used`` replicates gave bounds, ``infeasible``
-    ones did not fit the model at the budget, ``skipped`` ones left a level of ``Z`` empty."""
-
-    reps: int
-    seed: int
-    used: int
-    infeasible: int
-    skipped: int
-
-    def to_dict(self) -> dict:
-        return {"reps": self.reps, "seed": self.seed, "used": self.used,
-                "infeasible": self.infeasible, "skipped": self.skipped}
-
-
-@dataclass(frozen=True, slots=True)
-class DiscreteBounds:
-    """Result of :func:`discrete_bounds`.
-
-    ``bounds``, ``ci``, ``curve`` and ``breakdown_budget`` describe the focus contrast: the
-    highest treatment level against the lowest (the only one for a binary treatment);
-    ``contrasts`` holds every level against the lowest.
-    """
-
-    table: CountsTable
-    budget: float
-    monotone: bool
-    defier_budget: float
-    threshold: float
-    confidence_level: float
-    contrasts: tuple[ContrastBounds, ...]
-    min_budget: float | None
-    min_defier_budget: float | None
-    inequality: InstrumentalInequality
-    bootstrap: Bootstrap | None
-    notes: tuple[str, ...] = field(default=())
-
-    @property
-    def focus(self) -> ContrastBounds:
-        return self.contrasts[-1]
-
-    @property
-    def bounds(self) -> Interval | None:
-        return self.focus.bounds
-
-    @property
-    def ci(self) -> Interval | None:
-        return self.focus.ci
-
-    @property
-    def curve(self) -> tuple[CurvePoint, ...]:
-        return self.focus.curve
-
-    @property
-    def breakdown_budget(self) -> float | None:
-        return self.focus.breakdown_budget
-
-    @property
-    def caution(self) -> str:
-        return CAUTION
-
-    def estimand(self) -> str:
-        t, c = self.table, self.focus
-        z = t.instrument
-        return (f"sum over k of P({z}=k) * E[{t.outcome}({t.treatment}={_plain(c.level)}, "
-                f"{z}=k) - {t.outcome}({t.treatment}={_plain(c.base)}, {z}=k)]")
-
-    def assumptions(self) -> list[str]:
-        t = self.table
-        z_order = " < ".join(str(_plain(v)) for v in t.instrument_levels)
-        out = [
-            f"{t.instrument} is randomised: independent of every unit's potential treatments "
-            "and potential outcomes",
-            f"exclusion relaxed by a budget: at most a share {self.budget:g} of units have an "
-            f"outcome that {t.instrument} changes directly for some level of {t.treatment} "
-            "(0 would be the exclusion restriction)",
-            f"the effect averages {t.instrument}'s direct effect over its observed "
-            f"distribution: {self.estimand()}",
-        ]
-        if tuple(t.outcome_levels) != (0.0, 1.0):
-            levels = ", ".join(str(_plain(v)) for v in t.outcome_levels)
-            out.append(f"{t.outcome}'s levels ({levels}) are taken as numbers: the effect is "
-                       f"on the mean of {t.outcome}, and {t.outcome} takes no other values")
-        if self.monotone:
-            out.append(f"monotonicity: {t.treatment} never falls as {t.instrument} moves up "
-                       f"the order {z_order}, except for at most a share "
-                       f"{self.defier_budget:g} of units (defiers)")
-        out.append("units are independent draws from the population; the confidence interval "
-                   "comes from a multinomial bootstrap of the counts and is approximate "
-                   "(bounds are maxima of linear functions of the data, where the bootstrap "
-                   "can under-cover when two of them nearly tie)")
-        return out
-
-    def to_dict(self) -> dict:
-        focus = self.focus.to_dict()
-        return {
-            "bounds": focus["bounds"],
-            "ci": focus["ci"],
-            "se": focus["se"],
-            "curve": focus["curve"],
-            "breakdown_budget": focus["breakdown_budget"],
-            "min_budget": self.min_budget,
-            "inequality_holds": self.inequality.holds,
-            "instrumental_inequality": self.inequality.to_dict(),
-            "contrast": {"level": focus["level"], "base": focus["base"]},
-            "contrasts": [c.to_dict() for c in self.contrasts],
-            "estimand": self.estimand(),
-            "budget": self.budget,
-            "monotone": self.monotone,
-            "defier_budget": self.defier_budget if self.monotone else None,
-            "min_defier_budget": self.min_defier_budget,
-            "threshold": self.threshold,
-            "confidence_level": self.confidence_level,
-            "bootstrap": self.bootstrap.to_dict() if self.bootstrap is not None else None,
-            "data": self.table.to_dict(),
-            "notes": list(self.notes),
-            "assumptions": self.assumptions(),
-            "caution": CAUTION,
-        }
-
-    def __str__(self) -> str:
-        return summary(self)
 
 
 # --------------------------------------------------------------------------- computations
@@ -341,7 +167,7 @@ def discrete_bounds(table: CountsTable, budget: float = DEFAULT_BUDGET, *,
     Parameters
     ----------
     table : CountsTable
-        Counts ``n[z, x, y]``: 2–4 instrument levels, 2–3 treatment levels, 2–4 outcome levels.
+        Counts ``n[z, x, y]``: 2–4 instrument, 2–3 treatment and 2–4 outcome levels.
     budget : float in [0, 1]
         ``ε``: largest share of units whose outcome the instrument changes directly.
     monotone : bool
@@ -399,48 +225,60 @@ def discrete_bounds(table: CountsTable, budget: float = DEFAULT_BUDGET, *,
     end = max_budget if max_budget is not None else _curve_end(
         budget, min_budget, breakdowns.values())
     grid = np.linspace(0.0, end, points)
-    curves = {c: tuple(CurvePoint(float(e), _interval(programmes.interval(c, e, defiers)))
-                       for e in grid) for c in contrasts}
+    curves = {c: tuple(CurvePoint(float(e), _interval(pair)) for e, pair in
+                       zip(grid, curve(programmes, c, grid, defiers, min_budget)))
+              for c in contrasts}
 
     notes = _fit_notes(table, budget, monotone, defier_budget, min_budget, min_defiers,
                        inequality)
-    boot = None
-    replicates = np.full((0, J - 1, 2), np.nan)
-    if reps and estimates[1] is not None:
+    if estimates[J - 1] is None and min_budget is not None and budget >= min_budget:
+        notes.append(f"the solver found no fit at budget {budget:g}, on the edge of the "
+                     f"smallest fitting budget {min_budget:.6g}; raise the budget slightly")
+    boot, spreads = None, {c: None for c in contrasts}
+    if reps and estimates[J - 1] is not None:
         seed = int(np.random.SeedSequence().entropy % 2**32) if seed is None else int(seed)
-        replicates, infeasible, skipped = _bootstrap(programmes, table.counts, budget,
-                                                     defiers, reps, seed, progress)
-        used = int(np.isfinite(replicates[:, 0, 0]).sum())
-        boot = Bootstrap(reps, seed, used, infeasible, skipped)
-        if infeasible:
-            notes.append(f"{infeasible} of {reps} bootstrap replicates do not fit the model at "
-                         f"budget {budget:g}; standard errors use the {used} that do")
-        if skipped:
-            notes.append(f"{skipped} of {reps} bootstrap replicates left a level of "
-                         f"{table.instrument} empty and were skipped")
+        boot, spreads = _inference(programmes, table, budget, defiers, reps, seed, progress,
+                                   notes)
     elif reps:
         notes.append("no confidence interval: the model does not fit the data at this budget")
 
     results = []
     for c in contrasts:
-        bounds = _interval(estimates[c])
-        se = ci = None
-        if bounds is not None and boot is not None:
-            ok = replicates[np.isfinite(replicates[:, c - 1, 0]), c - 1]
-            if len(ok) >= 2:
-                from sensiv.inference import imbens_manski
+        bounds, se, ci = _interval(estimates[c]), spreads[c], None
+        if bounds is not None and se is not None:
+            from sensiv.inference import imbens_manski
 
-                se = (float(ok[:, 0].std(ddof=1)), float(ok[:, 1].std(ddof=1)))
-                ci = imbens_manski(bounds.low, bounds.high, *se, confidence_level)
-            elif c == J - 1:
-                notes.append("no confidence interval: fewer than 2 bootstrap replicates fit "
-                             "the model")
+            ci = imbens_manski(bounds.low, bounds.high, *se, confidence_level)
         results.append(ContrastBounds(float(table.treatment_levels[c]),
                                       float(table.treatment_levels[0]), bounds, se, ci,
                                       curves[c], breakdowns[c]))
     return DiscreteBounds(table, budget, bool(monotone), defier_budget, threshold,
                           confidence_level, tuple(results), min_budget, min_defiers,
                           inequality, boot, tuple(notes))
+
+
+def _inference(programmes, table, budget, defiers, reps, seed, progress, notes):
+    """Bootstrap tallies and the standard errors ``(se_lower, se_upper)`` per contrast
+    (``None`` with fewer than 2 usable replicates); notes are appended to ``notes``."""
+    J = table.shape[1]
+    replicates, infeasible, skipped = _bootstrap(programmes, table.counts, budget, defiers,
+                                                 reps, seed, progress)
+    usable = np.isfinite(replicates[:, 0, 0])
+    used = int(usable.sum())
+    if infeasible:
+        notes.append(f"{infeasible} of {reps} bootstrap replicates do not fit the model at "
+                     f"budget {budget:g}; standard errors use the {used} that do")
+    if skipped:
+        notes.append(f"{skipped} of {reps} bootstrap replicates left a level of "
+                     f"{table.instrument} empty and were skipped")
+    spreads = {}
+    for c in range(1, J):
+        ok = replicates[usable, c - 1]
+        spreads[c] = ((float(ok[:, 0].std(ddof=1)), float(ok[:, 1].std(ddof=1)))
+                      if used >= 2 else None)
+    if used < 2:
+        notes.append("no confidence interval: fewer than 2 bootstrap replicates fit the model")
+    return Bootstrap(reps, seed, used, infeasible, skipped), spreads
 
 
 def _interval(pair: tuple[float, float] | None) -> Interval | None:
@@ -459,7 +297,7 @@ def _fit_notes(table, budget, monotone, defier_budget, min_budget, min_defiers,
             f"the instrumental inequality fails (max over {table.treatment} of sum over "
             f"{table.outcome} of max over {table.instrument} of P(y, x | z) = "
             f"{inequality.value:.4g} > 1, at {table.treatment} = "
-            f"{_plain(inequality.treatment_level)}): the data contradict the exclusion "
+            f"{plain_number(inequality.treatment_level)}): the data contradict the exclusion "
             "restriction for a randomised instrument (sampling noise aside)")
     if min_budget is None:
         notes.append(
@@ -476,60 +314,3 @@ def _fit_notes(table, budget, monotone, defier_budget, min_budget, min_defiers,
     return notes
 
 
-# --------------------------------------------------------------------------- text summary
-def summary(result: DiscreteBounds) -> str:
-    """Readable plain-text report of a :class:`DiscreteBounds` result."""
-    t = result.table
-    pct = f"{100 * result.confidence_level:g}%"
-    levels = " / ".join(
-        f"{name} {{{', '.join(str(_plain(v)) for v in values)}}}"
-        for name, values in ((t.instrument, t.instrument_levels),
-                             (t.treatment, t.treatment_levels),
-                             (t.outcome, t.outcome_levels)))
-    lines = [
-        f"Discrete bounds: effect of {t.treatment} on {t.outcome}, instrument {t.instrument}",
-        f"Data: {t.description}, n = {t.n} ({t.n_dropped} rows dropped for missing values); "
-        f"levels {levels}",
-        f"Estimand: {result.estimand()}",
-        f"Budget for direct effects of {t.instrument}: {result.budget:g}"
-        + (f"; monotone, defier budget {result.defier_budget:g}" if result.monotone else ""),
-        "",
-    ]
-    header = f"{'contrast':<12}{'bounds':>26}{pct + ' CI':>26}{'breakdown budget':>20}"
-    lines.append(header)
-    for c in result.contrasts:
-        bounds = str(c.bounds) if c.bounds is not None else "empty (no fit)"
-        ci = str(c.ci) if c.ci is not None else "n/a"
-        breakdown = format_number(c.breakdown_budget) if c.breakdown_budget is not None \
-            else "never"
-        lines.append(f"{f'{_plain(c.level)} vs {_plain(c.base)}':<12}{bounds:>26}{ci:>26}"
-                     f"{breakdown:>20}")
-    ineq = result.inequality
-    lines += [
-        "",
-        f"Breakdown: smallest budget whose bounds contain {result.threshold:g}.",
-        f"Instrumental inequality (Pearl 1995): {ineq.value:.4g} "
-        f"{'<=' if ineq.holds else '>'} 1, {'holds' if ineq.holds else 'FAILS'}.",
-        "Smallest budget that fits the data: "
-        + (format_number(result.min_budget) if result.min_budget is not None else "none"),
-    ]
-    if result.min_defier_budget is not None:
-        lines.append(f"Smallest defier share that fits the data: "
-                     f"{format_number(result.min_defier_budget)}")
-    if result.bootstrap is not None:
-        b = result.bootstrap
-        lines.append(f"Bootstrap: {b.reps} replicates (seed {b.seed}), {b.used} used, "
-                     f"{b.infeasible} without a fit, {b.skipped} skipped.")
-    lines += ["", "Curve (focus contrast):", f"{'budget':>10}{'lower':>12}{'upper':>12}"]
-    step = max(1, (len(result.curve) - 1) // 10)
-    shown = list(result.curve[::step])
-    if shown[-1] is not result.curve[-1]:
-        shown.append(result.curve[-1])
-    for point in shown:
-        low, high = ((format_number(point.bounds.low), format_number(point.bounds.high))
-                     if point.bounds is not None else ("no fit", "no fit"))
-        lines.append(f"{format_number(point.budget):>10}{low:>12}{high:>12}")
-    lines += [f"Note: {note}" for note in result.notes]
-    lines += ["", "Assumptions:"] + [f"- {a}" for a in result.assumptions()]
-    lines += ["", CAUTION]
-    return "\n".join(lines)

@@ -99,13 +99,13 @@ class CountsTable:
             "treatment": self.treatment,
             "instrument": self.instrument,
             "levels": {
-                "instrument": [_plain(v) for v in self.instrument_levels],
-                "treatment": [_plain(v) for v in self.treatment_levels],
-                "outcome": [_plain(v) for v in self.outcome_levels],
+                "instrument": [plain_number(v) for v in self.instrument_levels],
+                "treatment": [plain_number(v) for v in self.treatment_levels],
+                "outcome": [plain_number(v) for v in self.outcome_levels],
             },
             "counts": [
-                {"instrument": _plain(z), "treatment": _plain(x), "outcome": _plain(y),
-                 "count": int(self.counts[k, j, m])}
+                {"instrument": plain_number(z), "treatment": plain_number(x),
+                 "outcome": plain_number(y), "count": int(self.counts[k, j, m])}
                 for k, z in enumerate(self.instrument_levels)
                 for j, x in enumerate(self.treatment_levels)
                 for m, y in enumerate(self.outcome_levels)
@@ -115,7 +115,7 @@ class CountsTable:
         }
 
 
-def _plain(value: float) -> float | int:
+def plain_number(value: float) -> float | int:
     """A level for JSON and text: integral values as ``int``."""
     return int(value) if float(value).is_integer() else float(value)
 
@@ -127,7 +127,7 @@ def _check_levels(levels: np.ndarray, role: str, name: str, where: str,
     count = len(levels)
     if count > limit:
         more = "at least " if at_least else ""
-        shown = ", ".join(str(_plain(v)) for v in levels[:6]) + (", ..." if count > 6 else "")
+        shown = ", ".join(str(plain_number(v)) for v in levels[:6]) + (", ..." if count > 6 else "")
         raise InputError(
             f"{role} {name!r} in {where} takes {more}{count} distinct values ({shown}); the "
             f"discrete bounds handle a {role} with 2 to {limit} levels: recode {option} into "
@@ -136,7 +136,7 @@ def _check_levels(levels: np.ndarray, role: str, name: str, where: str,
                else "")
         )
     if count < 2:
-        shown = str(_plain(levels[0])) if count else "no value"
+        shown = str(plain_number(levels[0])) if count else "no value"
         raise InputError(
             f"{role} {name!r} in {where} takes a single value ({shown}); the discrete bounds "
             f"need a {role} with 2 to {limit} levels: check the {option} column"
@@ -169,7 +169,7 @@ def _table(z: np.ndarray, x: np.ndarray, y: np.ndarray, weights: np.ndarray,
     per_z = counts.sum(axis=(1, 2))
     empty = [levels[0][k] for k in range(shape[0]) if per_z[k] == 0]
     if empty:
-        listed = ", ".join(str(_plain(v)) for v in empty)
+        listed = ", ".join(str(plain_number(v)) for v in empty)
         raise InputError(
             f"instrument {instrument!r} in {where} has level(s) {listed} with no observations "
             "(all counts 0); P(y, x | z) is undefined there: drop those rows or merge the "
@@ -281,8 +281,8 @@ def counts_from_frame(frame: pd.DataFrame, *, outcome: str, treatment: str, inst
             row = int(np.argmax(mask))
             raise InputError(
                 f"count column {count!r} in {description} has {int(mask.sum())} {what} "
-                f"value(s) (e.g. {_plain(counts[row])} at data row {row + 1}); counts must be "
-                "whole numbers 0, 1, 2, ...: fix the table (shares or weights are not counts)"
+                f"value(s) (e.g. {plain_number(counts[row])} at data row {row + 1}); counts must "
+                "be whole numbers 0, 1, 2, ...: fix the table (shares or weights are not counts)"
             )
     return _table(arrays["instrument"], arrays["treatment"], arrays["outcome"],
                   counts.astype(np.int64), (outcome, treatment, instrument), 0, description)

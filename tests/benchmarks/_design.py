@@ -6,8 +6,8 @@ the instrument (so robust standard errors differ from classic ones).
 
 Rows are generated in blocks, each from its own seeded stream, so a file written block by
 block holds exactly the rows that :func:`frame` returns for the same ``n`` and ``block``.
-Only numpy and pandas are imported here, and only when a function is called, so that a
-parent process that merely orchestrates children stays small.
+numpy, pandas and sensiv are imported only when a function is called, so that a parent
+process that merely orchestrates children stays small.
 """
 
 from __future__ import annotations
