@@ -290,7 +290,7 @@ def prior(
 
 # Commands of the partial-identification layer live in their own modules and register
 # themselves on ``app`` when imported.
-from sensiv import cli_corrbound, cli_discrete  # noqa: E402,F401
+from sensiv import cli_calibrate, cli_corrbound, cli_discrete, cli_published  # noqa: E402,F401
 
 
 def main() -> None:

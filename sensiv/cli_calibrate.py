@@ -1,0 +1,3 @@
+"""Command `sensiv calibrate` (registered on the shared typer app when imported)."""
+
+from __future__ import annotations
