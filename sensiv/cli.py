@@ -299,4 +299,8 @@ def main() -> None:
 
 
 if __name__ == "__main__":
-    main()
+    # Run through the imported module so that the commands registered by the cli_* modules
+    # (which import ``sensiv.cli``, not ``__main__``) are on the app that runs.
+    from sensiv.cli import main as _main
+
+    _main()

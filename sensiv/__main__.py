@@ -1,0 +1,5 @@
+"""``python -m sensiv`` runs the command line."""
+
+from sensiv.cli import main
+
+main()
