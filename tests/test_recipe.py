@@ -1,0 +1,124 @@
+"""Recipes: schema validation with key and line, and runs that match the library calls.
+
+Common practice, no source: the numbers themselves are checked elsewhere; here a recipe must
+give exactly what the corresponding library call gives.
+"""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+
+from sensiv import bounds, iv
+from sensiv.data import Spec, from_file
+from sensiv.errors import InputError
+from sensiv.recipe import parse_recipe, run_recipe
+
+ROOT = Path(__file__).resolve().parents[1]
+
+GOOD = """\
+title = "Irrigation (INVENTED data)"
+seed = 5
+
+[data]
+path = "irrigation.csv"
+outcome = "maize_yield"
+treatments = ["irrigation_hours"]
+instruments = ["height_m"]
+controls = ["plot_ha", "soil"]
+cluster = "village"
+
+[inference]
+se = "cluster"
+
+[[analysis]]
+kind = "fit"
+
+[[analysis]]
+kind = "sweep"
+direct = ["-0.005:0.005"]
+points = 11
+"""
+
+
+@pytest.fixture()
+def folder(tmp_path) -> Path:
+    shutil.copy(ROOT / "examples" / "irrigation.csv", tmp_path / "irrigation.csv")
+    return tmp_path
+
+
+def write(folder: Path, text: str) -> Path:
+    path = folder / "recipe.toml"
+    path.write_text(text)
+    return path
+
+
+def test_single_study_recipe_runs_like_the_library(folder):
+    recipe = parse_recipe(write(folder, GOOD))
+    assert [s.name for s in recipe.studies] == ["study1"]
+    run = run_recipe(recipe)
+    assert [r.analysis.kind for r in run.runs] == ["fit", "sweep"]
+    spec = Spec("maize_yield", ("irrigation_hours",), ("height_m",),
+                controls=("plot_ha", "soil"), cluster="village")
+    direct = bounds.sweep(from_file(folder / "irrigation.csv", spec), direct=["-0.005:0.005"],
+                          points=11)
+    assert run.runs[1].result.to_dict() == direct.to_dict()
+    fit = iv.fit(from_file(folder / "irrigation.csv", spec))
+    assert run.runs[0].result.to_dict() == fit.to_dict()
+
+
+@pytest.mark.parametrize("change,fragments", [
+    (("points = 11", "pointz = 11"), ("unknown key 'pointz'", "line 21")),
+    (("points = 11", "points = \"many\""), ("'points'", "an integer", "line 21")),
+    (('kind = "fit"', 'kind = "fitt"'), ("'fitt'", "line 16")),
+    (('kind = "sweep"', 'kind = "sweeep"'), ("'sweeep'", "line 19")),
+    (('direct = ["-0.005:0.005"]', 'direct = [1, 2]'), ("list of strings", "line 20")),
+    (('path = "irrigation.csv"', 'path = "nowhere.csv"'), ("nowhere.csv", "does not exist",
+                                                           "line 5")),
+    (('se = "cluster"', 'se = "hc1"'), ("hc1", "line 13")),
+    (("seed = 5", "seed = 5.5"), ("'seed'", "integer", "line 2")),
+    (('title = "Irrigation (INVENTED data)"', "title = [1"), ("not valid TOML",)),
+])
+def test_bad_recipes_name_key_and_line(folder, change, fragments):
+    text = GOOD.replace(*change)
+    with pytest.raises(InputError) as err:
+        parse_recipe(write(folder, text))
+    for fragment in fragments:
+        assert fragment in str(err.value)
+
+
+def test_missing_recipe_file(tmp_path):
+    with pytest.raises(InputError, match="does not exist"):
+        parse_recipe(tmp_path / "none.toml")
+
+
+def test_several_studies_and_data_free_kinds_need_no_data(folder):
+    text = """\
+[[study]]
+name = "a"
+[study.data]
+path = "irrigation.csv"
+outcome = "maize_yield"
+treatments = ["irrigation_hours"]
+instruments = ["height_m"]
+[[study.analysis]]
+kind = "fit"
+
+[[study]]
+name = "b"
+[[study.analysis]]
+kind = "sweep"
+direct = ["0:0"]
+"""
+    with pytest.raises(InputError, match="needs a \\[data\\] table"):
+        parse_recipe(write(folder, text))
+    two = text.replace('name = "b"', 'name = "a"').replace('kind = "sweep"\ndirect = ["0:0"]',
+                                                          'kind = "fit"')
+    with pytest.raises(InputError, match="distinct"):
+        parse_recipe(write(folder, two.replace("[[study]]\nname = \"a\"\n[[study.analysis]]",
+                                               "[[study]]\nname = \"a\"\n[study.data]\n"
+                                               "path = \"irrigation.csv\"\noutcome = \"y\"\n"
+                                               "treatments = [\"x\"]\ninstruments = [\"z\"]\n"
+                                               "[[study.analysis]]")))
