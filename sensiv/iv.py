@@ -206,7 +206,9 @@ def solve_linear(gram: np.ndarray, y: np.ndarray, regressors: np.ndarray,
     return LinearFit(params, 0.5 * (bread + bread.T), fitted, residual, chol)
 
 
-def _small_factor(se: str, small: bool, n: int, k: int, n_clusters: int | None) -> float:
+def small_factor(se: str, small: bool, n: int, k: int, n_clusters: int | None) -> float:
+    """Finite-sample factor of a covariance: ``n/(n−k)``, or ``G/(G−1)·(n−1)/(n−k)`` for
+    clusters; 1 without ``small``."""
     if not small:
         return 1.0
     if se == "cluster":
@@ -483,7 +485,7 @@ def _covariance(pieces: Pieces, fit: LinearFit, meat: np.ndarray | None, se: str
     sigma2 = None
     if se == "classic":
         sigma2 = float(fit.residual @ pieces.gram @ fit.residual) / n
-    return sandwich(se, fit.bread, sigma2, meat, _small_factor(se, small, n, k, n_clusters))
+    return sandwich(se, fit.bread, sigma2, meat, small_factor(se, small, n, k, n_clusters))
 
 
 def first_stage_covariance(pieces: Pieces, meat: np.ndarray | None, se: str, small: bool,
@@ -497,7 +499,7 @@ def first_stage_covariance(pieces: Pieces, meat: np.ndarray | None, se: str, sma
     e = pieces.first_residuals
     k_e = e.shape[1]
     k_q = pieces.design.instrument_set.shape[1]
-    factor = _small_factor(se, small, pieces.n, k_q, n_clusters)
+    factor = small_factor(se, small, pieces.n, k_q, n_clusters)
     if se == "classic":
         sigma = (e.T @ pieces.gram @ e) / pieces.n
         cov = np.einsum("ef,ab->eafb", sigma, bread)
