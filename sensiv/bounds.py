@@ -327,7 +327,7 @@ def build_core(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit, j: i
     k = pieces.tsls.params.size
     se = result.se_type
     n_clusters = sums.n_clusters if sums is not None else None
-    factor = iv._small_factor(se, result.small, n, k, n_clusters)
+    factor = iv.small_factor(se, result.small, n, k, n_clusters)
     row = len(pieces.design.control_names) + j
     if se == "classic":
         quad = pieces.tsls.bread[row, row] * (maps.T @ pieces.gram @ maps) / n
