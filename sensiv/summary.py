@@ -102,8 +102,8 @@ def sweep_summary(res) -> str:
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
         lo_t = "none" if lo is None else format_number(lo)
         hi_t = "none" if hi is None else format_number(hi)
-        lines.append(f"  {z} alone: the interval reaches {b.threshold:g} at a direct effect of "
-                     f"{lo_t} (below zero) or {hi_t} (above zero)")
+        lines.append(f"  {z} alone: an end of the interval crosses {b.threshold:g} at a direct "
+                     f"effect of {lo_t} (nearest below zero) or {hi_t} (nearest above zero)")
     if res.fit.overid is not None:
         o = res.fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "
