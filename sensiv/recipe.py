@@ -355,6 +355,20 @@ def _run_one(analysis: Analysis, study: Study, source, seed: int | None) -> Any:
                                threshold=o.get("threshold", 0.0), reps=o.get("reps", 999),
                                points=o.get("points", 51), seed=seed,
                                confidence_level=common["confidence_level"], progress=False)
+    if analysis.kind == "published":
+        from sensiv.published import published_analysis
+
+        numbers = {k: o[k] for k in ("estimate", "se", "first_stage", "first_stage_se",
+                                     "first_stage_f", "reduced_form", "reduced_form_se", "n")
+                   if k in o}
+        missing = [k for k in ("estimate", "se", "first_stage", "direct") if k not in o]
+        if missing:
+            raise InputError(f"published analysis of study '{study.name}' lacks "
+                             f"{', '.join(missing)}; add them to its [[analysis]] table")
+        return published_analysis(**numbers, direct=o["direct"], prior=o.get("prior"),
+                                  threshold=o.get("threshold", 0.0),
+                                  points=o.get("points", bounds.DEFAULT_POINTS),
+                                  confidence_level=common["confidence_level"])
     raise InputError(f"analysis kind '{analysis.kind}' cannot run yet in this version")
 
 

@@ -122,3 +122,28 @@ direct = ["0:0"]
                                                "path = \"irrigation.csv\"\noutcome = \"y\"\n"
                                                "treatments = [\"x\"]\ninstruments = [\"z\"]\n"
                                                "[[study.analysis]]")))
+
+
+def test_published_study_needs_no_data(folder):
+    from sensiv.published import published_analysis
+
+    text = """\
+[[study]]
+name = "table"
+[[study.analysis]]
+kind = "published"
+estimate = 0.75
+se = 0.25
+first_stage = 4.2
+first_stage_se = 0.6
+reduced_form = 3.15
+reduced_form_se = 0.95
+direct = ["-0.25:0.25rf"]
+"""
+    run = run_recipe(parse_recipe(write(folder, text)))
+    direct = published_analysis(estimate=0.75, se=0.25, first_stage=4.2, first_stage_se=0.6,
+                                reduced_form=3.15, reduced_form_se=0.95,
+                                direct=["-0.25:0.25rf"])
+    assert run.runs[0].result.to_dict() == direct.to_dict()
+    with pytest.raises(InputError, match="lacks first_stage"):
+        run_recipe(parse_recipe(write(folder, text.replace("first_stage = 4.2\n", ""))))
