@@ -1,3 +1,57 @@
-"""Command `sensiv calibrate` (registered on the shared typer app when imported)."""
+"""Command `sensiv calibrate` (registered on the shared typer app when imported).
+
+Reference magnitudes for a plausible direct effect: the scale of the reduced form, covariate
+benchmarks and a zero-first-stage estimate (van Kippersluis & Rietveld 2018).  Parses the
+options, calls :func:`sensiv.calibrate.calibrate`, prints or writes.
+"""
 
 from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from sensiv.cli import (CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, SE, SMALL,
+                        TREATMENT, WEIGHT, app, emit, guarded, spec_from_options)
+
+GROUP = typer.Option(None, "--group", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
+NO_FIRST_STAGE_GROUP = typer.Option(None, "--no-first-stage-group", help="0/1 column; rows with 1 form a subgroup where the instrument is believed not to move the treatment (van Kippersluis & Rietveld 2018).")
+
+
+@app.command()
+@guarded
+def calibrate(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    control: Optional[list[str]] = CONTROL,
+    se: Optional[str] = SE,
+    cluster: Optional[str] = CLUSTER,
+    weight: Optional[str] = WEIGHT,
+    level: float = LEVEL,
+    small: bool = SMALL,
+    constant: bool = CONSTANT,
+    group: Optional[list[str]] = GROUP,
+    no_first_stage_group: Optional[str] = NO_FIRST_STAGE_GROUP,
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Also write calibrate.json and calibrate.md here."),
+) -> None:
+    """How large a direct effect is plausible: reduced-form scale, covariate benchmarks and a
+    zero-first-stage estimate, each turned into options for sweep and prior."""
+    from sensiv import calibrate as calibration
+    from sensiv import iv
+    from sensiv.report import to_json, write_bundle
+
+    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
+    iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    groups = calibration.parse_groups(group or [])
+    result = calibration.calibrate(data, spec, groups=groups,
+                                   no_first_stage_group=no_first_stage_group, se=se,
+                                   confidence_level=level, small=small)
+    document = result.to_dict()
+    if out is not None:
+        write_bundle(out, {"calibrate.json": to_json(document),
+                           "calibrate.md": calibration.calibration_markdown(result)})
+    emit(document, str(result), as_json)
