@@ -308,7 +308,7 @@ def _spec(data: Mapping):
                 weight=data.get("weight"), constant=data.get("constant", True))
 
 
-def _run_one(analysis: Analysis, study: Study, source, seed: int | None) -> Any:
+def _run_one(analysis: Analysis, study: Study, source, frame, seed: int | None) -> Any:
     from sensiv import bounds, iv
 
     o = analysis.options
@@ -355,6 +355,17 @@ def _run_one(analysis: Analysis, study: Study, source, seed: int | None) -> Any:
                                threshold=o.get("threshold", 0.0), reps=o.get("reps", 999),
                                points=o.get("points", 51), seed=seed,
                                confidence_level=common["confidence_level"], progress=False)
+    if analysis.kind == "calibrate":
+        from sensiv.calibrate import calibrate
+
+        groups = o.get("groups", {})
+        for name, columns in groups.items():
+            if not (isinstance(columns, list) and all(isinstance(c, str) for c in columns)):
+                raise InputError(f"groups.{name} of study '{study.name}' must be a list of "
+                                 "column names")
+        data = frame if o.get("no_first_stage_group") else source
+        return calibrate(data, _spec(study.data), groups=groups or None,
+                         no_first_stage_group=o.get("no_first_stage_group"), **common)
     if analysis.kind == "published":
         from sensiv.published import published_analysis
 
@@ -378,12 +389,12 @@ def run_recipe(recipe: Recipe) -> RunResult:
 
     runs = []
     for study in recipe.studies:
-        source = None
+        source = frame = None
         if study.data is not None:
             frame = read_table(study.data["path"])
             source = from_frame(frame, _spec(study.data))
         for index, analysis in enumerate(study.analyses, start=1):
             seed = analysis.seed if analysis.seed is not None else recipe.seed
             runs.append(AnalysisRun(study.name, index, analysis,
-                                    _run_one(analysis, study, source, seed)))
+                                    _run_one(analysis, study, source, frame, seed)))
     return RunResult(recipe, tuple(runs))

@@ -147,3 +147,19 @@ direct = ["-0.25:0.25rf"]
     assert run.runs[0].result.to_dict() == direct.to_dict()
     with pytest.raises(InputError, match="lacks first_stage"):
         run_recipe(parse_recipe(write(folder, text.replace("first_stage = 4.2\n", ""))))
+
+
+def test_calibrate_in_a_recipe(folder):
+    from sensiv.calibrate import calibrate
+
+    text = GOOD + """
+[[analysis]]
+kind = "calibrate"
+groups = { terrain = ["plot_ha", "soil"] }
+"""
+    run = run_recipe(parse_recipe(write(folder, text)))
+    spec = Spec("maize_yield", ("irrigation_hours",), ("height_m",),
+                controls=("plot_ha", "soil"), cluster="village")
+    direct = calibrate(from_file(folder / "irrigation.csv", spec),
+                       groups={"terrain": ["plot_ha", "soil"]})
+    assert run.runs[2].result.to_dict() == direct.to_dict()
