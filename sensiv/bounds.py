@@ -46,6 +46,15 @@ AR_GRID_POLYTOPE = 101      # polytope: one quadratic programme per point
 # The weak-IV-robust set "differs materially" from the Wald union when their hulls differ by
 # more than this share of the Wald union's width.
 MATERIAL_SHARE = 0.25
+# The breakdown frontier runs over thresholds symmetric about the estimate that reach the union
+# interval at scale 1 and the threshold, with this share of the reach to spare, on this many
+# evenly spaced thresholds (plus the threshold itself and the ends of the interval at zero
+# direct effect, where the frontier has its corners).
+FRONTIER_POINTS = 61
+FRONTIER_MARGIN = 0.25
+# When the breakdown lies beyond the stated set (1 < t* ≤ SCALE_MAX), a second curve runs to
+# this multiple of t*, so a figure can show the stated set and the breakdown together.
+EXTEND_FACTOR = 1.15
 UNITS = ("", "rf", "sd")
 CAUTION = ("Caution: sensitivity bounds hold only under the assumed range of direct effects; "
            "they do not prove that the instrument is valid, and a wider violation than assumed "
@@ -666,6 +675,93 @@ class Curve:
 
 
 @dataclass(frozen=True, slots=True)
+class Frontier:
+    """Breakdown of ``β > θ`` (or ``β < θ``) for a range of thresholds ``θ``.
+
+    Row ``i`` describes ``threshold[i]``:
+
+    * ``side``: ``+1`` when the interval at zero direct effect lies above the threshold (the
+      conclusion is ``β > θ``), ``−1`` when below (``β < θ``), ``0`` when it contains it (no
+      conclusion to break);
+    * ``scale``: the breakdown scale ``t*(θ)`` of the set (:func:`breakdown_scale`): ``0`` when
+      ``side`` is 0, ``inf`` when the union stays clear of ``θ`` up to :data:`SCALE_MAX`;
+    * ``direct_lower``/``direct_upper`` (shape ``(m, k_z)``): for each instrument alone, the
+      direct effects nearest zero below and above at which the interval reaches ``θ``
+      (:func:`direct_breakdown`); ``∓inf`` when there is none on that side.
+    """
+
+    threshold: np.ndarray
+    scale: np.ndarray
+    side: np.ndarray
+    direct_lower: np.ndarray
+    direct_upper: np.ndarray
+
+    def to_list(self) -> list[dict]:
+        return [{"threshold": float(th), "scale": json_number(t),
+                 "conclusion": {1: ">", -1: "<", 0: "none"}[int(s)],
+                 "direct_lower": [json_number(v) for v in lo],
+                 "direct_upper": [json_number(v) for v in hi]}
+                for th, t, s, lo, hi in zip(self.threshold, self.scale, self.side,
+                                            self.direct_lower, self.direct_upper)]
+
+
+def frontier_thresholds(union: Interval, threshold: float, base: Interval,
+                        points: int = FRONTIER_POINTS) -> np.ndarray:
+    """Thresholds for the frontier: symmetric about the estimate (the centre of ``base``, the
+    interval at zero direct effect), reaching the union interval at scale 1 and the threshold
+    with :data:`FRONTIER_MARGIN` of that reach to spare; plus ``threshold`` and the ends of
+    ``base`` (the frontier's corners).
+
+    Examples
+    --------
+    >>> frontier_thresholds(Interval(0.0, 2.0), 0.5, Interval(0.8, 1.2), points=3).tolist()
+    [-0.25, 0.5, 0.8, 1.0, 1.2, 2.25]
+    """
+    centre = 0.5 * (base.low + base.high)
+    ends = [threshold, base.low, base.high]
+    reach = max(abs(e - centre) for e in [*ends, union.low, union.high] if math.isfinite(e))
+    if not reach > 0.0:
+        reach = max(abs(centre), 1.0)
+    reach *= 1.0 + FRONTIER_MARGIN
+    grid = np.linspace(centre - reach, centre + reach, points)
+    return np.unique(np.concatenate([grid, ends]))
+
+
+def breakdown_frontier(core: Core, vertices: np.ndarray, thresholds: np.ndarray, *,
+                       uninformative: bool = False) -> Frontier:
+    """The breakdown scale and the per-instrument breakdown direct effects for every threshold
+    (exact roots, as for the single threshold of the sweep).
+
+    With an ``uninformative`` first stage the union interval is unbounded at every scale, so
+    the breakdown scale is 0 throughout (as in :func:`analyse`).
+
+    Examples
+    --------
+    >>> core = Core("x", ("z",), 1.0, np.array([1.0]), np.diag([0.01, 0.0]), 1.96)
+    >>> f = breakdown_frontier(core, np.array([[-0.5], [0.5]]), np.array([0.0, 1.0, 2.0]))
+    >>> f.side.tolist(), f.scale.round(4).tolist()
+    ([1, 0, -1], [1.608, 0.0, 1.608])
+    """
+    thresholds = np.asarray(thresholds, float)
+    k = len(core.instruments)
+    base = core.interval(np.zeros(k))
+    scale = np.empty(thresholds.size)
+    side = np.zeros(thresholds.size, dtype=int)
+    lower = np.empty((thresholds.size, k))
+    upper = np.empty((thresholds.size, k))
+    for i, theta in enumerate(thresholds):
+        theta = float(theta)
+        if not base.contains(theta):
+            side[i] = 1 if base.low > theta else -1
+        t_star = 0.0 if uninformative else breakdown_scale(core, vertices, theta)
+        scale[i] = math.inf if t_star is None else t_star
+        lo, hi = direct_breakdown(core, theta)
+        lower[i] = [-math.inf if v is None else v for v in lo]
+        upper[i] = [math.inf if v is None else v for v in hi]
+    return Frontier(thresholds, scale, side, lower, upper)
+
+
+@dataclass(frozen=True, slots=True)
 class SweepResult:
     """Direct-effect sensitivity of the focus coefficient over a set Γ and its scalings."""
 
@@ -692,6 +788,8 @@ class SweepResult:
     scale: Scale
     fit: iv.IVFit
     notes: tuple[str, ...] = field(default=())
+    frontier: Frontier | None = None
+    curve_extended: Curve | None = None
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -725,6 +823,9 @@ class SweepResult:
             "union_ci_wald": self.union_ci_wald.to_list(),
             "breakdown": self.breakdown.to_dict(),
             "curve": self.curve.to_list(),
+            "frontier": self.frontier.to_list() if self.frontier is not None else None,
+            "curve_extended": (self.curve_extended.to_list()
+                               if self.curve_extended is not None else None),
             "ar_set": intervals_to_lists(self.ar_set) if self.ar_set is not None else None,
             "ar_method": self.ar_method,
             "scale": {"reduced_form": dict(zip(self.instruments,
@@ -874,6 +975,14 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
     lower, upper = direct_breakdown(core, threshold)
     t_star = 0.0 if uninformative else breakdown_scale(core, dset.vertices, threshold)
     base = core.interval(np.zeros(len(core.instruments)))
+    extended = None
+    if t_star is not None and t_star > 1.0:
+        extended = _curve(core, dset.vertices,
+                          np.linspace(0.0, min(EXTEND_FACTOR * t_star, SCALE_MAX), points),
+                          uninformative)
+    frontier = breakdown_frontier(core, dset.vertices,
+                                  frontier_thresholds(wald, threshold, base),
+                                  uninformative=uninformative)
     if uninformative or base.contains(threshold):
         conclusion = (f"none: at zero direct effect the interval already contains "
                       f"{threshold:g}")
@@ -901,4 +1010,15 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         identified_set=ident, union_ci=union, union_ci_wald=wald,
         breakdown=Breakdown(threshold, t_star, tuple(lower), tuple(upper), conclusion),
         curve=Curve(scales, lo, hi, id_lo, id_hi), ar_set=ar, ar_method=ar_method,
-        scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)))
+        scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)), frontier=frontier,
+        curve_extended=extended)
+
+
+def _curve(core: Core, vertices: np.ndarray, scales: np.ndarray, uninformative: bool) -> Curve:
+    """Union interval and identified set over ``scales`` (union unbounded when
+    ``uninformative``)."""
+    lo, hi = union_curve(core, vertices, scales)
+    if uninformative:
+        lo, hi = np.full_like(lo, -np.inf), np.full_like(hi, np.inf)
+    id_lo, id_hi = identified_curve(core, vertices, scales)
+    return Curve(scales, lo, hi, id_lo, id_hi)

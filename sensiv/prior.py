@@ -35,6 +35,15 @@ MC_DRAWS = 200_000
 MC_BATCHES = 20
 QUANTILE_SPAN = 12.0     # search quantiles within this many SDs of the mean
 PSD_TOL = 1e-12          # relative tolerance for negative eigenvalues of a prior covariance
+# The prior map: a PRIOR_MAP_POINTS × PRIOR_MAP_POINTS grid of normal priors.  Means span the
+# given prior mean, zero and the mean that centres the interval on the threshold, widened by
+# PRIOR_MAP_MARGIN of that span (at least PRIOR_MAP_SPREAD prior SDs) on each side; SDs run
+# from 0 to PRIOR_MAP_SD_REACH times the larger of the given SD and the SD at which a prior
+# centred at zero direct effect first reaches the threshold.
+PRIOR_MAP_POINTS = 41
+PRIOR_MAP_MARGIN = 0.5
+PRIOR_MAP_SPREAD = 2.0
+PRIOR_MAP_SD_REACH = 1.5
 
 
 @dataclass(frozen=True, slots=True)
@@ -152,6 +161,94 @@ def read_prior_file(path, instruments: Sequence[str]) -> tuple[np.ndarray, np.nd
 
 
 @dataclass(frozen=True, slots=True)
+class PriorMap:
+    """Closed-form normal prior intervals over a grid of prior means × prior SDs.
+
+    With one instrument the axes are the prior mean and SD of its direct effect ``γ`` (outcome
+    units, ``axis = "direct effect"``); with several the interval depends on the prior only
+    through the bias ``a'γ`` of 2SLS, so the axes are the prior mean ``a'μ`` and SD
+    ``√(a'Ωa)`` of that bias (units of the coefficient, ``axis = "bias"``).  Entry ``[i, j]``
+    of ``lower``/``upper``/``excludes`` belongs to ``sd[i]`` and ``mean[j]``; ``excludes``
+    says whether the interval leaves out ``threshold``.  ``given`` is the analysed prior's
+    ``(mean, sd)`` on these axes (for a non-normal law: its mean and SD).
+    """
+
+    axis: str
+    threshold: float
+    mean: np.ndarray
+    sd: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+    excludes: np.ndarray
+    given: tuple[float, float]
+
+    @property
+    def margin(self) -> np.ndarray:
+        """How far the threshold lies outside the interval (negative: inside); the boundary of
+        ``excludes`` is the zero contour."""
+        return np.maximum(self.lower - self.threshold, self.threshold - self.upper)
+
+    def to_dict(self) -> dict:
+        return {"axis": self.axis, "threshold": self.threshold,
+                "mean": self.mean.tolist(), "sd": self.sd.tolist(),
+                "lower": self.lower.tolist(), "upper": self.upper.tolist(),
+                "excludes": self.excludes.tolist(),
+                "given": {"mean": self.given[0], "sd": self.given[1]}}
+
+
+def prior_map(core: Core, mean: np.ndarray, cov: np.ndarray, threshold: float,
+              points: int = PRIOR_MAP_POINTS) -> PriorMap:
+    r"""Normal prior intervals ``β̂ − m ± c·√(V + s²)`` over a grid of bias means ``m`` and
+    SDs ``s`` centred on the given prior (closed form, microseconds).
+
+    ``mean``/``cov`` are the given prior's mean vector and covariance (for a non-normal law its
+    moments).  One instrument: ``m = aμ``, ``s = |a|σ`` with the axes in ``(μ, σ)``.
+
+    Examples
+    --------
+    >>> core = Core("x", ("z",), 1.0, np.array([2.0]), np.diag([0.01, 0.0]), 1.96)
+    >>> pm = prior_map(core, np.array([0.0]), np.array([[0.01]]), 0.0, points=5)
+    >>> pm.axis, pm.given, pm.excludes.shape
+    ('direct effect', (0.0, 0.1), (5, 5))
+    """
+    slope = core.slope
+    v0 = float(core.quad[0, 0])
+    c = core.critical
+    d = core.estimate - threshold
+    if slope.size == 1:
+        a = float(slope[0])
+        mu0, sd0 = float(mean[0]), math.sqrt(max(float(cov[0, 0]), 0.0))
+        axis = "direct effect"
+    else:
+        a = 1.0
+        mu0 = float(slope @ mean)
+        sd0 = math.sqrt(max(float(slope @ cov @ slope), 0.0))
+        axis = "bias"
+    # Prior means of γ whose interval is centred on the threshold, and the SD at which the
+    # interval of a prior centred at zero first reaches it.
+    anchors = [mu0, 0.0]
+    reach = 0.0
+    if a != 0.0:
+        anchors.append(d / a)
+        reach = math.sqrt(max(d * d / (c * c) - v0, 0.0)) / abs(a)
+    low, high = min(anchors), max(anchors)
+    pad = max(PRIOR_MAP_MARGIN * (high - low), PRIOR_MAP_SPREAD * sd0)
+    if not pad > 0.0:
+        pad = max(abs(low), math.sqrt(v0) / abs(a) if a else 1.0, 1e-12)
+    means = np.linspace(low - pad, high + pad, points)
+    sd_top = PRIOR_MAP_SD_REACH * max(sd0, reach)
+    if not sd_top > 0.0:
+        sd_top = pad
+    sds = np.linspace(0.0, sd_top, points)
+    centre = core.estimate - a * means[None, :]
+    half = c * np.sqrt(v0 + (a * sds[:, None]) ** 2)
+    lower = np.broadcast_to(centre - half, (points, points)).copy()
+    upper = np.broadcast_to(centre + half, (points, points)).copy()
+    excludes = (lower > threshold) | (upper < threshold)
+    return PriorMap(axis, float(threshold), means, sds, lower, upper, excludes, (mu0, sd0))
+
+
+@dataclass(frozen=True, slots=True)
 class PriorResult:
     """Interval for the focus coefficient under a prior law of the direct effect."""
 
@@ -172,6 +269,7 @@ class PriorResult:
     seed: int | None
     fit: iv.IVFit
     notes: tuple[str, ...] = field(default=())
+    prior_map: PriorMap | None = None
 
     def assumptions(self) -> list[str]:
         return [
@@ -199,6 +297,7 @@ class PriorResult:
             "draws": self.draws,
             "seed": self.seed,
             "overid": self.fit.overid.to_dict() if self.fit.overid else None,
+            "prior_map": self.prior_map.to_dict() if self.prior_map is not None else None,
             "notes": list(self.notes),
             "assumptions": self.assumptions(),
             "caution": CAUTION,
@@ -280,7 +379,7 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
                    prior_file: str | None = None, se: str | None = None,
                    confidence_level: float = 0.95, small: bool = False,
                    focus: str | None = None, draws: int = MC_DRAWS, seed: int | None = 0,
-                   chunk_rows: int | None = None) -> PriorResult:
+                   chunk_rows: int | None = None, threshold: float = 0.0) -> PriorResult:
     """Prior interval for the focus coefficient from data (two passes over the rows).
 
     Parameters
@@ -291,10 +390,17 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
     prior_file : path, optional
         TOML/JSON with a mean vector and covariance (multivariate normal), instead of ``priors``.
     draws, seed : Monte Carlo settings (used only for non-normal laws with several instruments).
+    threshold : float
+        The effect size examined by the prior map (:func:`prior_map`): over a grid of normal
+        priors around the given one, whether the interval excludes it.
     """
     if (priors is None) == (prior_file is None):
         raise InputError("give either one --prior per instrument or --prior-file FILE")
     laws = [parse_prior(p) if isinstance(p, str) else p for p in (priors or [])]
+    if isinstance(threshold, bool) or not isinstance(threshold, (int, float)) \
+            or not math.isfinite(threshold):
+        raise InputError(f"--threshold {threshold!r} is not a finite number; give the effect "
+                         "size the prior map examines, e.g. 0")
     if not isinstance(draws, int) or draws < MC_BATCHES * 50:
         raise InputError(f"--draws {draws} is too few; give at least {MC_BATCHES * 50}")
     source = iv.as_source(data, spec, chunk_rows=chunk_rows)
@@ -336,10 +442,14 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
         method = "simulation"
         used_draws, used_seed = draws, seed
         texts = tuple(p.text() for p in laws)
+    if moments_file is None:
+        mean = np.array([p.mean() for p in laws])
+        cov = np.diag([p.variance() for p in laws])
+    pmap = prior_map(core, mean, cov, float(threshold))
     return PriorResult(
         focus=core.focus, outcome=pieces.design.outcome, instruments=core.instruments,
         n=result.n, se_type=result.se_type, confidence_level=confidence_level,
         estimate=core.estimate, se=core.se, interval=interval, center=center, method=method,
         mc_error=mc_error, priors=texts, draws=used_draws, seed=used_seed, fit=result,
-        notes=result.notes)
+        notes=result.notes, prior_map=pmap)
 

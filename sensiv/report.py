@@ -1,5 +1,11 @@
 """Tables and output bundles (formatting and writing only; nothing new is computed here).
 
+Per analysis (fit, sweep, prior, correlation bounds, discrete bounds) :func:`results_table`
+collects rows — assumption, estimate or bounds, interval, breakdown, n, covariance — that
+:func:`table_markdown`, :func:`table_latex` (booktabs), :func:`table_csv` and
+:func:`table_json` render; :func:`table_files` and :func:`figure_files` return name → content
+dicts for :func:`write_bundle`.
+
 Files are written atomically: everything goes to a temporary folder beside the target first and
 is moved into place only when every file has been written, so a failure leaves no half-written
 output behind.
@@ -8,13 +14,16 @@ output behind.
 from __future__ import annotations
 
 import json
+import math
 import os
 import shutil
 import tempfile
 from collections.abc import Mapping
+from dataclasses import dataclass
 from pathlib import Path
 
-from sensiv.results import format_number
+from sensiv.errors import InputError
+from sensiv.results import Interval, format_number, intervals_to_lists, json_number
 
 
 def to_json(document: Mapping) -> str:
@@ -175,3 +184,459 @@ def prior_markdown(res) -> str:
 
 def prior_files(res) -> dict[str, str]:
     return {"prior.json": to_json(res.to_dict()), "prior.md": prior_markdown(res)}
+
+
+# ============================================================================ result tables
+# One row per analysis (or per reported set of it): the assumption, the estimate or bounds, the
+# interval, the breakdown value, n and the covariance.  Every number is read from a result
+# object; the renderers below only format it (Markdown, LaTeX with booktabs, CSV, JSON).
+@dataclass(frozen=True, slots=True)
+class TableRow:
+    """One analysis in a results table.
+
+    ``bounds`` is an identified set or bounds as disjoint pieces (``None``: not applicable,
+    ``()``: empty); ``interval`` a confidence or prior interval (``None``: not available);
+    either may have infinite ends.  ``breakdown`` is the breakdown value in the unit that
+    ``breakdown_text`` names.
+    """
+
+    analysis: str
+    assumption: str
+    estimate: float | None
+    se: float | None
+    bounds: tuple[Interval, ...] | None
+    interval: tuple[Interval, ...] | None
+    confidence_level: float
+    breakdown: float | None
+    breakdown_text: str
+    n: int
+    covariance: str
+    caution: str
+
+
+@dataclass(frozen=True, slots=True)
+class Table:
+    """Rows plus the full assumptions of each analysis (``notes``: heading → lines)."""
+
+    title: str
+    rows: tuple[TableRow, ...]
+    notes: tuple[tuple[str, tuple[str, ...]], ...]
+
+    @property
+    def cautions(self) -> tuple[str, ...]:
+        return tuple(dict.fromkeys(r.caution for r in self.rows))
+
+
+COLUMNS = ("analysis", "assumption", "estimate or bounds", "interval", "breakdown", "n",
+           "covariance")
+CSV_COLUMNS = ("analysis", "assumption", "estimate", "se", "bounds_lower", "bounds_upper",
+               "bounds_pieces", "interval_lower", "interval_upper", "interval_pieces",
+               "confidence_level", "breakdown", "breakdown_meaning", "n", "covariance",
+               "caution")
+NONE_TEXT = "—"
+
+
+def _pieces(pieces) -> tuple[Interval, ...]:
+    return tuple(pieces)
+
+
+def _ranges_text(names, boxes) -> str:
+    return ", ".join(f"{z} in [{_end(b.low)}, {_end(b.high)}]" for z, b in zip(names, boxes))
+
+
+def _covariance_text(fit) -> str:
+    text = fit.se_type + (", small-sample" if fit.small else "")
+    if fit.n_clusters is not None:
+        text += f", {fit.n_clusters} clusters"
+    return text
+
+
+def fit_rows(fit) -> list[TableRow]:
+    """2SLS for every treatment, and the Anderson–Rubin set (one treatment)."""
+    from sensiv.iv import CAUTION
+
+    rows = []
+    for name in fit.treatments:
+        rows.append(TableRow(f"2SLS: {name}", "exclusion restriction holds exactly",
+                             fit.tsls.value(name), fit.tsls.std_error(name), None,
+                             (fit.conf_int(name),), fit.confidence_level, None, NONE_TEXT,
+                             fit.n, _covariance_text(fit), CAUTION))
+    if fit.ar_set is not None:
+        rows.append(TableRow(f"Anderson–Rubin set: {fit.treatments[0]}",
+                             "exclusion restriction holds exactly; valid with a weak first "
+                             "stage", None, None, None, _pieces(fit.ar_set),
+                             fit.confidence_level, None, NONE_TEXT, fit.n,
+                             _covariance_text(fit), CAUTION))
+    return rows
+
+
+def _sweep_breakdown(res) -> str:
+    from sensiv.bounds import SCALE_MAX
+
+    b = res.breakdown
+    if b.scale is None:
+        return (f"none within {format_number(SCALE_MAX)} × the stated set "
+                f"(θ = {format_number(b.threshold)})")
+    if b.scale == 0.0:
+        return f"0: no conclusion about θ = {format_number(b.threshold)} at zero direct effect"
+    sign = ">" if res.estimate > b.threshold else "<"
+    return f"{format_number(b.scale)} × the stated set (β {sign} {format_number(b.threshold)})"
+
+
+def sweep_rows(res) -> list[TableRow]:
+    """Identified set with the union of intervals, and the weak-IV-robust set."""
+    from sensiv.bounds import CAUTION
+
+    shape = "polytope with bounding box " if res.polytope else ""
+    words = f"direct effect in {shape}{_ranges_text(res.instruments, res.direct_set)}"
+    cov = _covariance_text(res.fit)
+    rows = [TableRow(f"direct-effect sweep: {res.focus}", words, None, None,
+                     (res.identified_set,), (res.union_ci,), res.confidence_level,
+                     res.breakdown.scale, _sweep_breakdown(res), res.n, cov, CAUTION)]
+    if res.ar_set is not None:
+        rows.append(TableRow(f"weak-IV-robust sweep: {res.focus}", words, None, None, None,
+                             _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
+                             res.n, cov, CAUTION))
+    return rows
+
+
+def prior_rows(res) -> list[TableRow]:
+    from sensiv.bounds import CAUTION
+
+    laws = "; ".join(f"{z} ~ {p}" for z, p in zip(res.instruments, res.priors))
+    method = res.method + ("" if res.mc_error is None else
+                           f", Monte Carlo error {format_number(res.mc_error, 3)}")
+    return [TableRow(f"prior interval: {res.focus}", f"direct effect {laws} ({method})",
+                     res.center, None, None, (res.interval,), res.confidence_level, None,
+                     NONE_TEXT, res.n, _covariance_text(res.fit), CAUTION)]
+
+
+def corrbound_rows(res) -> list[TableRow]:
+    from sensiv.partial_id.correlation import CAUTION
+
+    words = (f"|corr(Z, u)| ≤ {format_number(res.max_ratio)}·|corr(X, u)|, same sign; "
+             f"endogeneity {res.endogeneity}")
+    k = res.breakdown_ratio
+    text = _bound_breakdown("r̄", k, res.threshold, "set")
+    if res.bootstrap is not None:
+        b = res.bootstrap
+        cov = (f"bootstrap, {b.reps} reps"
+               + (f", {b.clusters} clusters" if b.clusters is not None else ", rows"))
+    else:
+        cov = "no bootstrap"
+    return [TableRow(f"correlation bounds: {res.treatment}", words, None, None,
+                     _pieces(res.pieces), (res.ci,) if res.ci is not None else None,
+                     res.confidence_level, k, text, res.n, cov, CAUTION)]
+
+
+def discrete_rows(res) -> list[TableRow]:
+    from sensiv.partial_id.discrete_results import CAUTION
+
+    t = res.table
+    words = (f"{t.instrument} randomised; changes {t.outcome} directly for at most "
+             f"{format_number(res.budget)} of units"
+             + (f"; monotone (defiers ≤ {format_number(res.defier_budget)})"
+                if res.monotone else ""))
+    cov = (f"bootstrap, {res.bootstrap.reps} reps" if res.bootstrap is not None
+           else "no bootstrap")
+    rows = []
+    for c in res.contrasts:
+        k = c.breakdown_budget
+        text = _bound_breakdown("ε", k, res.threshold, "bounds")
+        rows.append(TableRow(
+            f"discrete bounds: {t.treatment} {format_number(c.level)} vs "
+            f"{format_number(c.base)}", words, None, None,
+            (c.bounds,) if c.bounds is not None else (),
+            (c.ci,) if c.ci is not None else None, res.confidence_level, k, text, t.n, cov,
+            CAUTION))
+    return rows
+
+
+def _bound_breakdown(symbol: str, value: float | None, threshold: float, what: str) -> str:
+    theta = format_number(threshold)
+    if value is None:
+        return f"none for {symbol} ≤ 1 (θ = {theta})"
+    if value == 0.0:
+        return f"0: no conclusion, the {what} at {symbol} = 0 contain θ = {theta}"
+    return f"{symbol} = {format_number(value)} ({what} first contain θ = {theta})"
+
+
+def _kind(result) -> str:
+    """The analysis name of a result object (also the stem of its file names)."""
+    from sensiv.bounds import SweepResult
+    from sensiv.iv import IVFit
+    from sensiv.partial_id.correlation import CorrelationBounds
+    from sensiv.partial_id.discrete_results import DiscreteBounds
+    from sensiv.prior import PriorResult
+
+    for cls, name in ((IVFit, "fit"), (SweepResult, "sweep"), (PriorResult, "prior"),
+                      (CorrelationBounds, "corrbound"), (DiscreteBounds, "discrete")):
+        if isinstance(result, cls):
+            return name
+    raise InputError(f"no table or figure for a {type(result).__name__}; give a fit, sweep, "
+                     "prior, correlation-bounds or discrete-bounds result")
+
+
+_ROWS = {"fit": fit_rows, "sweep": sweep_rows, "prior": prior_rows,
+         "corrbound": corrbound_rows, "discrete": discrete_rows}
+_TITLES = {"fit": "2SLS", "sweep": "Direct-effect sensitivity", "prior": "Prior interval",
+           "corrbound": "Correlation-restriction bounds", "discrete": "Discrete bounds"}
+
+
+def results_table(results, title: str | None = None) -> Table:
+    """One table for one result or several (one or more rows each, in the order given)."""
+    results = _as_list(results)
+    rows, notes = [], []
+    for res in results:
+        kind = _kind(res)
+        new = _ROWS[kind](res)
+        rows += new
+        notes.append((new[0].analysis, tuple(res.assumptions())))
+    if title is None:
+        title = (_TITLES[_kind(results[0])] if len(results) == 1 else
+                 "Sensitivity of the estimate to the exclusion restriction")
+    return Table(title, tuple(rows), tuple(notes))
+
+
+def _as_list(results) -> list:
+    if isinstance(results, (list, tuple)):
+        if not results:
+            raise InputError("no results to tabulate; give at least one result")
+        return list(results)
+    return [results]
+
+
+# ----------------------------------------------------------------------------- cell text
+def _end(value: float) -> str:
+    if math.isinf(value):
+        return "−∞" if value < 0 else "+∞"
+    return format_number(value).replace("-", "−")
+
+
+def _pieces_text(pieces) -> str:
+    if pieces is None:
+        return NONE_TEXT
+    if not pieces:
+        return "empty"
+    return " ∪ ".join(f"[{_end(p.low)}, {_end(p.high)}]" for p in pieces)
+
+
+def _estimate_text(row: TableRow) -> str:
+    if row.bounds is not None:
+        return _pieces_text(row.bounds)
+    if row.estimate is None:
+        return NONE_TEXT
+    text = _end(row.estimate)
+    return text + (f" ({_end(row.se)})" if row.se is not None else "")
+
+
+def _cells(table: Table) -> tuple[list[str], list[list[str]]]:
+    levels = {r.confidence_level for r in table.rows}
+    pct = f"{100 * levels.pop():g}% interval" if len(levels) == 1 else None
+    header = ["Analysis", "Assumption", "Estimate (se) or bounds", pct or "Interval (level)",
+              "Breakdown", "n", "Covariance"]
+    body = []
+    for r in table.rows:
+        interval = _pieces_text(r.interval)
+        if pct is None and r.interval is not None:
+            interval = f"{100 * r.confidence_level:g}%: {interval}"
+        body.append([r.analysis, r.assumption, _estimate_text(r), interval, r.breakdown_text,
+                     str(r.n), r.covariance])
+    return header, body
+
+
+# ----------------------------------------------------------------------------- renderers
+def table_markdown(table: Table) -> str:
+    """The table in Markdown, with each analysis's assumptions and the caution below it."""
+    header, body = _cells(table)
+    parts = [f"## {table.title}\n\n", markdown_table(header, body), "\n"]
+    for heading, lines in table.notes:
+        parts.append(f"**Assumptions — {heading}:**\n\n" + "".join(f"- {a}\n" for a in lines)
+                     + "\n")
+    parts += [f"> {c}\n>\n" for c in table.cautions[:-1]]
+    parts.append(f"> {table.cautions[-1]}\n")
+    return "".join(parts)
+
+
+_LATEX_TEXT = {
+    "\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
+    "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
+    "–": "--", "—": "---", "′": "'",
+}
+_LATEX_MATH = {
+    "|": "|", "<": "<", ">": ">", "γ": r"\gamma", "β": r"\beta", "θ": r"\theta",
+    "ε": r"\varepsilon", "≤": r"\le", "≥": r"\ge", "∈": r"\in", "−": "-", "∪": r"\cup",
+    "±": r"\pm", "×": r"\times", "·": r"\cdot", "∞": r"\infty", "²": "^2", "→": r"\to",
+    "r\u0304": r"\bar{r}",
+}
+
+
+def latex_escape(text: str) -> str:
+    r"""Text safe inside a LaTeX table cell: special characters escaped, Greek letters and
+    symbols set as math (neighbouring symbols share one ``$…$``).
+
+    Examples
+    --------
+    >>> print(latex_escape("height_m & 5% ≤ ε, |corr| ≤ r̄·2"))
+    height\_m \& 5\% $\le$ $\varepsilon$, $|$corr$|$ $\le$ $\bar{r} \cdot$2
+    """
+    out: list[str] = []
+    math_run: list[str] = []
+    i = 0
+    while i < len(text):
+        pair = text[i:i + 2]
+        if pair in _LATEX_MATH:
+            math_run.append(_LATEX_MATH[pair])
+            i += 2
+            continue
+        ch = text[i]
+        if ch in _LATEX_MATH:
+            math_run.append(_LATEX_MATH[ch])
+        else:
+            if math_run:
+                out.append("$" + " ".join(math_run) + "$")
+                math_run = []
+            out.append(_LATEX_TEXT.get(ch, ch))
+        i += 1
+    if math_run:
+        out.append("$" + " ".join(math_run) + "$")
+    return "".join(out)
+
+
+LATEX_COLUMNS = (r">{\raggedright\arraybackslash}p{0.15\linewidth}"
+                 r">{\raggedright\arraybackslash}p{0.22\linewidth}ll"
+                 r">{\raggedright\arraybackslash}p{0.13\linewidth}r"
+                 r">{\raggedright\arraybackslash}p{0.09\linewidth}")
+
+
+def table_latex(table: Table) -> str:
+    """The table as a booktabs ``tabular`` ready to ``\\input`` (needs the booktabs and
+    array packages), followed by the caution as a small paragraph."""
+    header, body = _cells(table)
+    lines = [f"% {latex_escape(table.title)} (written by sensiv; regenerate rather than edit)",
+             r"% needs \usepackage{booktabs} and \usepackage{array}",
+             r"\begin{tabular}{" + LATEX_COLUMNS + "}", r"\toprule",
+             " & ".join(latex_escape(h) for h in header) + r" \\", r"\midrule"]
+    lines += [" & ".join(latex_escape(c) for c in row) + r" \\" for row in body]
+    lines += [r"\bottomrule", r"\end{tabular}", r"\par\smallskip",
+              r"{\footnotesize " + " ".join(latex_escape(c) for c in table.cautions)
+              + r"\par}"]
+    return "\n".join(lines) + "\n"
+
+
+def _csv_number(value: float | None) -> str:
+    if value is None:
+        return ""
+    if math.isinf(value):
+        return "-inf" if value < 0 else "inf"
+    return repr(float(value))
+
+
+def _hull(pieces) -> tuple[float | None, float | None]:
+    if not pieces:
+        return None, None
+    return pieces[0].low, pieces[-1].high
+
+
+def _ascii_pieces(pieces) -> str:
+    if pieces is None:
+        return ""
+    if not pieces:
+        return "empty"
+    return " U ".join(f"[{_csv_number(p.low)}, {_csv_number(p.high)}]" for p in pieces)
+
+
+def table_csv(table: Table) -> str:
+    """One line per row with machine-readable numbers (``inf`` for an unbounded end, empty
+    for not available; unions of intervals in full in the ``*_pieces`` columns)."""
+    import csv
+    import io
+
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(CSV_COLUMNS)
+    for r in table.rows:
+        b_lo, b_hi = _hull(r.bounds)
+        i_lo, i_hi = _hull(r.interval)
+        writer.writerow([r.analysis, r.assumption, _csv_number(r.estimate), _csv_number(r.se),
+                         _csv_number(b_lo), _csv_number(b_hi), _ascii_pieces(r.bounds),
+                         _csv_number(i_lo), _csv_number(i_hi), _ascii_pieces(r.interval),
+                         repr(r.confidence_level), _csv_number(r.breakdown),
+                         "" if r.breakdown_text == NONE_TEXT else r.breakdown_text, r.n,
+                         r.covariance, r.caution])
+    return buffer.getvalue()
+
+
+def table_json(table: Table) -> str:
+    """The table as one JSON document (``null`` for an infinite end or a missing value;
+    ``bounds``/``interval`` as lists of ``[low, high]`` pieces, ``null`` when not
+    applicable)."""
+    def pieces(p):
+        return None if p is None else intervals_to_lists(tuple(p))
+
+    rows = [{"analysis": r.analysis, "assumption": r.assumption,
+             "estimate": json_number(r.estimate), "se": json_number(r.se),
+             "bounds": pieces(r.bounds), "interval": pieces(r.interval),
+             "confidence_level": r.confidence_level, "breakdown": json_number(r.breakdown),
+             "breakdown_meaning": None if r.breakdown_text == NONE_TEXT else r.breakdown_text,
+             "n": r.n, "covariance": r.covariance,
+             "caution": r.caution} for r in table.rows]
+    return to_json({"title": table.title, "rows": rows,
+                    "assumptions": {h: list(lines) for h, lines in table.notes},
+                    "caution": list(table.cautions)})
+
+
+def table_files(results, stem: str | None = None) -> dict[str, str]:
+    """``{stem}-table.md/.tex/.csv/.json`` for one result or several (``stem`` defaults to
+    the analysis name, or ``summary`` for several), ready for :func:`write_bundle`."""
+    items = _as_list(results)
+    table = results_table(items)
+    stem = stem or (_kind(items[0]) if len(items) == 1 else "summary")
+    return {f"{stem}-table.md": table_markdown(table), f"{stem}-table.tex": table_latex(table),
+            f"{stem}-table.csv": table_csv(table), f"{stem}-table.json": table_json(table)}
+
+
+# ----------------------------------------------------------------------------- figure files
+def _figures(result, note):
+    from sensiv import plots
+
+    kind = _kind(result)
+    if kind == "fit":
+        return {"summary": plots.summary_intervals([result], note=note)}
+    if kind == "sweep":
+        out = {"curve": plots.sensitivity_curve(result, note=note)}
+        if result.frontier is not None:
+            out["frontier"] = plots.breakdown_frontier(result, note=note)
+        return out
+    if kind == "prior":
+        return ({"map": plots.prior_map(result, note=note)}
+                if result.prior_map is not None else {})
+    if kind == "corrbound":
+        return {"curve": plots.correlation_curve(result, note=note)}
+    return {"curve": plots.discrete_curve(result, note=note)}
+
+
+def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[str, bytes]:
+    """Every figure of one result or several as ``{stem}-{figure}.{format}`` → bytes, plus
+    ``summary-intervals.*`` for several; ready for :func:`write_bundle`.
+
+    ``note`` is added to every caption (e.g. "Invented demo data").  The same results give
+    the same bytes.
+    """
+    from sensiv import plots
+
+    items = _as_list(results)
+    files: dict[str, bytes] = {}
+    seen: dict[str, int] = {}
+    for res in items:
+        kind = _kind(res)
+        seen[kind] = seen.get(kind, 0) + 1
+        stem = kind if seen[kind] == 1 else f"{kind}{seen[kind]}"
+        for name, fig in _figures(res, note).items():
+            for fmt, data in plots.save_figure(fig, formats).items():
+                files[f"{stem}-{name}.{fmt}"] = data
+    if len(items) > 1:
+        fig = plots.summary_intervals(items, note=note)
+        for fmt, data in plots.save_figure(fig, formats).items():
+            files[f"summary-intervals.{fmt}"] = data
+    return files

@@ -1,0 +1,370 @@
+"""Figures: each renders from its result, leaves it unchanged, draws the breakdown where the
+result puts it, and saves to deterministic PNG / PDF / SVG bytes.  Also the data the figures
+read (breakdown frontier, extended curve, prior map) against the exact single-point routines.
+
+Sources: common practice, no source (invariants and file-format checks); the frontier and the
+prior map are checked against sensiv's own breakdown roots and closed-form prior interval.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+import subprocess
+import sys
+import warnings
+import xml.etree.ElementTree as ET
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from sensiv import bounds, plots, prior
+from sensiv.data import Spec
+from sensiv.errors import InputError
+from sensiv.partial_id.correlation import correlation_bounds
+from sensiv.partial_id.discrete import discrete_bounds
+from sensiv.partial_id.discrete_data import from_counts
+from sensiv.results import Interval
+
+REL = 1e-9
+
+
+def design(n=400, seed=3, k_z=1, strength=0.8):
+    rng = np.random.default_rng(seed)
+    z = rng.normal(size=(n, k_z))
+    w = rng.normal(size=n)
+    v = rng.normal(size=n)
+    x = z @ np.full(k_z, strength) + 0.5 * w + v
+    y = 1.0 + 0.5 * x + 0.3 * w + 0.6 * v + rng.normal(size=n)
+    frame = pd.DataFrame({"y_out": y, "x_treat": x, "w": w})
+    names = [f"z_{k + 1}" for k in range(k_z)]
+    for k, name in enumerate(names):
+        frame[name] = z[:, k]
+    return frame, Spec("y_out", ["x_treat"], names, controls=["w"])
+
+
+@pytest.fixture(scope="module")
+def results():
+    one, spec1 = design()
+    two, spec2 = design(k_z=2, seed=5)
+    weak, spec_w = design(strength=0.02, seed=7)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        out = {
+            # breakdown inside the stated range, beyond it, at zero, and never
+            "within": bounds.sweep(one, spec1, direct=["-0.3:0.3"]),
+            "beyond": bounds.sweep(one, spec1, direct=["-0.05:0.05"]),
+            "zero": bounds.sweep(one, spec1, direct=["-0.1:0.1"], threshold=0.5),
+            "negative": bounds.sweep(one, spec1, direct=["-0.2:0.05"], threshold=0.2),
+            "two": bounds.sweep(two, spec2, direct=["-0.1:0.1", "-0.05:0.05"]),
+            "weak": bounds.sweep(weak, spec_w, direct=["-0.1:0.1"]),
+            "prior": prior.prior_analysis(one, spec1, priors=["normal:0:0.05"]),
+            "prior_two": prior.prior_analysis(two, spec2,
+                                              priors=["normal:0:0.05", "uniform:-0.1:0.1"],
+                                              draws=2000),
+            "corr": correlation_bounds(one, spec1, max_ratio=1.0, reps=0, points=21,
+                                       progress=False),
+            "discrete": discrete_bounds(from_counts([[[300, 60], [20, 20]],
+                                                     [[60, 40], [40, 380]]]),
+                                        budget=0.1, reps=20, seed=2, points=11,
+                                        progress=False),
+            "no_fit": discrete_bounds(from_counts([[[180, 0], [10, 10]],
+                                                   [[0, 180], [10, 10]]]),
+                                      budget=0.5, reps=0, points=11, progress=False),
+        }
+    return out
+
+
+SWEEPS = ["within", "beyond", "zero", "negative", "two", "weak"]
+FIGURES = [(plots.sensitivity_curve, s) for s in SWEEPS] + \
+          [(plots.breakdown_frontier, s) for s in SWEEPS] + \
+          [(plots.prior_map, "prior"), (plots.prior_map, "prior_two"),
+           (plots.correlation_curve, "corr"), (plots.discrete_curve, "discrete"),
+           (plots.discrete_curve, "no_fit")]
+
+
+def snapshot(result) -> str:
+    return json.dumps(result.to_dict(), sort_keys=True, default=str)
+
+
+def gid_lines(fig, gid):
+    return [a for a in fig.findobj() if getattr(a, "get_gid", lambda: None)() == gid]
+
+
+def extent(sweep) -> float:
+    """Common practice, no source: the x-axis unit of the direct-effect figures."""
+    if len(sweep.instruments) > 1:
+        return 1.0
+    box = sweep.direct_set[0]
+    return box.high if abs(box.high) >= abs(box.low) else box.low
+
+
+# ----------------------------------------------------------------------------- rendering
+@pytest.mark.parametrize("draw, name", FIGURES, ids=[f"{f.__name__}-{n}" for f, n in FIGURES])
+def test_figure_renders_without_touching_its_input(results, draw, name):
+    from matplotlib.figure import Figure
+    from matplotlib.text import Text
+
+    res = results[name]
+    before = snapshot(res)
+    fig = draw(res, note="Invented test data.")
+    assert isinstance(fig, Figure)
+    assert snapshot(res) == before
+    assert fig.get_size_inches()[0] == pytest.approx(plots.WIDTH_IN)
+    fig.canvas.draw()
+    for text in fig.findobj(Text):
+        if text.get_visible() and text.get_text().strip():
+            assert text.get_fontsize() >= 7.0, text.get_text()
+    # nothing drawn (labels, ticks, legend, caption) is cut off by the edge of the figure
+    tight = fig.get_tightbbox(fig.canvas.get_renderer())
+    width, height = fig.get_size_inches()
+    slack = 0.01
+    assert tight.x0 >= -slack and tight.y0 >= -slack, tight
+    assert tight.x1 <= width + slack and tight.y1 <= height + slack, tight
+    caption = " ".join(t.get_text() for t in fig.texts)
+    assert "Assumption" in caption and "Invented test data." in caption
+
+
+def test_figure_draws_into_given_axes(results):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(7, 3))
+    FigureCanvasAgg(fig)
+    left, right = fig.subplots(1, 2)
+    assert plots.sensitivity_curve(results["within"], ax=left) is fig
+    assert plots.correlation_curve(results["corr"], ax=right) is fig
+    assert left.get_legend() is not None and len(fig.axes) >= 2
+
+
+def test_importing_plots_does_not_import_matplotlib():
+    code = "import sys, sensiv.plots, sensiv.report; print('matplotlib' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == "False"
+
+
+# ----------------------------------------------------------------------------- breakdown marks
+@pytest.mark.parametrize("name", ["within", "beyond", "negative", "two", "zero"])
+def test_curve_marks_breakdown_at_result_value(results, name):
+    sweep = results[name]
+    fig = plots.sensitivity_curve(sweep)
+    (marker,) = gid_lines(fig, "breakdown")
+    x, y = marker.get_xdata()[0], marker.get_ydata()[0]
+    assert x == pytest.approx(sweep.breakdown.scale * extent(sweep), rel=REL, abs=0)
+    assert y == sweep.breakdown.threshold
+    lo, hi = sorted(fig.axes[0].get_xlim())
+    assert lo - 1e-12 <= x <= hi + 1e-12
+
+
+def test_curve_runs_on_to_a_breakdown_beyond_the_stated_set(results):
+    sweep = results["beyond"]
+    assert sweep.breakdown.scale > 1.0 and sweep.curve_extended is not None
+    fig = plots.sensitivity_curve(sweep)
+    assert max(fig.axes[0].get_xlim()) == pytest.approx(
+        sweep.curve_extended.scale[-1] * extent(sweep))
+    assert any(t.get_text() == "stated range" for t in fig.legends[0].get_texts())
+
+
+def test_unbounded_union_is_drawn_clipped_with_a_note(results):
+    sweep = results["weak"]
+    assert not sweep.union_ci.bounded
+    fig = plots.sensitivity_curve(sweep)
+    ax = fig.axes[0]
+    low, high = ax.get_ylim()
+    assert all(math.isfinite(v) for v in (low, high))
+    ident = sweep.curve.id_upper.max() - sweep.curve.id_lower.min()
+    assert high - low < 10 * max(ident, 1.0)   # no huge stand-in number
+    (band,) = gid_lines(fig, "union")
+    assert band.get_hatch()
+    assert any("unbounded" in t.get_text() for t in ax.texts)
+
+
+def test_frontier_marks_breakdown_and_names_regions(results):
+    sweep = results["within"]
+    fig = plots.breakdown_frontier(sweep)
+    (marker,) = gid_lines(fig, "breakdown")
+    assert marker.get_xdata()[0] == pytest.approx(sweep.breakdown.scale * extent(sweep))
+    assert marker.get_ydata()[0] == sweep.breakdown.threshold
+    words = " ".join(t.get_text() for t in fig.axes[0].texts)
+    assert "β > θ holds" in words and "β < θ holds" in words and "fails" in words
+    (line,) = gid_lines(fig, "frontier")
+    np.testing.assert_allclose(line.get_ydata(), sweep.frontier.threshold)
+
+
+@pytest.mark.parametrize("name, attr", [("discrete", "breakdown_budget"),
+                                        ("corr", "breakdown_ratio")])
+def test_bound_curves_mark_breakdown(results, name, attr):
+    res = results[name]
+    draw = plots.discrete_curve if name == "discrete" else plots.correlation_curve
+    fig = draw(res)
+    (marker,) = gid_lines(fig, "breakdown")
+    assert getattr(res, attr) is not None
+    assert marker.get_xdata()[0] == getattr(res, attr)
+    assert marker.get_ydata()[0] == res.threshold
+
+
+def test_discrete_no_fit_budgets_are_hatched(results):
+    res = results["no_fit"]
+    assert res.bounds is None and res.min_budget > 0
+    fig = plots.discrete_curve(res)
+    (region,) = gid_lines(fig, "empty")
+    assert region.get_hatch()
+    assert any("does not fit" in t.get_text() for t in fig.texts)
+
+
+def test_prior_map_marks_the_given_prior_and_draws_the_boundary(results):
+    res = results["prior"]
+    fig = plots.prior_map(res)
+    (given,) = gid_lines(fig, "given")
+    assert (given.get_xdata()[0], given.get_ydata()[0]) == res.prior_map.given
+    assert gid_lines(fig, "boundary")
+
+
+# ----------------------------------------------------------------------------- summary
+def test_summary_intervals_draws_every_analysis(results):
+    items = [results["within"], results["prior"], results["corr"]]
+    before = [snapshot(r) for r in items]
+    rows = plots.summary_items(*items)
+    labels = [r.label for r in rows]
+    assert labels[:2] == ["2SLS, 95% CI", "Anderson–Rubin 95% set"]
+    assert {"identified set", "union of 95% intervals", "95% prior interval",
+            "correlation bounds"} <= set(labels)
+    fig = plots.summary_intervals(items)
+    assert [snapshot(r) for r in items] == before
+    xlo, xhi = fig.axes[0].get_xlim()
+    for row in rows:
+        lines = gid_lines(fig, f"row:{row.label}")
+        assert len(lines) == len(row.pieces)
+        for line, piece in zip(lines, row.pieces):
+            assert list(line.get_xdata()) == pytest.approx(
+                [max(piece.low, xlo), min(piece.high, xhi)])
+
+
+def test_summary_items_rows_and_unbounded_pieces():
+    rows = [plots.SummaryItem("a", (Interval(-math.inf, 1.0), Interval(2.0, math.inf)),
+                              "anything"),
+            plots.SummaryItem("b", (), "no fit", "partial identification", "set")]
+    fig = plots.summary_intervals(rows, threshold=0.0, xlabel="effect")
+    assert len(gid_lines(fig, "row:a")) == 2
+    with pytest.raises(InputError, match="cannot draw"):
+        plots.summary_intervals([object()])
+
+
+# ----------------------------------------------------------------------------- files
+def test_saved_files_parse_and_are_byte_identical(results):
+    sweep = results["within"]
+    first = plots.save_figure(plots.sensitivity_curve(sweep), plots.FORMATS)
+    second = plots.save_figure(plots.sensitivity_curve(sweep), plots.FORMATS)
+    assert first == second
+    png, pdf, svg = first["png"], first["pdf"], first["svg"]
+    assert png.startswith(b"\x89PNG\r\n\x1a\n")
+    assert b"tIME" not in png and b"Software" not in png
+    width = int.from_bytes(png[16:20], "big")
+    assert width == round(plots.WIDTH_IN * plots.DPI)
+    assert pdf.startswith(b"%PDF-")
+    assert len(re.findall(rb"/Type\s*/Page(?![a-zA-Z])", pdf)) == 1     # one page
+    assert b"CreationDate" not in pdf
+    assert b"/FontFile2" in pdf and b"/Type3" not in pdf     # TrueType embedded
+    root = ET.fromstring(svg)
+    assert root.tag.endswith("svg")
+    assert b"<dc:date>" not in svg
+    assert b"<text" not in svg                              # text drawn as paths
+
+
+def test_save_figure_rejects_unknown_format(results):
+    fig = plots.prior_map(results["prior"])
+    with pytest.raises(InputError, match="'eps'"):
+        plots.save_figure(fig, ("png", "eps"))
+
+
+# ----------------------------------------------------------------------------- data read by figures
+@pytest.mark.parametrize("name", SWEEPS)
+def test_frontier_agrees_with_the_breakdown_of_the_sweep(results, name):
+    sweep = results[name]
+    f = sweep.frontier
+    doc = sweep.to_dict()["frontier"]
+    assert len(doc) == f.threshold.size >= bounds.FRONTIER_POINTS
+    i = int(np.flatnonzero(f.threshold == sweep.breakdown.threshold)[0])
+    expected = sweep.breakdown.scale
+    assert f.scale[i] == (math.inf if expected is None else expected)
+    lower = [-math.inf if v is None else v for v in sweep.breakdown.direct_lower]
+    upper = [math.inf if v is None else v for v in sweep.breakdown.direct_upper]
+    assert f.direct_lower[i].tolist() == lower and f.direct_upper[i].tolist() == upper
+    assert np.all(np.diff(f.threshold) > 0)
+    assert set(np.unique(f.side)) <= {-1, 0, 1}
+    assert doc[i]["conclusion"] in {">", "<", "none"}
+
+
+def test_frontier_is_the_inverse_of_the_union_curve():
+    # union lower end at scale t*(θ) equals θ (common practice, no source)
+    quad = np.array([[0.04, 0.01], [0.01, 0.2]])
+    core = bounds.Core("x", ("z",), 1.0, np.array([0.8]), quad, 1.96)
+    vertices = np.array([[-0.5], [0.5]])
+    thetas = np.array([-1.0, 0.0, 0.5, 1.0, 1.5, 2.0, 3.0])
+    f = bounds.breakdown_frontier(core, vertices, thetas)
+    for theta, t, side in zip(thetas, f.scale, f.side):
+        if side == 0:
+            assert t == 0.0
+            continue
+        if math.isinf(t):
+            continue
+        u = bounds.union_interval(core, vertices, t)
+        end = u.low if side > 0 else u.high
+        assert end == pytest.approx(theta, rel=1e-9, abs=1e-12)
+        # just inside the breakdown the conclusion still holds
+        inner = bounds.union_interval(core, vertices, 0.999 * t)
+        assert (inner.low > theta) if side > 0 else (inner.high < theta)
+
+
+def test_extended_curve_reaches_the_threshold(results):
+    sweep = results["beyond"]
+    ext = sweep.curve_extended
+    t_star = sweep.breakdown.scale
+    assert ext.scale[0] == 0.0
+    assert ext.scale[-1] == pytest.approx(bounds.EXTEND_FACTOR * t_star)
+    theta = sweep.breakdown.threshold
+    side = 1 if sweep.estimate > theta else -1
+    end = ext.lower if side > 0 else ext.upper
+    assert side * (end[0] - theta) > 0 > side * (end[-1] - theta)
+    assert sweep.to_dict()["curve_extended"][0].keys() == sweep.to_dict()["curve"][0].keys()
+    assert results["within"].curve_extended is None
+    assert results["within"].to_dict()["curve_extended"] is None
+
+
+def test_prior_map_matches_the_closed_form_interval():
+    # each cell equals sensiv.prior.normal_interval at that prior (Conley, Hansen & Rossi
+    # 2012 closed form)
+    core = bounds.Core("x", ("z",), 0.7, np.array([-2.0]), np.diag([0.01, 0.0]), 1.96)
+    pm = prior.prior_map(core, np.array([0.05]), np.array([[0.03**2]]), 0.2, points=9)
+    assert pm.given == (0.05, pytest.approx(0.03))
+    assert pm.mean[0] < 0.05 < pm.mean[-1] and pm.sd[0] == 0.0
+    for i in (0, 4, 8):
+        for j in (0, 3, 8):
+            interval, _ = prior.normal_interval(core, np.array([pm.mean[j]]),
+                                                np.array([[pm.sd[i] ** 2]]))
+            assert pm.lower[i, j] == pytest.approx(interval.low, rel=1e-12)
+            assert pm.upper[i, j] == pytest.approx(interval.high, rel=1e-12)
+            assert pm.excludes[i, j] == (not interval.contains(0.2))
+    assert np.array_equal(pm.margin > 0, pm.excludes)
+    assert pm.margin.min() < 0 < pm.margin.max()       # the boundary lies on the map
+
+
+def test_prior_map_in_result_and_json(results):
+    res = results["prior"]
+    pm = res.prior_map
+    assert pm.axis == "direct effect" and pm.threshold == 0.0
+    assert pm.given == (0.0, 0.05)
+    doc = res.to_dict()["prior_map"]
+    assert len(doc["excludes"]) == len(doc["sd"]) == prior.PRIOR_MAP_POINTS
+    assert len(doc["excludes"][0]) == len(doc["mean"]) == prior.PRIOR_MAP_POINTS
+    two = results["prior_two"].prior_map
+    assert two.axis == "bias"
+
+
+def test_prior_threshold_is_validated():
+    frame, spec = design()
+    with pytest.raises(InputError, match="threshold"):
+        prior.prior_analysis(frame, spec, priors=["normal:0:0.1"], threshold=math.nan)

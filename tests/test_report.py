@@ -1,0 +1,223 @@
+"""Result tables (Markdown, LaTeX, CSV, JSON) and the figure/table file dicts.
+
+Sources: common practice, no source (structure of booktabs tables, CSV and JSON round trips);
+every number in a table is compared with the result object it was read from.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import re
+import warnings
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from sensiv import bounds, iv, prior, report
+from sensiv.data import Spec
+from sensiv.errors import InputError
+from sensiv.partial_id.correlation import correlation_bounds
+from sensiv.partial_id.discrete import discrete_bounds
+from sensiv.partial_id.discrete_data import from_counts
+
+
+def design(n=300, seed=11, strength=0.8):
+    rng = np.random.default_rng(seed)
+    z = rng.normal(size=n)
+    w = rng.normal(size=n)
+    v = rng.normal(size=n)
+    x = strength * z + 0.5 * w + v
+    y = 1.0 + 0.5 * x + 0.3 * w + 0.6 * v + rng.normal(size=n)
+    # names with underscores and a percent sign exercise the LaTeX escaping
+    frame = pd.DataFrame({"yield_t": y, "hours_%": x, "w_1": w, "height_m": z,
+                          "g": rng.integers(0, 20, n)})
+    return frame, Spec("yield_t", ["hours_%"], ["height_m"], controls=["w_1"], cluster="g")
+
+
+@pytest.fixture(scope="module")
+def results():
+    frame, spec = design()
+    weak, _ = design(strength=0.0, seed=3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return {
+            "fit": iv.fit(frame, spec),
+            "sweep": bounds.sweep(frame, spec, direct=["-0.2:0.2"]),
+            "weak": bounds.sweep(weak, spec, direct=["-0.1:0.1"]),
+            "prior": prior.prior_analysis(frame, spec, priors=["normal:0:0.1"]),
+            "corrbound": correlation_bounds(frame, spec, max_ratio=1.0, reps=20, seed=3,
+                                            points=5, progress=False),
+            "discrete": discrete_bounds(from_counts([[[300, 60], [20, 20]],
+                                                     [[60, 40], [40, 380]]],
+                                                    instrument="sms_sent"),
+                                        budget=0.1, reps=20, seed=2, points=5,
+                                        progress=False),
+        }
+
+
+KINDS = ["fit", "sweep", "weak", "prior", "corrbound", "discrete"]
+
+
+def all_results(results):
+    return [results[k] for k in KINDS]
+
+
+# ----------------------------------------------------------------------------- rows
+def test_rows_read_numbers_from_the_results(results):
+    fit, sweep, pri = results["fit"], results["sweep"], results["prior"]
+    corr, disc = results["corrbound"], results["discrete"]
+    (tsls, ar) = report.fit_rows(fit)
+    assert tsls.estimate == fit.tsls.value("hours_%") and tsls.se == fit.tsls.std_error(
+        "hours_%")
+    assert tsls.interval == (fit.conf_int("hours_%"),) and ar.interval == fit.ar_set
+    assert tsls.n == fit.n and tsls.covariance == "cluster, 20 clusters"
+    row = report.sweep_rows(sweep)[0]
+    assert row.bounds == (sweep.identified_set,) and row.interval == (sweep.union_ci,)
+    assert row.breakdown == sweep.breakdown.scale
+    (row,) = report.prior_rows(pri)
+    assert row.estimate == pri.center and row.interval == (pri.interval,)
+    (row,) = report.corrbound_rows(corr)
+    assert row.bounds == corr.pieces and row.breakdown == corr.breakdown_ratio
+    (row,) = report.discrete_rows(disc)
+    assert row.bounds == (disc.bounds,) and row.interval == (disc.ci,)
+    assert row.breakdown == disc.breakdown_budget and row.n == disc.table.n
+
+
+def test_unbounded_union_is_kept_unbounded(results):
+    row = report.sweep_rows(results["weak"])[0]
+    assert row.interval == (results["weak"].union_ci,)
+    assert math.isinf(row.interval[0].low)
+    text = report.table_markdown(report.results_table(results["weak"]))
+    assert "[−∞, +∞]" in text
+    doc = json.loads(report.table_json(report.results_table(results["weak"])))
+    assert doc["rows"][0]["interval"] == [[None, None]]
+    lines = list(csv.DictReader(io.StringIO(report.table_csv(
+        report.results_table(results["weak"])))))
+    assert lines[0]["interval_lower"] == "-inf" and lines[0]["interval_upper"] == "inf"
+
+
+def test_unknown_result_is_refused():
+    with pytest.raises(InputError, match="no table or figure for a dict"):
+        report.results_table({"a": 1})
+    with pytest.raises(InputError, match="at least one"):
+        report.table_files([])
+
+
+# ----------------------------------------------------------------------------- formats
+def latex_columns(spec: str) -> int:
+    spec = re.sub(r">\{[^{}]*\}", "", spec)        # column prefixes
+    spec = re.sub(r"[pmb]\{[^{}]*\}", "p", spec)   # paragraph columns with widths
+    return len(re.findall(r"[lcrp]", spec))
+
+
+def test_latex_table_is_structurally_sound(results):
+    tex = report.table_latex(report.results_table(all_results(results)))
+    assert tex.count(r"\begin{tabular}") == tex.count(r"\end{tabular}") == 1
+    for rule in (r"\toprule", r"\midrule", r"\bottomrule"):
+        assert tex.count(rule) == 1
+    spec = re.search(r"\\begin\{tabular\}\{(.*)\}\n", tex).group(1)
+    ncol = latex_columns(spec)
+    assert ncol == len(report.COLUMNS)
+    body = tex[tex.index(r"\toprule"):tex.index(r"\bottomrule")]
+    rows = [line for line in body.splitlines() if line.endswith(r"\\")]
+    assert len(rows) == 1 + sum(len(report.results_table(r).rows)
+                                for r in all_results(results))
+    for line in rows:
+        assert len(re.findall(r"(?<!\\)&", line)) == ncol - 1, line
+    # special characters escaped: no bare _ % & outside escapes, maths balanced
+    cells = "\n".join(rows)
+    assert r"hours\_\%" in cells and r"height\_m" in cells and r"sms\_sent" in cells
+    assert not re.search(r"(?<!\\)[_%]", cells.replace(r"\_", "").replace(r"\%", ""))
+    assert all(line.count("$") % 2 == 0 for line in tex.splitlines() if not
+               line.startswith("%"))
+    assert "do not prove" in tex or "does not prove" in tex
+
+
+def test_latex_escape():
+    assert report.latex_escape("a_b 5% & #1 {x} ~ ^") == \
+        r"a\_b 5\% \& \#1 \{x\} \textasciitilde{} \textasciicircum{}"
+    assert report.latex_escape("γ ∈ [−0.1, 0.1]") == r"$\gamma$ $\in$ [$-$0.1, 0.1]"
+    assert report.latex_escape("r̄·2") == r"$\bar{r} \cdot$2"
+    assert report.latex_escape("$5") == r"\$5"
+
+
+def markdown_row_cells(line: str) -> int:
+    return len(re.findall(r"(?<!\\)\|", line)) - 1
+
+
+def test_markdown_table_has_consistent_columns(results):
+    md = report.table_markdown(report.results_table(all_results(results)))
+    lines = [line for line in md.splitlines() if line.startswith("|")]
+    counts = {markdown_row_cells(line) for line in lines}
+    assert counts == {len(report.COLUMNS)}
+    assert md.count("\n> Caution") + md.startswith("> Caution") >= 1
+    assert "**Assumptions — direct-effect sweep: hours_%:**" in md
+
+
+def test_csv_round_trip(results):
+    table = report.results_table(all_results(results))
+    text = report.table_csv(table)
+    reader = list(csv.reader(io.StringIO(text)))
+    assert tuple(reader[0]) == report.CSV_COLUMNS
+    assert all(len(r) == len(report.CSV_COLUMNS) for r in reader)
+    frame = pd.read_csv(io.StringIO(text))
+    assert len(frame) == len(table.rows)
+    sweep = results["sweep"]
+    row = frame[frame["analysis"] == "direct-effect sweep: hours_%"].iloc[0]
+    assert row["interval_lower"] == sweep.union_ci.low            # full precision
+    assert row["bounds_upper"] == sweep.identified_set.high
+    assert row["breakdown"] == sweep.breakdown.scale
+    assert row["n"] == sweep.n and "prove" in row["caution"]
+
+
+def test_json_round_trip(results):
+    doc = json.loads(report.table_json(report.results_table(all_results(results))))
+    assert {"title", "rows", "assumptions", "caution"} <= set(doc)
+    fit = results["fit"]
+    first = doc["rows"][0]
+    assert first["estimate"] == fit.tsls.value("hours_%")
+    assert first["interval"] == [fit.conf_int("hours_%").to_list()]
+    assert first["bounds"] is None and first["breakdown"] is None
+    assert all(r["caution"] for r in doc["rows"])
+
+
+# ----------------------------------------------------------------------------- file dicts
+def test_table_files_names_and_determinism(results):
+    files = report.table_files(results["sweep"])
+    assert set(files) == {f"sweep-table.{ext}" for ext in ("md", "tex", "csv", "json")}
+    assert report.table_files(results["sweep"]) == files
+    several = report.table_files(all_results(results))
+    assert set(several) == {f"summary-table.{ext}" for ext in ("md", "tex", "csv", "json")}
+
+
+def test_figure_files_for_one_and_several_results(results):
+    files = report.figure_files(results["sweep"], ("png", "svg"))
+    assert set(files) == {"sweep-curve.png", "sweep-curve.svg", "sweep-frontier.png",
+                          "sweep-frontier.svg"}
+    assert all(isinstance(v, bytes) for v in files.values())
+    several = report.figure_files([results["fit"], results["sweep"], results["weak"],
+                                   results["prior"], results["corrbound"],
+                                   results["discrete"]], ("png",),
+                                  note="Invented test data.")
+    assert {"fit-summary.png", "sweep-curve.png", "sweep2-curve.png", "prior-map.png",
+            "corrbound-curve.png", "discrete-curve.png", "summary-intervals.png"} <= set(several)
+    assert several["sweep-curve.png"] != files["sweep-curve.png"]   # the note is drawn
+
+
+def test_write_bundle_takes_figures_and_tables(results, tmp_path):
+    files = {**report.table_files(results["prior"]),
+             **report.figure_files(results["prior"], ("pdf",))}
+    written = report.write_bundle(tmp_path / "out", files)
+    assert sorted(p.name for p in written) == sorted(files)
+    assert (tmp_path / "out" / "prior-map.pdf").read_bytes().startswith(b"%PDF")
+
+
+def test_existing_bundles_are_unchanged(results):
+    assert set(report.sweep_files(results["sweep"])) == {"sweep.json", "sweep.md", "curve.csv"}
+    assert set(report.prior_files(results["prior"])) == {"prior.json", "prior.md"}
+    doc = json.loads(report.sweep_files(results["sweep"])["sweep.json"])
+    assert {"curve", "breakdown", "frontier", "curve_extended"} <= set(doc)
