@@ -790,6 +790,7 @@ class SweepResult:
     notes: tuple[str, ...] = field(default=())
     frontier: Frontier | None = None
     curve_extended: Curve | None = None
+    adaptive: object | None = None  # sensiv.adaptive.AdaptiveResult with ``adaptive=True``
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -826,6 +827,7 @@ class SweepResult:
             "frontier": self.frontier.to_list() if self.frontier is not None else None,
             "curve_extended": (self.curve_extended.to_list()
                                if self.curve_extended is not None else None),
+            **(self._adaptive_keys()),
             "ar_set": intervals_to_lists(self.ar_set) if self.ar_set is not None else None,
             "ar_method": self.ar_method,
             "scale": {"reduced_form": dict(zip(self.instruments,
@@ -839,6 +841,13 @@ class SweepResult:
             "assumptions": self.assumptions(),
             "caution": CAUTION,
         }
+
+    def _adaptive_keys(self) -> dict:
+        if self.adaptive is None:
+            return {}
+        document = self.adaptive.to_dict()
+        return {"adaptive_set": document["adaptive_set"],
+                "min_relaxation": document["min_relaxation"], "adaptive": document}
 
     def __str__(self) -> str:
         from sensiv.summary import sweep_summary
@@ -897,7 +906,8 @@ def first_stage_is_uninformative(result: iv.IVFit, j: int) -> bool:
 def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
           polytope: str | None = None, se: str | None = None, confidence_level: float = 0.95,
           small: bool = False, threshold: float = 0.0, points: int = DEFAULT_POINTS,
-          focus: str | None = None, chunk_rows: int | None = None) -> SweepResult:
+          focus: str | None = None, adaptive: bool = False,
+          chunk_rows: int | None = None) -> SweepResult:
     """Direct-effect sensitivity analysis from data (two passes over the rows, then closed forms).
 
     Parameters
@@ -912,6 +922,9 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
         The conclusion examined is ``β > threshold`` (or ``<``, whichever the data support).
     points : int
         Curve points over scalings ``t ∈ [0, 1]`` of the set.
+    adaptive : bool
+        Add the falsification adaptive set of Masten & Poirier (2021) (one treatment; with one
+        instrument it is the 2SLS point).
 
     Returns
     -------
@@ -936,17 +949,21 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
                          f" instrument(s) ({', '.join(source.layout.instruments)}); give one "
                          "per instrument, in instrument order")
     dset_file = read_polytope(polytope, source.layout.instruments) if polytope else None
+    if adaptive and len(treatments) != 1:
+        raise InputError(f"--adaptive needs one treatment; got {len(treatments)} "
+                         f"({', '.join(treatments)}): drop --adaptive or keep one treatment")
     j = treatments.index(focus) if focus is not None else 0
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se, confidence_level=confidence_level, small=small,
         extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
     return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
-                   threshold=threshold, points=points)
+                   threshold=threshold, points=points, adaptive=adaptive)
 
 
 def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int, *,
             ranges: Sequence[RangeSpec] = (), dset: DirectSet | None = None,
-            threshold: float = 0.0, points: int = DEFAULT_POINTS) -> SweepResult:
+            threshold: float = 0.0, points: int = DEFAULT_POINTS,
+            adaptive: bool = False) -> SweepResult:
     """The sweep from a fit's pieces (no further pass over the rows)."""
     core = build_core(pieces, sums, result, j)
     scale = _scale(pieces, _reduced_form_coef(pieces))
@@ -988,10 +1005,15 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
                       f"{threshold:g}")
     else:
         conclusion = f"{core.focus} effect {'>' if base.low > threshold else '<'} {threshold:g}"
-    ar, ar_method = None, None
+    ar, ar_method, fas = None, None, None
     if len(pieces.design.treatments) == 1:
         rf = reduced_form(pieces, sums, result)
         ar, ar_method = robust_set(rf, dset)
+        if adaptive:
+            from sensiv.adaptive import adaptive_set  # imports this module: keep it lazy
+
+            fas = adaptive_set(rf, instruments=core.instruments, scale=scale,
+                               confidence_level=result.confidence_level)
         hull = (Interval(ar[0].low, ar[-1].high) if ar else None)
         if not uninformative and (hull is None or not hull.bounded or abs(
                 hull.width - wald.width) > MATERIAL_SHARE * wald.width):
@@ -1011,7 +1033,7 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         breakdown=Breakdown(threshold, t_star, tuple(lower), tuple(upper), conclusion),
         curve=Curve(scales, lo, hi, id_lo, id_hi), ar_set=ar, ar_method=ar_method,
         scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)), frontier=frontier,
-        curve_extended=extended)
+        curve_extended=extended, adaptive=fas)
 
 
 def _curve(core: Core, vertices: np.ndarray, scales: np.ndarray, uninformative: bool) -> Curve:

@@ -227,6 +227,7 @@ def sweep(
     threshold: float = THRESHOLD,
     points: int = typer.Option(101, "--points", help="Curve points over scalings 0..1 of the set."),
     focus: Optional[str] = FOCUS,
+    adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
     as_json: bool = JSON,
     out: Optional[Path] = typer.Option(None, "--out", help="Write sweep.json, sweep.md and curve.csv here."),
 ) -> None:
@@ -240,7 +241,7 @@ def sweep(
     result = bounds.sweep(source, direct=direct or None,
                           polytope=str(direct_polytope) if direct_polytope else None, se=se,
                           confidence_level=level, small=small, threshold=threshold,
-                          points=points, focus=focus)
+                          points=points, focus=focus, adaptive=adaptive)
     if out is not None:
         write_bundle(out, sweep_files(result))
     emit(result.to_dict(), str(result), as_json)

@@ -108,6 +108,8 @@ def sweep_summary(res) -> str:
         o = res.fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "
                      f"p = {format_number(o.p_value, 3)}")
+    if res.adaptive is not None:
+        lines += ["", str(res.adaptive)]
     for note in res.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]

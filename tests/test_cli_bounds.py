@@ -112,3 +112,27 @@ def test_prior_file_not_psd(tmp_path):
     path = tmp_path / "p.json"
     path.write_text('{"mean": [0.0], "cov": [[-1.0]]}')
     bad(invoke("prior", EXAMPLE, *ROLES, "--prior-file", path), "positive semidefinite")
+
+
+def test_sweep_adaptive_keys(tmp_path):
+    # Masten & Poirier (2021) adaptive set: with one instrument it is the 2SLS point
+    result = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--adaptive", "--json")
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert doc["min_relaxation"] == 0
+    assert doc["adaptive_set"][0] == pytest.approx(doc["estimate"], rel=1e-9)
+    assert doc["adaptive_set"][1] == pytest.approx(doc["estimate"], rel=1e-9)
+    text = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--adaptive")
+    assert "adaptive" in text.stdout.lower()
+
+
+def test_sweep_adaptive_needs_one_treatment(tmp_path):
+    import numpy as np
+
+    rng = np.random.default_rng(0)
+    frame = pd.DataFrame(rng.normal(size=(200, 5)), columns=["y", "x1", "x2", "z1", "z2"])
+    path = tmp_path / "two.csv"
+    frame.to_csv(path, index=False)
+    bad(invoke("sweep", path, "--outcome", "y", "--treatment", "x1", "--treatment", "x2",
+               "--instrument", "z1", "--instrument", "z2", "--direct=0:0", "--direct=0:0",
+               "--adaptive"), "--adaptive needs one treatment")
