@@ -40,7 +40,7 @@ from sensiv import iv, linalg
 from sensiv.bounds import Scale
 from sensiv.errors import InputError
 from sensiv.moments import Moments, ScoreBlock, accumulate, score_sums
-from sensiv.results import format_number, json_number
+from sensiv.results import Interval, format_number, json_number
 
 # Significant digits of the option strings offered for `sweep` and `prior`; range ends are
 # rounded outwards so that the offered range contains the computed one.
@@ -253,7 +253,9 @@ class ZeroFirstStage:
     estimate rests on that premise (checked through ``first_stage_f``) and on the direct
     effect being the same in the subgroup as in the whole sample.  ``contamination`` is
     ``π̂'β̂`` per instrument: what the subgroup's reduced form would carry besides ``γ`` if the
-    effect there were the full-sample 2SLS estimate ``β̂``.
+    effect there were the full-sample 2SLS estimate ``β̂``.  ``interval`` is the confidence
+    interval ``γ̂ ± critical · se`` per instrument (outcome units), ``interval_rf`` the same
+    interval as a share of the full-sample reduced form.
     """
 
     group: str
@@ -274,6 +276,8 @@ class ZeroFirstStage:
     direct_sd: tuple[float, ...]
     contamination: tuple[float, ...]
     controls_dropped: tuple[str, ...]
+    interval: tuple[Interval, ...] = ()
+    interval_rf: tuple[Interval, ...] = ()
 
     @property
     def se(self) -> np.ndarray:
@@ -313,6 +317,8 @@ class ZeroFirstStage:
             "se": dict(zip(names, map(json_number, self.se))),
             "direct_rf": dict(zip(names, map(json_number, self.direct_rf))),
             "direct_sd": dict(zip(names, map(json_number, self.direct_sd))),
+            "direct_ci": {z: i.to_list() for z, i in zip(names, self.interval)},
+            "direct_ci_rf": {z: i.to_list() for z, i in zip(names, self.interval_rf)},
             "covariance": self.covariance.tolist(),
             "contamination": dict(zip(names, map(json_number, self.contamination))),
             "prior": list(self.prior_options),
@@ -497,6 +503,8 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
                          "error there; choose another subgroup")
     upper = 0.5 + 0.5 * confidence_level
     critical = dist.t_quantile(upper, df2) if small else dist.normal_quantile(upper)
+    intervals = tuple(Interval(float(d - critical * s), float(d + critical * s))
+                      for d, s in zip(direct, se_direct))
     return ZeroFirstStage(
         group=column, n=moments.n, n_dropped=moments.n_dropped, n_marker_missing=n_missing,
         instruments=layout.instruments, treatments=layout.treatments, se_type=se,
@@ -505,7 +513,10 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
         direct_rf=tuple(scale.in_units(k, float(d), "rf") for k, d in enumerate(direct)),
         direct_sd=tuple(scale.in_units(k, float(d), "sd") for k, d in enumerate(direct)),
         contamination=tuple(map(float, coef[:, :k_x] @ beta)),
-        controls_dropped=tuple(dict.fromkeys(dropped)))
+        controls_dropped=tuple(dict.fromkeys(dropped)), interval=intervals,
+        interval_rf=tuple(Interval(*sorted((scale.in_units(k, i.low, "rf"),
+                                            scale.in_units(k, i.high, "rf"))))
+                          for k, i in enumerate(intervals)))
 
 
 # ============================================================================ the result

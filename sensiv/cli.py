@@ -25,6 +25,7 @@ app = typer.Typer(
 )
 
 EXIT_BAD_INPUT = 2
+EXIT_SOLVER = 1
 
 
 def _fail(message: str) -> None:
@@ -36,7 +37,7 @@ def guarded(command):
     """Turn the caller's mistakes (``InputError``) into exit code 2 with a clean message."""
     @functools.wraps(command)
     def wrapper(*args, **kwargs):
-        from sensiv.errors import InputError
+        from sensiv.errors import InputError, SolverError
 
         try:
             with warnings.catch_warnings(record=True) as caught:
@@ -46,6 +47,9 @@ def guarded(command):
             return result
         except InputError as exc:
             _fail(str(exc))
+        except SolverError as exc:  # not the caller's mistake: exit 1, but no traceback
+            typer.echo(f"error: {exc}", err=True)
+            raise typer.Exit(EXIT_SOLVER) from exc
     return wrapper
 
 
@@ -70,6 +74,19 @@ LEVEL = typer.Option(0.95, "--level", help="Confidence level, in (0, 1).")
 SMALL = typer.Option(False, "--small", help="Finite-sample corrections with t and F reference laws.")
 CONSTANT = typer.Option(True, "--constant/--no-constant", help="Include a constant.")
 JSON = typer.Option(False, "--json", help="Print exactly one JSON document on stdout.")
+FORMAT = typer.Option(None, "--format", help="Figure format: png, pdf or svg; repeat for several [default: png].")
+
+
+def figure_formats(formats: Optional[list[str]]) -> tuple[str, ...]:
+    """Validated figure formats (a comma-separated value counts as several)."""
+    from sensiv.errors import InputError
+
+    chosen = [f.strip().lower() for item in (formats or ["png"]) for f in item.split(",") if f]
+    for f in chosen:
+        if f not in ("png", "pdf", "svg"):
+            raise InputError(f"--format '{f}' is not a figure format; choose png, pdf or svg")
+    return tuple(dict.fromkeys(chosen))
+
 
 
 def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant):
@@ -120,75 +137,80 @@ def fit(
     emit(document, str(result), as_json)
 
 
-DEMO_DIRECT = "-0.005:0.005"     # assumed direct effect of height (t/ha per metre), invented
-DEMO_PRIOR = "normal:0:0.003"    # prior of that direct effect, invented
-
-
 @app.command()
 @guarded
 def demo(
-    out: Path = typer.Option(Path("sensiv-demo"), "--out", help="Folder for the demo's tables and data."),
+    out: Path = typer.Option(Path("sensiv-demo"), "--out", help="Folder for the demo's report, tables, figures and data."),
+    formats: Optional[list[str]] = FORMAT,
+    figures_dir: Optional[Path] = typer.Option(None, "--figures-dir", help="Also copy the demo's PNG figures here (the repository's figures/ is made this way)."),
     as_json: bool = JSON,
 ) -> None:
-    """Run the main job on built-in INVENTED data (irrigation and maize yield)."""
-    from sensiv import bounds, iv
-    from sensiv import prior as prior_layer
-    from sensiv.data import Spec, from_frame
-    from sensiv.demo import csv_bytes, irrigation
-    from sensiv.report import fit_markdown, prior_files, sweep_files, to_json, write_bundle
+    """Run the main job on built-in INVENTED data: three studies, every analysis, one report."""
+    import tempfile
 
-    scenario = irrigation()
-    roles = scenario.roles
-    spec = Spec(outcome=roles["outcome"], treatments=tuple(roles["treatments"]),
-                instruments=tuple(roles["instruments"]), controls=tuple(roles["controls"]),
-                cluster=roles.get("cluster"))
-    source = from_frame(scenario.frame, spec)
-    result = iv.fit(source)
-    sens = bounds.sweep(source, direct=[DEMO_DIRECT])
-    pri = prior_layer.prior_analysis(source, priors=[DEMO_PRIOR])
-    treatment = spec.treatments[0]
-    beta = scenario.truth["beta"]
-    gamma = scenario.truth["direct_effect"]
+    from sensiv import demo as demo_data
+    from sensiv.bundle import run_files
+    from sensiv.recipe import parse_recipe, run_recipe
+    from sensiv.report import results_table, write_bundle
+    from sensiv.summary import text_table
 
-    def verdict(interval) -> str:
-        return "covers" if interval.contains(beta) else "misses"
-
-    ci = result.conf_int(treatment)
-    lines = [
-        "sensiv demo: INVENTED data, for illustration only",
-        scenario.description,
-        "",
-        "=== 1. 2SLS with diagnostics (exclusion restriction assumed) ===",
-        str(result),
-        "",
-        f"=== 2. Direct-effect sweep: height's direct effect in [{DEMO_DIRECT}] t/ha per metre ===",
-        str(sens),
-        "",
-        f"=== 3. Prior interval: direct effect ~ {DEMO_PRIOR} ===",
-        str(pri),
-        "",
-        "Truth check (possible only because the data are invented): true effect "
-        f"{beta:g}, true direct effect {gamma:g}.",
-        f"  2SLS interval {ci} {verdict(ci)} it; union interval {sens.union_ci} "
-        f"{verdict(sens.union_ci)} it; prior interval {pri.interval} {verdict(pri.interval)} it.",
-    ]
-    document = {"scenario": scenario.name, "invented": True, "truth": scenario.truth,
-                "description": scenario.description, "fit": result.to_dict(),
-                "sweep": sens.to_dict(), "prior": pri.to_dict(),
-                "truth_covered_by_ci": ci.contains(beta),
-                "truth_covered_by_union_ci": sens.union_ci.contains(beta)}
-    readme = ("# sensiv demo (invented data)\n\n" + scenario.description + "\n\n"
-              "- `demo.json`: everything below in one document\n"
-              "- `fit.json`, `fit.md`: 2SLS with diagnostics\n"
-              "- `sweep.json`, `sweep.md`, `curve.csv`: direct-effect sensitivity\n"
-              "- `prior.json`, `prior.md`: prior interval\n"
-              f"- `{scenario.name}.csv`: the invented data set\n")
-    files = {"demo.json": to_json(document), "fit.json": to_json(result.to_dict()),
-             "fit.md": fit_markdown(result), **sweep_files(sens), **prior_files(pri),
-             f"{scenario.name}.csv": csv_bytes(scenario.frame), "README.md": readme}
+    chosen = figure_formats(formats)
+    with tempfile.TemporaryDirectory() as staging:
+        folder = Path(staging)
+        (folder / "data").mkdir()
+        data_files = {}
+        for scenario in (demo_data.irrigation(), demo_data.nudge()):
+            content = demo_data.csv_bytes(scenario.frame)
+            (folder / "data" / f"{scenario.name}.csv").write_bytes(content)
+            data_files[f"data/{scenario.name}.csv"] = content
+        (folder / "recipe.toml").write_text(demo_data.demo_recipe("data/"), encoding="utf-8")
+        recipe = parse_recipe(folder / "recipe.toml")
+        result = run_recipe(recipe)
+        files = {**run_files(result, chosen, note="Invented demo data (sensiv.demo)."),
+                 **data_files}
     write_bundle(out, files)
-    lines.append(f"Written to {out}/: {', '.join(files)}")
+    if figures_dir is not None:
+        write_bundle(figures_dir, {name.split("/", 1)[1]: data for name, data in files.items()
+                                   if name.startswith("figures/") and name.endswith(".png")})
+    truth = {"irrigation": demo_data.irrigation().truth["beta"],
+             "nudge": demo_data.nudge().truth["beta"]}
+    from sensiv.bundle import REPORT_CAUTION
+
+    lines = ["sensiv demo: three INVENTED studies (seeded data from sensiv.demo; no real place, "
+             "person or study)", "", f"Caution: {REPORT_CAUTION}", ""]
+    document = {"invented": True, "out": str(out), "studies": {}}
+    for study in recipe.studies:
+        runs = [r for r in result.runs if r.study == study.name]
+        lines += [f"== {study.name} ==", study.description, ""]
+        table = results_table([r.result for r in runs if r.analysis.kind != "calibrate"])
+        lines += [text_table(table), ""]
+        entry = {"analyses": [{"kind": r.analysis.kind, "label": r.analysis.label,
+                               "result": r.result.to_dict()} for r in runs]}
+        if study.name in truth:
+            beta = truth[study.name]
+            covered = {r.analysis.kind: _covers(r.result, beta) for r in runs
+                       if _covers(r.result, beta) is not None}
+            entry["truth"] = beta
+            entry["truth_covered"] = covered
+            words = ", ".join(f"{k}: {'covers' if v else 'misses'}" for k, v in covered.items())
+            lines += [f"Truth check (possible only because the data are invented): true "
+                      f"effect {beta:g}; {words}.", ""]
+        document["studies"][study.name] = entry
+    lines.append(f"Report: {out}/report.html (and report.md); tables in {out}/tables, figures "
+                 f"in {out}/figures, the recipe and data to re-run it in {out}/recipe.toml and "
+                 f"{out}/data/ (sensiv run {out}/recipe.toml --out DIR).")
     emit(document, "\n".join(lines), as_json)
+
+
+def _covers(result, beta: float) -> bool | None:
+    """Whether the headline interval of a result contains ``beta`` (None: no interval)."""
+    for attribute in ("union_ci", "interval"):
+        interval = getattr(result, attribute, None)
+        if interval is not None and hasattr(interval, "contains"):
+            return bool(interval.contains(beta))
+    if hasattr(result, "conf_int") and hasattr(result, "treatments"):
+        return bool(result.conf_int(result.treatments[0]).contains(beta))
+    return None
 
 
 FOCUS = typer.Option(None, "--focus", help="Treatment whose coefficient is examined [default: the first].")
@@ -287,6 +309,36 @@ def prior(
     if out is not None:
         write_bundle(out, prior_files(result))
     emit(result.to_dict(), str(result), as_json)
+
+
+@app.command()
+@guarded
+def run(
+    recipe: Path = typer.Argument(..., help="Recipe file (TOML): data, roles, analyses."),
+    out: Path = typer.Option(..., "--out", help="Folder for report.md, report.html, tables and figures."),
+    formats: Optional[list[str]] = FORMAT,
+    as_json: bool = JSON,
+) -> None:
+    """Run every analysis of a recipe and write the report bundle."""
+    from sensiv.bundle import run_files
+    from sensiv.recipe import parse_recipe, run_recipe
+    from sensiv.report import write_bundle
+
+    chosen = figure_formats(formats)
+    parsed = parse_recipe(recipe)
+    result = run_recipe(parsed)
+    files = run_files(result, chosen)
+    write_bundle(out, files)
+    document = {"recipe": str(recipe), "out": str(out), "title": parsed.title,
+                "analyses": [{"study": r.study, "kind": r.analysis.kind,
+                              "label": r.analysis.label, "result": r.result.to_dict()}
+                             for r in result.runs],
+                "files": sorted(files)}
+    text = [f"{parsed.title}: {len(result.runs)} analyses in {len(parsed.studies)} "
+            f"stud{'y' if len(parsed.studies) == 1 else 'ies'}"]
+    text += [f"  {r.study} / {r.analysis.label} ({r.analysis.kind})" for r in result.runs]
+    text.append(f"Written to {out}/: report.md, report.html, tables/, figures/, results/")
+    emit(document, "\n".join(text), as_json)
 
 
 # Commands of the partial-identification layer live in their own modules and register

@@ -16,7 +16,11 @@ Axis units
 The direct-effect figures put on the x-axis the allowed direct effect ``x = t·e``: ``t`` is the
 scale of the stated set Γ and ``e`` its end of largest magnitude (one instrument, outcome
 units), or ``x = t`` itself with several instruments.  The top axis converts ``x`` to a share
-of the reduced-form coefficient using ``direct_set_rf`` of the result.
+of the reduced-form coefficient using ``direct_set_rf`` of the result.  They draw a sweep from
+data or a stress test of published numbers alike (:class:`~sensiv.published.PublishedResult`:
+one instrument, its set a single interval, and the caption says the numbers are printed ones).
+The benchmark figure of a calibration puts the implied direct effects in outcome units on the
+x-axis and their share of the reduced form on the top axis.
 """
 
 from __future__ import annotations
@@ -65,6 +69,8 @@ FRONTIER_REACH = 2.0      # frontier x-axis: at most this multiple of max(1, bre
 SUMMARY_ROW_IN = 0.50     # height of one row of the summary figure ...
 ROW_LABEL_PT, ROW_ASSUMPTION_PT = 13.0, 4.0   # ... label and assumption, points above the bar
 SUMMARY_LEFT_IN = 0.16    # no y-axis labels in the summary figure
+NBSP = "\u00a0"           # keeps "n = 212" on one caption line
+X_TICK_BINS = 5           # published figures: at most this many x intervals between ticks
 
 STYLE = {
     "font.family": "DejaVu Sans",
@@ -266,7 +272,7 @@ def _direct_axis(sweep) -> _DirectAxis:
         box = sweep.direct_set[0]
         low, high = box.low, box.high
         extent = high if abs(high) >= abs(low) else low
-        rf_end = max(abs(rf[0].low), abs(rf[0].high))
+        rf_end = max(abs(rf[0].low), abs(rf[0].high)) if rf is not None else math.inf
         range_text = f"[{format_number(low)}, {format_number(high)}]"
         if extent == 0.0:
             return _DirectAxis(1.0, f"scale of the direct-effect set of {z} (set is {{0}})",
@@ -293,6 +299,14 @@ def _direct_axis(sweep) -> _DirectAxis:
 
 def _minus(text: str) -> str:
     return text.replace("-", "−")
+
+
+def _thin_x_ticks(ax) -> None:
+    """At most :data:`X_TICK_BINS` intervals between bottom ticks: at single-column width the
+    default locator can place labels such as "−0.25" so close that they touch."""
+    from matplotlib.ticker import MaxNLocator
+
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=X_TICK_BINS, steps=[1, 2, 2.5, 5, 10]))
 
 
 def _share_axis(ax, axis: _DirectAxis, x_end: float) -> bool:
@@ -337,6 +351,77 @@ def _sweep_caption(sweep) -> str:
             f"the stated {shape} ({ranges}). {fixed}")
 
 
+# ----------------------------------------------------------------------------- direct-effect view
+@dataclass(frozen=True)
+class _DirectView:
+    """What the direct-effect figures read, from a sweep or from a published stress test."""
+
+    instruments: tuple[str, ...]
+    direct_set: tuple[Interval, ...]
+    direct_set_rf: tuple[Interval, ...] | None
+    confidence_level: float
+    focus: str
+    breakdown: object            # sensiv.bounds.Breakdown
+    curve: object                # sensiv.bounds.Curve
+    curve_extended: object | None
+    frontier: object | None      # sensiv.bounds.Frontier
+    caption: str
+    recompute: str               # how to get a frontier when the result has none
+    # Layout fixes: fewer x ticks (labels such as "−0.25" can touch), no region label on a
+    # frontier lobe of zero width, a ground under "conclusion fails".
+    tidy_layout: bool = True
+
+
+def _direct_view(result) -> _DirectView:
+    from sensiv.bounds import SweepResult
+    from sensiv.published import PublishedResult
+
+    if isinstance(result, SweepResult):
+        return _DirectView(result.instruments, result.direct_set, result.direct_set_rf,
+                           result.confidence_level, result.focus, result.breakdown,
+                           result.curve, result.curve_extended, result.frontier,
+                           _sweep_caption(result),
+                           "this sweep result has no breakdown frontier (it was built without "
+                           "sensiv.bounds.analyse); recompute it with sensiv.bounds.sweep")
+    if isinstance(result, PublishedResult):
+        from sensiv.published import INSTRUMENT
+
+        rf = (result.direct_set_rf,) if result.direct_set_rf is not None else None
+        return _DirectView((INSTRUMENT,), (result.direct_set,), rf, result.confidence_level,
+                           result.focus, result.breakdown, result.curve,
+                           result.curve_extended, result.frontier, _published_caption(result),
+                           "this published result has no breakdown frontier; recompute it "
+                           "with sensiv.published.published_analysis")
+    raise InputError(f"the direct-effect figures draw a sweep or a published stress test, not a "
+                     f"{type(result).__name__}; give a sensiv.bounds.SweepResult or a "
+                     "sensiv.published.PublishedResult")
+
+
+def _covariance_words(method: str) -> str:
+    from sensiv import published
+
+    return {published.METHOD_BACKED_OUT: "covariance of reduced form and first stage backed "
+                                         "out of the printed se (delta method)",
+            published.METHOD_CLIPPED: "covariance of reduced form and first stage backed out "
+                                      "of the printed se, its correlation clipped to [−1, 1]",
+            published.METHOD_WORST: "covariance of reduced form and first stage not printed: "
+                                    "worst case over the admissible correlations"}[method]
+
+
+def _published_caption(res) -> str:
+    b = res.direct_set
+    n = res.reported.n
+    return (f"Assumption: the direct effect of the instrument on the outcome (outcome units) "
+            f"lies in the range on the x-axis; stated range [{_minus(format_number(b.low))}, "
+            f"{_minus(format_number(b.high))}] ({_minus(res.range_text)}). Apart from it the "
+            f"instrument is valid. From printed numbers only: union of "
+            f"{_pct(res.confidence_level)} intervals around the printed estimate "
+            f"{_minus(format_number(res.reported.estimate))} (se "
+            f"{format_number(res.reported.se)}); "
+            f"{_covariance_words(res.covariance.method)}; "
+            + (f"n{NBSP}={NBSP}{n}." if n is not None else "n not printed."))
+
+
 # ----------------------------------------------------------------------------- 1. the curve
 def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
     """Union interval and identified set of the focus coefficient against the allowed direct
@@ -349,7 +434,8 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
 
     Parameters
     ----------
-    sweep : sensiv.bounds.SweepResult
+    sweep : sensiv.bounds.SweepResult or sensiv.published.PublishedResult
+        A stress test of published numbers is drawn the same way, with a caption that says so.
     ax : matplotlib.axes.Axes, optional
     note : str, optional
         A last caption line (e.g. that the data are invented).
@@ -360,6 +446,7 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
     """
     import numpy as np
 
+    sweep = _direct_view(sweep)
     with _style():
         canvas = _canvas(ax)
         ax = canvas.ax
@@ -397,11 +484,13 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
         if axis.extent < 0:
             ax.invert_xaxis()
         ax.set_ylim(ylo, yhi)
+        if sweep.tidy_layout:
+            _thin_x_ticks(ax)
         words = _mark_curve_breakdown(ax, sweep, axis, x[-1], unbounded)
         ax.set_xlabel(axis.label)
         ax.set_ylabel(f"β, effect of {sweep.focus}")
         top = _share_axis(ax, axis, x[-1])
-        caption = [_sweep_caption(sweep), *([words] if words else [])]
+        caption = [sweep.caption, *([words] if words else [])]
         return _finish(canvas, caption, note=note, top_axis=top)
 
 
@@ -453,7 +542,8 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
     Left of the frontier the union interval over the scaled set stays on one side of θ (the
     conclusion ``β > θ`` below the ordinary interval, ``β < θ`` above it); right of it, the
     interval reaches θ.  Between the ends of the ordinary interval there is no conclusion to
-    break.  The threshold of the sweep and its breakdown are marked.
+    break.  The threshold of the sweep and its breakdown are marked.  A stress test of
+    published numbers (:class:`~sensiv.published.PublishedResult`) is drawn the same way.
 
     Returns
     -------
@@ -461,10 +551,10 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
     """
     import numpy as np
 
+    sweep = _direct_view(sweep)
     frontier = sweep.frontier
     if frontier is None:
-        raise InputError("this sweep result has no breakdown frontier (it was built without "
-                         "sensiv.bounds.analyse); recompute it with sensiv.bounds.sweep")
+        raise InputError(sweep.recompute)
     with _style():
         canvas = _canvas(ax)
         ax = canvas.ax
@@ -505,7 +595,9 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
                      f"{format_number(SCALE_MAX)} times the stated set.")
         ax.set_xlim(0.0, x_end)  # runs right to left when the set's main end is negative
         ax.set_ylim(y.min(), y.max())
-        _label_frontier_regions(ax, y, x, side, x_end, theta0)
+        if sweep.tidy_layout:
+            _thin_x_ticks(ax)
+        _label_frontier_regions(ax, y, x, side, x_end, theta0, sweep.tidy_layout)
         ax.set_xlabel(axis.label)
         ax.set_ylabel("threshold θ")
         top = _share_axis(ax, axis, x_end)
@@ -515,19 +607,20 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
             words = ((words + " ") if words else "") + (
                 f"Where the frontier runs along the right edge, the breakdown lies beyond the "
                 f"axis (or beyond {format_number(SCALE_MAX)} times the stated set).")
-        caption = [_sweep_caption(sweep),
+        caption = [sweep.caption,
                    "Frontier: for each threshold θ, the smallest direct effect at which the "
                    "union interval reaches θ.", *([words] if words else [])]
         return _finish(canvas, caption, note=note, top_axis=top)
 
 
-def _label_frontier_regions(ax, y, x, side, x_end, theta0) -> None:
-    """Name the regions where a conclusion holds, at the widest part of each lobe."""
+def _label_frontier_regions(ax, y, x, side, x_end, theta0, tidy: bool = False) -> None:
+    """Name the regions where a conclusion holds, at the widest part of each lobe (with
+    ``tidy``, not a lobe of zero width, where the conclusion holds at no direct effect)."""
     import numpy as np
 
     for s, words in ((1, "β > θ holds"), (-1, "β < θ holds")):
         rows = np.flatnonzero(side == s)
-        if rows.size < 3:
+        if rows.size < 3 or (tidy and not np.any(x[rows] != 0.0)):
             continue
         span = y.max() - y.min()
         # the widest part of the lobe, off the axes' edges and the examined threshold
@@ -548,7 +641,8 @@ def _label_frontier_regions(ax, y, x, side, x_end, theta0) -> None:
         y_mid = float(y[room[np.argmin(np.abs(y[room] - y_mid))]])
     ax.text(0.97 * x_end, y_mid, "conclusion fails:\ninterval reaches θ",
             ha="right", va="center", fontsize=SMALL_PT, color=ORANGE,
-            zorder=4)
+            zorder=4, **({"bbox": {"boxstyle": "round,pad=0.15", "facecolor": PALE_ORANGE,
+                                   "edgecolor": "none"}} if tidy else {}))
 
 
 # ----------------------------------------------------------------------------- 3. prior map
@@ -829,15 +923,19 @@ def summary_items(*results) -> list[SummaryItem]:
     """Rows for :func:`summary_intervals` from result objects, in the order given.
 
     Accepts :class:`~sensiv.iv.IVFit`, :class:`~sensiv.bounds.SweepResult`,
-    :class:`~sensiv.prior.PriorResult`, correlation bounds and discrete bounds.  The 2SLS and
-    Anderson–Rubin rows come once, from the first fit found (a sweep or a prior result carries
-    its fit).
+    :class:`~sensiv.prior.PriorResult`, correlation bounds, discrete bounds and
+    :class:`~sensiv.published.PublishedResult` (its rows labelled "from printed numbers").  The
+    2SLS and Anderson–Rubin rows come once, from the first fit found (a sweep or a prior result
+    carries its fit).  A :class:`~sensiv.calibrate.Calibration` bounds no effect of the
+    treatment and adds no row.
     """
     from sensiv.bounds import SweepResult
+    from sensiv.calibrate import Calibration
     from sensiv.iv import IVFit
     from sensiv.partial_id.correlation import CorrelationBounds
     from sensiv.partial_id.discrete_results import DiscreteBounds
     from sensiv.prior import PriorResult
+    from sensiv.published import PublishedResult
 
     items: list[SummaryItem] = []
     fit_done = False
@@ -847,10 +945,11 @@ def summary_items(*results) -> list[SummaryItem]:
             fit, focus = res, res.treatments[0]
         elif isinstance(res, (SweepResult, PriorResult)):
             fit, focus = res.fit, res.focus
-        elif not isinstance(res, (CorrelationBounds, DiscreteBounds)):
+        elif not isinstance(res, (CorrelationBounds, DiscreteBounds, PublishedResult,
+                                  Calibration)):
             raise InputError(f"summary_intervals cannot draw a {type(res).__name__}; give fit, "
-                             "sweep, prior, correlation-bounds or discrete-bounds results, or "
-                             "SummaryItem rows")
+                             "sweep, prior, correlation-bounds, discrete-bounds or published "
+                             "results, or SummaryItem rows")
         if fit is not None and not fit_done:
             fit_done = True
             items += _fit_items(fit, focus)
@@ -866,6 +965,8 @@ def summary_items(*results) -> list[SummaryItem]:
             items += _correlation_items(res)
         elif isinstance(res, DiscreteBounds):
             items += _discrete_items(res)
+        elif isinstance(res, PublishedResult):
+            items += _published_items(res)
     return items
 
 
@@ -891,6 +992,25 @@ def _sweep_items(res) -> list[SummaryItem]:
     if res.ar_set is not None:
         out.append(SummaryItem(f"weak-IV-robust {pct} set", tuple(res.ar_set), words,
                                "direct effect", "interval"))
+    return out
+
+
+def _published_items(res) -> list[SummaryItem]:
+    # "from printed numbers" leads the grey line rather than the label: the label shares its
+    # line with the numbers and would run into them
+    pct = _pct(res.confidence_level)
+    b = res.direct_set
+    words = _minus(f"from printed numbers: direct effect in [{format_number(b.low)}, "
+                   f"{format_number(b.high)}]")
+    out = [SummaryItem("identified set", (res.identified_set,), words, "direct effect", "set"),
+           SummaryItem(f"union of {pct} intervals", (res.union_ci,), words, "direct effect",
+                       "interval"),
+           SummaryItem(f"weak-IV-robust {pct} set", tuple(res.ar_set), words,
+                       "direct effect", "interval")]
+    if res.prior is not None:
+        out.append(SummaryItem(f"{pct} prior interval", (res.prior.interval,),
+                               f"from printed numbers: direct effect ~ {res.prior.law}",
+                               "direct effect", "interval", res.prior.center))
     return out
 
 
@@ -1005,17 +1125,24 @@ def _focus_name(result) -> str | None:
     return treatments[0] if treatments else None
 
 
-def _summary_row(ax, row: SummaryItem, y: float, colour: str, xlo: float, xhi: float) -> None:
-    """One row: the label and the numbers, the assumption under them, then the bar."""
-    numbers = " ∪ ".join(str(p) for p in row.pieces) if row.pieces else "empty"
+def _row_texts(ax, y: float, xlo: float, xhi: float, label: str, numbers: str,
+               assumption: str | None) -> None:
+    """Above a row: the label on the left, the numbers on the right, and the assumption
+    (grey) under them."""
     box = {"boxstyle": "square,pad=0.15", "facecolor": WHITE, "edgecolor": "none"}
-    for x, text, ha, colour_text, offset in ((xlo, row.label, "left", INK, ROW_LABEL_PT),
-                                             (xhi, _minus(numbers), "right", INK, ROW_LABEL_PT),
-                                             (xlo, row.assumption, "left", GREY,
-                                              ROW_ASSUMPTION_PT)):
+    texts = [(xlo, label, "left", INK, ROW_LABEL_PT), (xhi, numbers, "right", INK, ROW_LABEL_PT)]
+    if assumption is not None:
+        texts.append((xlo, assumption, "left", GREY, ROW_ASSUMPTION_PT))
+    for x, text, ha, colour_text, offset in texts:
         ax.annotate(text, xy=(x, y), xytext=(0.0, offset), textcoords="offset points",
                     ha=ha, va="bottom", fontsize=SMALL_PT, color=colour_text, zorder=4,
                     bbox=box, annotation_clip=False)
+
+
+def _summary_row(ax, row: SummaryItem, y: float, colour: str, xlo: float, xhi: float) -> None:
+    """One row: the label and the numbers, the assumption under them, then the bar."""
+    numbers = " ∪ ".join(str(p) for p in row.pieces) if row.pieces else "empty"
+    _row_texts(ax, y, xlo, xhi, row.label, _minus(numbers), row.assumption)
     width = 3.2 if row.kind == "set" else 1.2
     if not row.pieces:
         ax.text(0.5 * (xlo + xhi), y, "empty: the model does not fit the data", ha="center",
@@ -1036,3 +1163,167 @@ def _summary_row(ax, row: SummaryItem, y: float, colour: str, xlo: float, xhi: f
     if row.point is not None:
         ax.plot([row.point], [y], marker="o", markersize=3.2, color=colour,
                 markeredgecolor=WHITE, markeredgewidth=0.5, linestyle="none", zorder=4)
+
+
+# ----------------------------------------------------------------------------- 6. calibration
+BAR_HEIGHT = 0.3          # benchmark bars, in rows (the label sits above the bar)
+
+
+@dataclass(frozen=True)
+class _CalibrationRow:
+    label: str
+    value: float                      # bar end or point estimate, in the x-axis unit
+    interval: Interval | None         # zero-first-stage interval (None: a benchmark bar)
+    numbers: str                      # the value(s) as printed at the right
+    gid: str
+
+
+def _share_text(share: float) -> str:
+    if not math.isfinite(share):
+        return "reduced form is zero"
+    return _minus(f"{format_number(100 * share, 3)}% of RF")
+
+
+def _calibration_rows(cal, single: bool) -> list[_CalibrationRow]:
+    rows = []
+    for b in cal.benchmarks:
+        label = f"without {b.name}" + ("" if b.columns == (b.name,) else
+                                       f" ({', '.join(b.columns)})")
+        if not single:
+            label += f" · {b.instrument}"
+        numbers = (f"{_minus(format_number(b.implied_direct, 3))} "
+                   f"({_share_text(b.implied_direct_rf)})")
+        rows.append(_CalibrationRow(label, b.implied_direct if single else b.implied_direct_rf,
+                                    None, numbers, f"benchmark:{b.name}:{b.instrument}"))
+    z = cal.zero_first_stage
+    if z is not None:
+        for k, name in enumerate(z.instruments):
+            interval = z.interval[k] if single else z.interval_rf[k]
+            label = f"zero first stage ({z.group} == 1)" + ("" if single else f" · {name}")
+            ci = z.interval[k]
+            numbers = _minus(f"{format_number(float(z.direct[k]), 3)} "
+                             f"[{format_number(ci.low, 3)}, {format_number(ci.high, 3)}]")
+            value = float(z.direct[k]) if single else z.direct_rf[k]
+            rows.append(_CalibrationRow(label, value, interval, numbers,
+                                        f"zero-first-stage:{name}"))
+    return rows
+
+
+def _rf_share_axis(ax, reduced_form: float, z: str) -> bool:
+    """Top axis: the bottom axis (outcome units) as a signed share of the reduced form."""
+    if not (math.isfinite(reduced_form) and reduced_form != 0.0):
+        return False
+    from matplotlib.ticker import MaxNLocator, PercentFormatter
+
+    top = ax.secondary_xaxis("top", functions=(lambda x: x / reduced_form,
+                                               lambda s: s * reduced_form))
+    top.xaxis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]))
+    top.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))
+    top.set_xlabel(f"share of the reduced form of {z} ({_minus(format_number(reduced_form, 3))})",
+                   fontsize=SMALL_PT, color=GREY)
+    top.tick_params(labelsize=SMALL_PT, colors=GREY)
+    return True
+
+
+def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
+    """Reference magnitudes for the direct effect: each covariate benchmark of a calibration
+    as a horizontal bar from zero to its implied direct effect, and the zero-first-stage
+    estimate as a point with its confidence interval.
+
+    With one instrument the x-axis is in outcome units (the direct effect of a unit of the
+    instrument) and the top axis gives the share of the instrument's reduced form; with several
+    the x-axis is the share of each instrument's own reduced form, which makes the rows
+    comparable.  Every number is read from :class:`~sensiv.calibrate.Calibration`
+    (``benchmarks``, ``zero_first_stage``, ``scale``).
+
+    Parameters
+    ----------
+    calibration : sensiv.calibrate.Calibration
+    ax : matplotlib.axes.Axes, optional
+    note : str, optional
+        A last caption line (e.g. that the data are invented).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    cal = calibration
+    z = cal.zero_first_stage
+    if not cal.benchmarks and z is None:
+        raise InputError("this calibration has no covariate benchmark (no controls) and no "
+                         "zero-first-stage estimate, so there is nothing to draw; add --control "
+                         "or --group, or --no-first-stage-group")
+    single = len(cal.instruments) == 1
+    rows = _calibration_rows(cal, single)
+    with _style():
+        canvas = _canvas(ax)
+        ax = canvas.ax
+        ends = [0.0, *(r.value for r in rows),
+                *(e for r in rows if r.interval is not None for e in _ends([r.interval]))]
+        xlo, xhi = _limits(ends, pad=0.06)
+        n = len(rows)
+        ax.axvline(0.0, color=MID_GREY, linewidth=0.6, zorder=1)
+        for i, row in enumerate(rows):
+            y = n - 1 - i
+            _row_texts(ax, y, xlo, xhi, row.label, row.numbers, None)
+            if row.interval is None:
+                value = min(max(row.value, xlo), xhi)
+                (bar,) = ax.barh([y], [value], left=0.0, height=BAR_HEIGHT, color=LIGHT_BLUE,
+                                 edgecolor=BLUE, linewidth=0.6, zorder=2,
+                                 label="covariate benchmark").patches
+                bar.set_gid(row.gid)
+                # a marker at the end keeps a bar too short to see visible
+                ax.plot([value], [y], marker="D", markersize=2.6, color=BLUE,
+                        linestyle="none", zorder=3, clip_on=False)
+            else:
+                lo, hi = max(row.interval.low, xlo), min(row.interval.high, xhi)
+                pct = _pct(z.confidence_level)
+                (line,) = ax.plot([lo, hi], [y, y], color=INK, linewidth=1.2, marker="|",
+                                  markersize=5, zorder=3, clip_on=False,
+                                  label=f"zero first stage, {pct} interval")
+                line.set_gid(row.gid)
+                ax.plot([row.value], [y], marker="o", markersize=3.2, color=INK,
+                        markeredgecolor=WHITE, markeredgewidth=0.5, linestyle="none",
+                        zorder=4)
+        ax.set_xlim(xlo, xhi)
+        ax.set_ylim(-0.4, n - 1 + 0.65)
+        ax.set_yticks([])
+        ax.spines["left"].set_visible(False)
+        instruments = ", ".join(cal.instruments)
+        if single:
+            ax.set_xlabel(f"implied direct effect of {instruments} on {cal.outcome}")
+            top = _rf_share_axis(ax, float(cal.scale.reduced_form[0]), cal.instruments[0])
+        else:
+            from matplotlib.ticker import PercentFormatter
+
+            ax.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))
+            ax.set_xlabel("implied direct effect as a share of its instrument's reduced form")
+            top = False
+        from sensiv.iv import WEAK_F
+
+        caption = ["Reference magnitudes, not the true direct effect."]
+        which = (f"of {instruments}" if single else
+                 f"of each instrument ({instruments}; the x-axis in shares of its own reduced "
+                 "form, the numbers at the right in outcome units)")
+        if cal.benchmarks:
+            caption.append(
+                f"Bars: the shift in the reduced-form coefficient {which} on {cal.outcome} when "
+                "the named control is left out (without minus with). Assumption: an "
+                "unobserved violation of the exclusion restriction is comparable in size to "
+                "the confounding that an observed control removes (a judgement, not a test).")
+        if z is not None:
+            f_words = ", ".join(f"{format_number(f, 3)}" for f in z.first_stage_f.values())
+            caption.append(
+                f"Point and line: the reduced form in the subgroup {z.group} == 1 with its "
+                f"{_pct(z.confidence_level)} interval ({z.se_type} covariance, "
+                f"n{NBSP}={NBSP}{z.n}). Assumption: there the "
+                f"{'instrument does' if single else 'instruments do'} not move "
+                f"{', '.join(cal.treatments)}, and the direct effect is as in the whole sample."
+                + (f" The first-stage F there is {f_words} (≥ {format_number(WEAK_F)}): the "
+                   "premise looks false." if z.premise_doubtful else ""))
+        caption.append(f"Whole sample: n{NBSP}={NBSP}{cal.n}.")
+        order = ["covariate benchmark"]
+        if z is not None:
+            order.append(f"zero first stage, {_pct(z.confidence_level)} interval")
+        return _finish(canvas, caption, note=note, axes_in=SUMMARY_ROW_IN * n,
+                       left_in=SUMMARY_LEFT_IN, top_axis=top, legend_order=order)

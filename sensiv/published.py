@@ -64,7 +64,7 @@ import numpy as np
 from sensiv import bounds
 from sensiv import distributions as dist
 from sensiv import prior as prior_layer
-from sensiv.bounds import CAUTION, Breakdown, Core, Curve, RangeSpec, ReducedForm
+from sensiv.bounds import CAUTION, Breakdown, Core, Curve, Frontier, RangeSpec, ReducedForm
 from sensiv.errors import InputError, WeakInstrumentWarning
 from sensiv.results import Interval, format_number, intervals_to_lists, json_number
 
@@ -356,7 +356,10 @@ class PublishedResult:
     ``se``, ``direct_set``, ``identified_set``, ``union_ci``, ``breakdown``, ``curve``,
     ``ar_set``) and, when a prior is given, the keys of ``sensiv prior --json`` nested under
     ``prior`` (``null`` otherwise); plus ``approximation``, ``covariance``, ``reported``,
-    ``assumptions``, ``caution`` and ``notes``.
+    ``assumptions``, ``caution`` and ``notes``.  As in a sweep, ``frontier`` holds the breakdown
+    for a range of thresholds and ``curve_extended`` the curve run on to ``EXTEND_FACTOR``
+    times a breakdown scale beyond 1 (``null`` otherwise); with the worst-case covariance both
+    are the least favourable of the two extreme correlations, like the breakdown itself.
     """
 
     reported: Reported
@@ -378,6 +381,13 @@ class PublishedResult:
     covariance: Covariance
     prior: PriorPart | None
     notes: tuple[str, ...] = field(default=())
+    frontier: Frontier | None = None
+    curve_extended: Curve | None = None
+
+    @property
+    def focus(self) -> str:
+        """The name the effect goes by (published numbers carry no column names)."""
+        return FOCUS
 
     @property
     def approximation(self) -> str:
@@ -419,6 +429,9 @@ class PublishedResult:
             "union_ci_wald": self.union_ci_wald.to_list(),
             "breakdown": self.breakdown.to_dict(),
             "curve": self.curve.to_list(),
+            "frontier": self.frontier.to_list() if self.frontier is not None else None,
+            "curve_extended": (self.curve_extended.to_list()
+                               if self.curve_extended is not None else None),
             "ar_set": intervals_to_lists(self.ar_set),
             "ar_method": self.ar_method,
             "covariance": self.covariance.to_dict(),
@@ -478,6 +491,35 @@ def _prior_part(law, core: Core, level: float) -> PriorPart:
         interval, center = prior_layer.quadrature_interval(core, law, level)
         method = "quadrature"
     return PriorPart(law.text(), interval, center, method, None)
+
+
+def _hull_curve(cores: list[Core], vertices: np.ndarray, scales: np.ndarray
+                ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Union-interval ends and identified-set ends over ``scales``.
+
+    Worst case: the interval at each γ is the hull of the cores' intervals (see module doc);
+    the identified set depends on the estimate and the slope only, which the cores share.
+    """
+    ends = [bounds.union_curve(core, vertices, scales) for core in cores]
+    lo = np.min([e[0] for e in ends], axis=0)
+    hi = np.max([e[1] for e in ends], axis=0)
+    id_lo, id_hi = bounds.identified_curve(cores[0], vertices, scales)
+    return lo, hi, id_lo, id_hi
+
+
+def _hull_frontier(cores: list[Core], vertices: np.ndarray, thresholds: np.ndarray,
+                   uninformative: bool) -> Frontier:
+    """The breakdown frontier; in the worst case the least favourable of the two cores at
+    every threshold (the smaller scale, the breakdown direct effects nearest zero), as for the
+    single threshold of the analysis.  The cores share the interval at zero direct effect
+    (``Q₀₀ = S²`` for both), hence the side of each threshold."""
+    parts = [bounds.breakdown_frontier(core, vertices, thresholds, uninformative=uninformative)
+             for core in cores]
+    if len(parts) == 1:
+        return parts[0]
+    return Frontier(parts[0].threshold, np.min([f.scale for f in parts], axis=0),
+                    parts[0].side, np.max([f.direct_lower for f in parts], axis=0),
+                    np.min([f.direct_upper for f in parts], axis=0))
 
 
 def published_analysis(*, estimate: float, se: float, first_stage: float,
@@ -562,11 +604,7 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
 
     dset = bounds.box_set((INSTRUMENT,), [(gamma_set.low, gamma_set.high)])
     scales = np.linspace(0.0, 1.0, points)
-    # Worst case: the interval at each γ is the hull of the cores' intervals (see module doc).
-    ends = [bounds.union_curve(core, dset.vertices, scales) for core in cores]
-    lo = np.min([e[0] for e in ends], axis=0)
-    hi = np.max([e[1] for e in ends], axis=0)
-    id_lo, id_hi = bounds.identified_curve(cores[0], dset.vertices, scales)
+    lo, hi, id_lo, id_hi = _hull_curve(cores, dset.vertices, scales)
     wald = Interval(float(lo[-1]), float(hi[-1]))
     union = wald
     wald_stat = (p / sp) ** 2
@@ -593,6 +631,12 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
                              for core in cores) if t is not None]
         t_star = min(found) if found else None
     base = cores[0].interval(np.zeros(1))
+    extended = None
+    if t_star is not None and t_star > 1.0:
+        wide = np.linspace(0.0, min(bounds.EXTEND_FACTOR * t_star, bounds.SCALE_MAX), points)
+        extended = Curve(wide, *_hull_curve(cores, dset.vertices, wide))
+    frontier = _hull_frontier(cores, dset.vertices,
+                              bounds.frontier_thresholds(wald, threshold, base), uninformative)
     if uninformative or base.contains(threshold):
         conclusion = f"none: at zero direct effect the interval already contains {threshold:g}"
     else:
@@ -633,7 +677,8 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
         curve=Curve(scales, lo, hi, id_lo, id_hi), ar_set=ar,
         ar_method="exact" if len(forms) == 1 else "exact, union over the two extreme "
                                                   "correlations",
-        covariance=cov, prior=prior_part, notes=tuple(dict.fromkeys(notes)))
+        covariance=cov, prior=prior_part, notes=tuple(dict.fromkeys(notes)),
+        frontier=frontier, curve_extended=extended)
 
 
 # ============================================================================ text and Markdown

@@ -1,7 +1,8 @@
 """Tables and output bundles (formatting and writing only; nothing new is computed here).
 
-Per analysis (fit, sweep, prior, correlation bounds, discrete bounds) :func:`results_table`
-collects rows — assumption, estimate or bounds, interval, breakdown, n, covariance — that
+Per analysis (fit, sweep, prior, correlation bounds, discrete bounds, a stress test from
+published numbers, a calibration) :func:`results_table` collects rows — assumption, estimate
+or bounds, interval, breakdown, n, covariance — that
 :func:`table_markdown`, :func:`table_latex` (booktabs), :func:`table_csv` and
 :func:`table_json` render; :func:`table_files` and :func:`figure_files` return name → content
 dicts for :func:`write_bundle`.
@@ -90,7 +91,8 @@ def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes])
     """Write ``files`` (name → content) into ``directory`` atomically.
 
     All files are first written to a temporary folder next to ``directory``; only when every
-    write succeeded are they moved into place.  Returns the final paths.
+    write succeeded are they moved into place.  Names may contain ``/`` for subfolders.
+    Returns the final paths.
     """
     target = Path(directory)
     parent = target.resolve().parent
@@ -99,6 +101,7 @@ def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes])
     try:
         for name, content in files.items():
             path = staging / name
+            path.parent.mkdir(parents=True, exist_ok=True)
             if isinstance(content, bytes):
                 path.write_bytes(content)
             else:
@@ -107,6 +110,7 @@ def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes])
         out = []
         for name in files:
             final = target / name
+            final.parent.mkdir(parents=True, exist_ok=True)
             os.replace(staging / name, final)
             out.append(final)
         return out
@@ -197,7 +201,10 @@ class TableRow:
     ``bounds`` is an identified set or bounds as disjoint pieces (``None``: not applicable,
     ``()``: empty); ``interval`` a confidence or prior interval (``None``: not available);
     either may have infinite ends.  ``breakdown`` is the breakdown value in the unit that
-    ``breakdown_text`` names.
+    ``breakdown_text`` names.  ``n`` is ``None`` when the source does not give it (a published
+    table).  Calibration rows also read the estimate (a direct effect) as a share of the
+    reduced form (``share_rf``) and in SD units (``sd_units``), and carry the options they
+    suggest for ``sweep`` or ``prior`` (``suggestion``).
     """
 
     analysis: str
@@ -209,9 +216,12 @@ class TableRow:
     confidence_level: float
     breakdown: float | None
     breakdown_text: str
-    n: int
+    n: int | None
     covariance: str
     caution: str
+    share_rf: float | None = None
+    sd_units: float | None = None
+    suggestion: str | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -232,7 +242,7 @@ COLUMNS = ("analysis", "assumption", "estimate or bounds", "interval", "breakdow
 CSV_COLUMNS = ("analysis", "assumption", "estimate", "se", "bounds_lower", "bounds_upper",
                "bounds_pieces", "interval_lower", "interval_upper", "interval_pieces",
                "confidence_level", "breakdown", "breakdown_meaning", "n", "covariance",
-               "caution")
+               "caution", "share_of_reduced_form", "sd_units", "suggestion")
 NONE_TEXT = "—"
 
 
@@ -352,6 +362,89 @@ def discrete_rows(res) -> list[TableRow]:
     return rows
 
 
+def published_rows(res) -> list[TableRow]:
+    """The printed estimate; the identified set with the union of intervals and the breakdown;
+    the weak-IV-robust set; the prior interval when a prior is given (all from the printed
+    numbers, with the approximation they rest on)."""
+    from sensiv.bounds import CAUTION
+
+    pct = f"{100 * res.confidence_level:g}%"
+    cov = f"from reported numbers ({res.covariance.method})"
+    box = res.direct_set
+    words = (f"direct effect in [{_end(box.low)}, {_end(box.high)}] (outcome units; given as "
+             f"{res.range_text}); {res.approximation}")
+    # the curve at zero direct effect is the printed estimate's interval (unbounded when the
+    # printed first stage is not significant)
+    at_zero = Interval(float(res.curve.lower[0]), float(res.curve.upper[0]))
+    rows = [TableRow("printed estimate", "exclusion restriction holds exactly (the printed "
+                     f"estimate, its se and {pct} interval)", res.estimate, res.se, None,
+                     (at_zero,), res.confidence_level, None, NONE_TEXT, res.reported.n, cov,
+                     CAUTION),
+            TableRow("direct-effect stress test from printed numbers", words, None, None,
+                     (res.identified_set,), (res.union_ci,), res.confidence_level,
+                     res.breakdown.scale, _sweep_breakdown(res), res.reported.n, cov, CAUTION),
+            TableRow("weak-IV-robust set from printed numbers", words, None, None, None,
+                     _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
+                     res.reported.n, f"{cov}; {res.ar_method}", CAUTION)]
+    if res.prior is not None:
+        p = res.prior
+        method = p.method + ("" if p.mc_error is None else
+                             f", Monte Carlo error {format_number(p.mc_error, 3)}")
+        rows.append(TableRow("prior interval from printed numbers",
+                             f"direct effect ~ {p.law} ({method}); {res.approximation}",
+                             p.center, None, None, (p.interval,), res.confidence_level, None,
+                             NONE_TEXT, res.reported.n, cov, CAUTION))
+    return rows
+
+
+def calibrate_rows(res) -> list[TableRow]:
+    """The scale (reduced form and SDs) of each instrument, one row per covariate benchmark
+    and instrument, and the zero-first-stage estimate when there is one.  The estimates are
+    direct effects of an instrument on the outcome, not effects of the treatment."""
+    from sensiv.calibrate import CAUTION
+
+    s = res.scale
+    level = res.confidence_level
+    rows = []
+    for k, z in enumerate(s.instruments):
+        rows.append(TableRow(
+            f"calibration scale: reduced form of {z}",
+            f"a reference scale, no assumption: a direct effect d of {z} reads as "
+            f"d / reduced form or d · SD({z}) / SD({res.outcome}); SD({z}) = "
+            f"{_end(float(s.instrument_sd[k]))}, SD({res.outcome}) = {_end(s.outcome_sd)}",
+            float(s.reduced_form[k]), None, None, None, level, None, NONE_TEXT, res.n,
+            "none (point values)", CAUTION))
+    for b in res.benchmarks:
+        left = ", ".join(b.columns)
+        rows.append(TableRow(
+            f"benchmark: {_direct_of(b.instrument)} without {b.name}",
+            f"an unobserved direct effect comparable to the shift in the reduced form of "
+            f"{b.instrument} when {left} is left out (a judgement, not a test)",
+            b.implied_direct, None, None, None, level, None, NONE_TEXT, res.n,
+            "none (point values)", CAUTION, b.implied_direct_rf, b.implied_direct_sd,
+            b.sweep_option))
+    zfs = res.zero_first_stage
+    if zfs is not None:
+        f_words = ", ".join(f"{t}: {format_number(f, 4)}" for t, f in zfs.first_stage_f.items())
+        doubt = "; premise doubtful" if zfs.premise_doubtful else ""
+        for k, z in enumerate(zfs.instruments):
+            rows.append(TableRow(
+                f"zero-first-stage estimate: {_direct_of(z)} in {zfs.group} == 1",
+                f"in the subgroup {zfs.group} == 1 the instruments do not move the treatment "
+                f"(first-stage F there {f_words}{doubt}) and the direct effect is the same as "
+                "in the whole sample",
+                float(zfs.direct[k]), float(zfs.se[k]), None,
+                (zfs.interval[k],) if zfs.interval else None, zfs.confidence_level, None,
+                NONE_TEXT, zfs.n, zfs.se_type, CAUTION, zfs.direct_rf[k], zfs.direct_sd[k],
+                f"--prior {zfs.prior_options[k]}; {zfs.sweep_options[k]}"))
+    return rows
+
+
+def _direct_of(instrument: str) -> str:
+    """How a calibration row names the instrument whose direct effect it measures."""
+    return f"direct effect of {instrument}"
+
+
 def _bound_breakdown(symbol: str, value: float | None, threshold: float, what: str) -> str:
     theta = format_number(threshold)
     if value is None:
@@ -364,23 +457,33 @@ def _bound_breakdown(symbol: str, value: float | None, threshold: float, what: s
 def _kind(result) -> str:
     """The analysis name of a result object (also the stem of its file names)."""
     from sensiv.bounds import SweepResult
+    from sensiv.calibrate import Calibration
     from sensiv.iv import IVFit
     from sensiv.partial_id.correlation import CorrelationBounds
     from sensiv.partial_id.discrete_results import DiscreteBounds
     from sensiv.prior import PriorResult
+    from sensiv.published import PublishedResult
 
     for cls, name in ((IVFit, "fit"), (SweepResult, "sweep"), (PriorResult, "prior"),
-                      (CorrelationBounds, "corrbound"), (DiscreteBounds, "discrete")):
+                      (CorrelationBounds, "corrbound"), (DiscreteBounds, "discrete"),
+                      (PublishedResult, "published"), (Calibration, "calibrate")):
         if isinstance(result, cls):
             return name
     raise InputError(f"no table or figure for a {type(result).__name__}; give a fit, sweep, "
-                     "prior, correlation-bounds or discrete-bounds result")
+                     "prior, correlation-bounds, discrete-bounds, published or calibration "
+                     "result")
 
 
 _ROWS = {"fit": fit_rows, "sweep": sweep_rows, "prior": prior_rows,
-         "corrbound": corrbound_rows, "discrete": discrete_rows}
+         "corrbound": corrbound_rows, "discrete": discrete_rows,
+         "published": published_rows, "calibrate": calibrate_rows}
 _TITLES = {"fit": "2SLS", "sweep": "Direct-effect sensitivity", "prior": "Prior interval",
-           "corrbound": "Correlation-restriction bounds", "discrete": "Discrete bounds"}
+           "corrbound": "Correlation-restriction bounds", "discrete": "Discrete bounds",
+           "published": "Direct-effect stress test from printed numbers",
+           "calibrate": "Calibration of direct effects"}
+# heading of the assumptions below the table (other kinds: the first row's analysis)
+_NOTE_HEADINGS = {"published": "direct-effect stress test from printed numbers",
+                  "calibrate": "calibration of direct effects"}
 
 
 def results_table(results, title: str | None = None) -> Table:
@@ -391,7 +494,7 @@ def results_table(results, title: str | None = None) -> Table:
         kind = _kind(res)
         new = _ROWS[kind](res)
         rows += new
-        notes.append((new[0].analysis, tuple(res.assumptions())))
+        notes.append((_NOTE_HEADINGS.get(kind, new[0].analysis), tuple(res.assumptions())))
     if title is None:
         title = (_TITLES[_kind(results[0])] if len(results) == 1 else
                  "Sensitivity of the estimate to the exclusion restriction")
@@ -427,7 +530,11 @@ def _estimate_text(row: TableRow) -> str:
     if row.estimate is None:
         return NONE_TEXT
     text = _end(row.estimate)
-    return text + (f" ({_end(row.se)})" if row.se is not None else "")
+    text += f" ({_end(row.se)})" if row.se is not None else ""
+    units = [f"share of reduced form {_end(row.share_rf)}" if row.share_rf is not None
+             else None, f"SD units {_end(row.sd_units)}" if row.sd_units is not None else None]
+    units = [u for u in units if u]
+    return text + (f"; {'; '.join(units)}" if units else "")
 
 
 def _cells(table: Table) -> tuple[list[str], list[list[str]]]:
@@ -440,8 +547,9 @@ def _cells(table: Table) -> tuple[list[str], list[list[str]]]:
         interval = _pieces_text(r.interval)
         if pct is None and r.interval is not None:
             interval = f"{100 * r.confidence_level:g}%: {interval}"
-        body.append([r.analysis, r.assumption, _estimate_text(r), interval, r.breakdown_text,
-                     str(r.n), r.covariance])
+        assumption = r.assumption + (f"; suggested: {r.suggestion}" if r.suggestion else "")
+        body.append([r.analysis, assumption, _estimate_text(r), interval, r.breakdown_text,
+                     NONE_TEXT if r.n is None else str(r.n), r.covariance])
     return header, body
 
 
@@ -479,6 +587,11 @@ def latex_escape(text: str) -> str:
     --------
     >>> print(latex_escape("height_m & 5% ≤ ε, |corr| ≤ r̄·2"))
     height\_m \& 5\% $\le$ $\varepsilon$, $|$corr$|$ $\le$ $\bar{r} \cdot$2
+
+    A typed option keeps both hyphens (``--`` would become an en dash):
+
+    >>> print(latex_escape("--direct=-0.1:0.1"))
+    -{}-direct=-0.1:0.1
     """
     out: list[str] = []
     math_run: list[str] = []
@@ -496,7 +609,7 @@ def latex_escape(text: str) -> str:
             if math_run:
                 out.append("$" + " ".join(math_run) + "$")
                 math_run = []
-            out.append(_LATEX_TEXT.get(ch, ch))
+            out.append("-{}" if text[i:i + 2] == "--" else _LATEX_TEXT.get(ch, ch))
         i += 1
     if math_run:
         out.append("$" + " ".join(math_run) + "$")
@@ -562,15 +675,17 @@ def table_csv(table: Table) -> str:
                          _csv_number(b_lo), _csv_number(b_hi), _ascii_pieces(r.bounds),
                          _csv_number(i_lo), _csv_number(i_hi), _ascii_pieces(r.interval),
                          repr(r.confidence_level), _csv_number(r.breakdown),
-                         "" if r.breakdown_text == NONE_TEXT else r.breakdown_text, r.n,
-                         r.covariance, r.caution])
+                         "" if r.breakdown_text == NONE_TEXT else r.breakdown_text,
+                         "" if r.n is None else r.n, r.covariance, r.caution,
+                         _csv_number(r.share_rf), _csv_number(r.sd_units), r.suggestion or ""])
     return buffer.getvalue()
 
 
 def table_json(table: Table) -> str:
     """The table as one JSON document (``null`` for an infinite end or a missing value;
     ``bounds``/``interval`` as lists of ``[low, high]`` pieces, ``null`` when not
-    applicable)."""
+    applicable; ``share_of_reduced_form``, ``sd_units`` and ``suggestion`` filled on
+    calibration rows only)."""
     def pieces(p):
         return None if p is None else intervals_to_lists(tuple(p))
 
@@ -580,7 +695,9 @@ def table_json(table: Table) -> str:
              "confidence_level": r.confidence_level, "breakdown": json_number(r.breakdown),
              "breakdown_meaning": None if r.breakdown_text == NONE_TEXT else r.breakdown_text,
              "n": r.n, "covariance": r.covariance,
-             "caution": r.caution} for r in table.rows]
+             "caution": r.caution, "share_of_reduced_form": json_number(r.share_rf),
+             "sd_units": json_number(r.sd_units), "suggestion": r.suggestion}
+            for r in table.rows]
     return to_json({"title": table.title, "rows": rows,
                     "assumptions": {h: list(lines) for h, lines in table.notes},
                     "caution": list(table.cautions)})
@@ -613,6 +730,14 @@ def _figures(result, note):
                 if result.prior_map is not None else {})
     if kind == "corrbound":
         return {"curve": plots.correlation_curve(result, note=note)}
+    if kind == "published":
+        out = {"curve": plots.sensitivity_curve(result, note=note)}
+        if result.frontier is not None:
+            out["frontier"] = plots.breakdown_frontier(result, note=note)
+        return out
+    if kind == "calibrate":
+        return ({"benchmarks": plots.calibration_benchmarks(result, note=note)}
+                if result.benchmarks or result.zero_first_stage is not None else {})
     return {"curve": plots.discrete_curve(result, note=note)}
 
 
@@ -620,6 +745,10 @@ def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[
     """Every figure of one result or several as ``{stem}-{figure}.{format}`` → bytes, plus
     ``summary-intervals.*`` for several; ready for :func:`write_bundle`.
 
+    Stems: ``sweep-curve``/``-frontier``, ``prior-map``, ``corrbound-curve``,
+    ``discrete-curve``, ``fit-summary``, ``published-curve``/``-frontier`` and
+    ``calibrate-benchmarks`` (a second result of a kind gets ``sweep2-…`` and so on).  A
+    calibration bounds no effect of the treatment, so it adds no row to the summary figure.
     ``note`` is added to every caption (e.g. "Invented demo data").  The same results give
     the same bytes.
     """
@@ -635,8 +764,9 @@ def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[
         for name, fig in _figures(res, note).items():
             for fmt, data in plots.save_figure(fig, formats).items():
                 files[f"{stem}-{name}.{fmt}"] = data
-    if len(items) > 1:
-        fig = plots.summary_intervals(items, note=note)
+    effects = [res for res in items if _kind(res) != "calibrate"]
+    if len(items) > 1 and effects:
+        fig = plots.summary_intervals(effects, note=note)
         for fmt, data in plots.save_figure(fig, formats).items():
             files[f"summary-intervals.{fmt}"] = data
     return files

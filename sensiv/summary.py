@@ -141,3 +141,13 @@ def prior_summary(res) -> str:
 
     lines += ["", CAUTION]
     return "\n".join(lines)
+
+
+def text_table(table) -> str:
+    """A results table (``sensiv.report.Table``) as plain text for the terminal: analysis,
+    estimate or bounds, interval and breakdown (assumptions are in the report)."""
+    from sensiv.report import _cells
+
+    header, rows = _cells(table)
+    keep = [0, 2, 3, 4]
+    return "\n".join(_table([header[j] for j in keep], [[r[j] for j in keep] for r in rows]))

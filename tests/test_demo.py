@@ -54,7 +54,8 @@ def test_other_seed_gives_other_frame(generator):
 
 def test_shipped_examples_match_generator_byte_for_byte(tmp_path):
     written = demo.write_examples(tmp_path)
-    assert [p.name for p in written] == ["irrigation.csv", "nudge.csv", "published_table.json"]
+    assert [p.name for p in written] == ["irrigation.csv", "nudge.csv", "published_table.json",
+                                         "demo.toml"]
     for path in written:
         shipped = EXAMPLES / path.name
         assert shipped.exists(), f"{shipped} missing: run `python -m sensiv.demo examples`"
@@ -78,6 +79,7 @@ def test_csv_reads_back_to_generated_frame(tmp_path):
 def test_module_entry_point_writes_files(tmp_path, capsys):
     assert demo.main([str(tmp_path / "out")]) == 0
     assert sorted(p.name for p in (tmp_path / "out").iterdir()) == [
+        "demo.toml",
         "irrigation.csv",
         "nudge.csv",
         "published_table.json",

@@ -15,6 +15,7 @@ import subprocess
 import sys
 import warnings
 import xml.etree.ElementTree as ET
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -368,3 +369,259 @@ def test_prior_threshold_is_validated():
     frame, spec = design()
     with pytest.raises(InputError, match="threshold"):
         prior.prior_analysis(frame, spec, priors=["normal:0:0.1"], threshold=math.nan)
+
+
+# ============================================================================ published, calibrate
+# Results built with the library: an invented published table (not from any paper) and the
+# invented irrigation example data.
+EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "irrigation.csv"
+TABLE = dict(estimate=0.75, se=0.25, first_stage=4.2, first_stage_se=0.6)  # invented table
+
+
+def irrigation_spec():
+    return Spec("maize_yield", ["irrigation_hours"], ["height_m"],
+                controls=["plot_ha", "soil"], cluster="village")
+
+
+def two_instruments(n=800, seed=4):
+    """Invented: controls that move instruments and outcome; ``nofs`` rows have no first
+    stage."""
+    rng = np.random.default_rng(seed)
+    w1, w2 = rng.normal(size=n), rng.normal(size=n)
+    z = rng.normal(size=(n, 2)) + 0.6 * w1[:, None]
+    nofs = (rng.uniform(size=n) < 0.3).astype(int)
+    x = (1 - nofs) * (z @ np.array([0.8, 0.5])) + 0.5 * w1 + rng.normal(size=n)
+    y = 1.0 + 0.5 * x + z @ np.array([0.1, 0.05]) + 0.7 * w1 - 0.3 * w2 + rng.normal(size=n)
+    frame = pd.DataFrame({"y": y, "x": x, "z1": z[:, 0], "z2": z[:, 1], "w1": w1, "w2": w2,
+                          "nofs": nofs})
+    return frame, Spec("y", ["x"], ["z1", "z2"], controls=["w1", "w2"])
+
+
+@pytest.fixture(scope="module")
+def extra():
+    from sensiv.calibrate import calibrate
+    from sensiv.published import published_analysis
+
+    clay = pd.read_csv(EXAMPLE).assign(clay=lambda f: (f["soil"] == "clay").astype(int))
+    frame2, spec2 = two_instruments()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return {
+            # backed-out covariance, prior, breakdown beyond the stated range
+            "published": published_analysis(**TABLE, reduced_form=3.15, reduced_form_se=0.95,
+                                            n=212, direct=["-0.25:0.25rf"],
+                                            prior=["normal:0:0.5"]),
+            # worst case (no reduced-form se), asymmetric range, breakdown within it, no n
+            "published_worst": published_analysis(**TABLE, direct=["-1:0.5"], threshold=0.2),
+            # first stage not significant: unbounded union, breakdown at zero
+            "published_weak": published_analysis(estimate=0.75, se=0.6, first_stage=4.2,
+                                                 first_stage_se=2.8, direct=["-0.1:0.1"]),
+            "calibrate": calibrate(EXAMPLE, irrigation_spec()),
+            "calibrate_zfs": calibrate(clay, irrigation_spec(), no_first_stage_group="clay",
+                                       groups={"terrain": ["plot_ha", "soil"]}),
+            "calibrate_two": calibrate(frame2, spec2, no_first_stage_group="nofs"),
+        }
+
+
+PUBLISHED = ["published", "published_worst", "published_weak"]
+
+
+def caption_words(fig) -> str:
+    """The caption with its line breaks (and non-breaking spaces) read as single spaces."""
+    return " ".join(" ".join(t.get_text() for t in fig.texts).split())
+
+CALIBRATIONS = ["calibrate", "calibrate_zfs", "calibrate_two"]
+NEW_FIGURES = [(plots.sensitivity_curve, p) for p in PUBLISHED] + \
+              [(plots.breakdown_frontier, p) for p in PUBLISHED] + \
+              [(plots.calibration_benchmarks, c) for c in CALIBRATIONS]
+
+
+@pytest.mark.parametrize("draw, name", NEW_FIGURES,
+                         ids=[f"{f.__name__}-{n}" for f, n in NEW_FIGURES])
+def test_new_figure_renders_without_touching_its_input(extra, draw, name):
+    test_figure_renders_without_touching_its_input(extra, draw, name)
+
+
+def test_published_curve_draws_the_result(extra):
+    res = extra["published"]
+    assert res.breakdown.scale > 1.0 and res.curve_extended is not None
+    fig = plots.sensitivity_curve(res)
+    ax = fig.axes[0]
+    e = res.direct_set.high              # symmetric range: the x unit is its upper end
+    (marker,) = gid_lines(fig, "breakdown")
+    assert marker.get_xdata()[0] == pytest.approx(res.breakdown.scale * e, rel=REL)
+    assert marker.get_ydata()[0] == res.breakdown.threshold
+    assert max(ax.get_xlim()) == pytest.approx(res.curve_extended.scale[-1] * e)
+    (ident,) = gid_lines(fig, "identified")
+    ys = ident.get_paths()[0].vertices[:, 1]
+    assert ys.max() == pytest.approx(res.curve_extended.id_upper.max(), rel=REL)
+    assert ys.min() == pytest.approx(res.curve_extended.id_lower.min(), rel=REL)
+    caption = caption_words(fig)
+    assert "From printed numbers" in caption and "backed out" in caption
+    assert "n = 212" in caption
+
+
+def test_published_worst_case_curve_and_weak_first_stage(extra):
+    worst = extra["published_worst"]
+    fig = plots.sensitivity_curve(worst)
+    (marker,) = gid_lines(fig, "breakdown")
+    assert marker.get_xdata()[0] == pytest.approx(worst.breakdown.scale * worst.direct_set.low,
+                                                  rel=REL)
+    caption = caption_words(fig)
+    assert "worst case" in caption and "n not printed" in caption
+    weak = extra["published_weak"]
+    assert not weak.union_ci.bounded and weak.breakdown.scale == 0.0
+    fig = plots.sensitivity_curve(weak)
+    (band,) = gid_lines(fig, "union")
+    assert band.get_hatch()
+    assert all(math.isfinite(v) for v in fig.axes[0].get_ylim())
+
+
+@pytest.mark.parametrize("name", ["published", "published_worst"])
+def test_published_frontier_draws_the_result(extra, name):
+    res = extra[name]
+    fig = plots.breakdown_frontier(res)
+    (line,) = gid_lines(fig, "frontier")
+    np.testing.assert_allclose(line.get_ydata(), res.frontier.threshold)
+    (marker,) = gid_lines(fig, "breakdown")
+    assert marker.get_ydata()[0] == res.breakdown.threshold
+    assert "β > θ holds" in " ".join(t.get_text() for t in fig.axes[0].texts)
+
+
+@pytest.mark.parametrize("name", PUBLISHED)
+def test_published_frontier_agrees_with_its_breakdown(extra, name):
+    # common practice, no source: the frontier row at the examined threshold repeats the
+    # single-threshold breakdown (worst case: least favourable of the two correlations)
+    res = extra[name]
+    f = res.frontier
+    i = int(np.flatnonzero(f.threshold == res.breakdown.threshold)[0])
+    expected = res.breakdown.scale
+    assert f.scale[i] == pytest.approx(math.inf if expected is None else expected, rel=1e-12)
+    lower = [-math.inf if v is None else v for v in res.breakdown.direct_lower]
+    upper = [math.inf if v is None else v for v in res.breakdown.direct_upper]
+    np.testing.assert_allclose(f.direct_lower[i], lower, rtol=1e-12)
+    np.testing.assert_allclose(f.direct_upper[i], upper, rtol=1e-12)
+    doc = res.to_dict()
+    assert len(doc["frontier"]) == f.threshold.size
+    assert (doc["curve_extended"] is None) == (res.curve_extended is None)
+
+
+def test_published_frontier_without_a_conclusion_names_no_region(extra):
+    # first stage not significant: the conclusion holds at no direct effect, so no lobe
+    fig = plots.breakdown_frontier(extra["published_weak"])
+    words = " ".join(t.get_text() for t in fig.axes[0].texts)
+    assert "holds" not in words and "fails" in words
+
+
+def test_published_extended_curve_reaches_the_threshold(extra):
+    res = extra["published"]
+    ext = res.curve_extended
+    assert ext.scale[-1] == pytest.approx(bounds.EXTEND_FACTOR * res.breakdown.scale)
+    theta = res.breakdown.threshold
+    assert ext.lower[0] > theta > ext.lower[-1]
+    # the extended curve repeats the stated one where they overlap (same cores)
+    assert ext.lower[0] == res.curve.lower[0] and ext.id_upper[0] == res.curve.id_upper[0]
+    assert extra["published_worst"].curve_extended is None
+
+
+def test_direct_effect_figures_refuse_other_results(extra):
+    with pytest.raises(InputError, match="sweep or a published"):
+        plots.sensitivity_curve(extra["calibrate"])
+
+
+def test_summary_intervals_take_published_rows(extra, results):
+    pub = extra["published"]
+    rows = plots.summary_items(pub)
+    assert [r.label for r in rows] == ["identified set", "union of 95% intervals",
+                                       "weak-IV-robust 95% set", "95% prior interval"]
+    assert all(r.assumption.startswith("from printed numbers") for r in rows)
+    assert [r.pieces for r in rows] == [(pub.identified_set,), (pub.union_ci,), pub.ar_set,
+                                        (pub.prior.interval,)]
+    assert rows[-1].point == pub.prior.center
+    items = [results["within"], pub, extra["calibrate"]]
+    before = [snapshot(r) for r in items]
+    fig = plots.summary_intervals(items)
+    assert [snapshot(r) for r in items] == before
+    xlo, xhi = fig.axes[0].get_xlim()
+    lines = gid_lines(fig, "row:weak-IV-robust 95% set")
+    assert [list(line.get_xdata()) for line in lines][-1] == pytest.approx(
+        [max(pub.ar_set[-1].low, xlo), min(pub.ar_set[-1].high, xhi)])
+    assert plots.summary_items(extra["calibrate"]) == []     # no effect of the treatment
+
+
+def test_calibration_figure_draws_benchmarks_and_zero_first_stage(extra):
+    cal = extra["calibrate_zfs"]
+    fig = plots.calibration_benchmarks(cal)
+    for b in cal.benchmarks:
+        (bar,) = gid_lines(fig, f"benchmark:{b.name}:{b.instrument}")
+        assert bar.get_width() == b.implied_direct and bar.get_x() == 0.0
+    z = cal.zero_first_stage
+    (line,) = gid_lines(fig, "zero-first-stage:height_m")
+    assert list(line.get_xdata()) == [z.interval[0].low, z.interval[0].high]
+    assert z.interval[0].contains(float(z.direct[0]))
+    ax = fig.axes[0]
+    assert ax.get_xlim()[0] < z.interval[0].low and "height_m" in ax.get_xlabel()
+    (top,) = ax.child_axes                      # the secondary x-axis
+    assert "share of the reduced form" in top.get_xlabel()
+    caption = caption_words(fig)
+    assert "not the true direct effect" in caption and "premise looks false" in caption
+    row_texts = " ".join(t.get_text() for t in ax.texts)
+    assert "without terrain (plot_ha, soil)" in row_texts
+
+
+def test_calibration_figure_with_several_instruments_uses_shares(extra):
+    cal = extra["calibrate_two"]
+    fig = plots.calibration_benchmarks(cal)
+    for b in cal.benchmarks:
+        (bar,) = gid_lines(fig, f"benchmark:{b.name}:{b.instrument}")
+        assert bar.get_width() == b.implied_direct_rf
+    z = cal.zero_first_stage
+    for k, name in enumerate(z.instruments):
+        (line,) = gid_lines(fig, f"zero-first-stage:{name}")
+        assert list(line.get_xdata()) == [z.interval_rf[k].low, z.interval_rf[k].high]
+    assert not fig.axes[0].child_axes and "share" in fig.axes[0].get_xlabel()
+
+
+def test_calibration_figure_needs_something_to_draw(extra):
+    from sensiv.calibrate import calibrate
+
+    bare = calibrate(EXAMPLE, Spec("maize_yield", ["irrigation_hours"], ["height_m"]))
+    assert not bare.benchmarks and bare.zero_first_stage is None
+    with pytest.raises(InputError, match="nothing to draw"):
+        plots.calibration_benchmarks(bare)
+
+
+def test_zero_first_stage_interval_in_result_and_json(extra):
+    # common practice, no source: estimate ± critical value × se; the share of the reduced
+    # form divides both ends by it
+    z = extra["calibrate_zfs"].zero_first_stage
+    rf = float(extra["calibrate_zfs"].scale.reduced_form[0])
+    d, s = float(z.direct[0]), float(z.se[0])
+    assert (z.interval[0].low, z.interval[0].high) == pytest.approx(
+        (d - z.critical * s, d + z.critical * s), rel=1e-12)
+    assert (z.interval_rf[0].low, z.interval_rf[0].high) == pytest.approx(
+        tuple(sorted((z.interval[0].low / rf, z.interval[0].high / rf))), rel=1e-12)
+    doc = z.to_dict()
+    assert doc["direct_ci"]["height_m"] == z.interval[0].to_list()
+    assert doc["direct_ci_rf"]["height_m"] == z.interval_rf[0].to_list()
+
+
+def test_new_figures_draw_into_given_axes(extra):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(7, 3))
+    FigureCanvasAgg(fig)
+    left, right = fig.subplots(1, 2)
+    assert plots.sensitivity_curve(extra["published"], ax=left) is fig
+    assert plots.calibration_benchmarks(extra["calibrate_zfs"], ax=right) is fig
+    assert right.get_legend() is not None
+
+
+@pytest.mark.parametrize("draw, name", [(plots.breakdown_frontier, "published"),
+                                        (plots.calibration_benchmarks, "calibrate_zfs")])
+def test_new_figures_save_to_identical_bytes(extra, draw, name):
+    first = plots.save_figure(draw(extra[name]), plots.FORMATS)
+    second = plots.save_figure(draw(extra[name]), plots.FORMATS)
+    assert first == second
+    assert first["png"].startswith(b"\x89PNG") and first["pdf"].startswith(b"%PDF-")

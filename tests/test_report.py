@@ -12,6 +12,7 @@ import json
 import math
 import re
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -23,6 +24,7 @@ from sensiv.errors import InputError
 from sensiv.partial_id.correlation import correlation_bounds
 from sensiv.partial_id.discrete import discrete_bounds
 from sensiv.partial_id.discrete_data import from_counts
+from sensiv.results import Interval
 
 
 def design(n=300, seed=11, strength=0.8):
@@ -221,3 +223,163 @@ def test_existing_bundles_are_unchanged(results):
     assert set(report.prior_files(results["prior"])) == {"prior.json", "prior.md"}
     doc = json.loads(report.sweep_files(results["sweep"])["sweep.json"])
     assert {"curve", "breakdown", "frontier", "curve_extended"} <= set(doc)
+
+
+# ============================================================================ published, calibrate
+# Built with the library: an invented published table (not from any paper) and the invented
+# irrigation example data.
+EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "irrigation.csv"
+
+
+def irrigation_spec():
+    return Spec("maize_yield", ["irrigation_hours"], ["height_m"],
+                controls=["plot_ha", "soil"], cluster="village")
+
+
+@pytest.fixture(scope="module")
+def extra():
+    from sensiv.calibrate import calibrate
+    from sensiv.published import published_analysis
+
+    clay = pd.read_csv(EXAMPLE).assign(clay=lambda f: (f["soil"] == "clay").astype(int))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return {
+            "published": published_analysis(estimate=0.75, se=0.25, first_stage=4.2,
+                                            first_stage_se=0.6, reduced_form=3.15,
+                                            reduced_form_se=0.95, n=212,
+                                            direct=["-0.25:0.25rf"], prior=["normal:0:0.5"]),
+            # worst case, no n, no prior
+            "published_bare": published_analysis(estimate=0.75, se=0.25, first_stage=4.2,
+                                                 first_stage_se=0.6, direct=["-1:0.5"]),
+            "calibrate": calibrate(EXAMPLE, irrigation_spec()),
+            "calibrate_zfs": calibrate(clay, irrigation_spec(), no_first_stage_group="clay"),
+        }
+
+
+def everything(results, extra):
+    return [*all_results(results), extra["published"], extra["published_bare"],
+            extra["calibrate_zfs"]]
+
+
+def test_kind_names_new_results(extra):
+    assert report._kind(extra["published"]) == "published"
+    assert report._kind(extra["calibrate"]) == "calibrate"
+
+
+def test_published_rows_read_the_result(extra):
+    res = extra["published"]
+    est, stress, ar, pri = report.published_rows(res)
+    assert (est.estimate, est.se) == (res.estimate, res.se)
+    assert est.interval == (Interval(res.curve.lower[0], res.curve.upper[0]),)
+    # common practice, no source: at zero direct effect the interval is the printed one,
+    # estimate ± z·se (z = 1.959964 for 95%)
+    assert est.interval[0].low == pytest.approx(0.75 - 1.959964 * 0.25, rel=1e-6)
+    assert stress.bounds == (res.identified_set,) and stress.interval == (res.union_ci,)
+    assert stress.breakdown == res.breakdown.scale
+    assert res.approximation in stress.assumption and "-0.25:0.25rf" in stress.assumption
+    assert ar.interval == res.ar_set and ar.bounds is None
+    assert pri.interval == (res.prior.interval,) and pri.estimate == res.prior.center
+    assert {r.n for r in (est, stress, ar, pri)} == {212}
+    assert all(r.covariance.startswith("from reported numbers") for r in (est, stress, ar, pri))
+    assert "prove" in stress.caution
+    bare = report.published_rows(extra["published_bare"])
+    assert len(bare) == 3 and all(r.n is None for r in bare)
+    assert "worst-case" in bare[0].covariance
+
+
+def test_calibration_rows_read_the_result(extra):
+    cal = extra["calibrate_zfs"]
+    rows = report.calibrate_rows(cal)
+    assert len(rows) == 1 + len(cal.benchmarks) + 1
+    scale = rows[0]
+    assert scale.estimate == float(cal.scale.reduced_form[0]) and scale.interval is None
+    for row, b in zip(rows[1:], cal.benchmarks):
+        assert b.name in row.analysis
+        assert (row.estimate, row.share_rf, row.sd_units) == (
+            b.implied_direct, b.implied_direct_rf, b.implied_direct_sd)
+        assert row.suggestion == b.sweep_option and row.se is None
+    z = cal.zero_first_stage
+    zrow = rows[-1]
+    assert (zrow.estimate, zrow.se) == (float(z.direct[0]), float(z.se[0]))
+    assert zrow.interval == (z.interval[0],) and zrow.n == z.n
+    assert zrow.share_rf == z.direct_rf[0] and z.prior_options[0] in zrow.suggestion
+    assert "premise doubtful" in zrow.assumption
+    assert all("reference magnitudes" in r.caution for r in rows)
+    assert len(report.calibrate_rows(extra["calibrate"])) == 1 + 2   # scale, two benchmarks
+
+
+def test_tables_with_new_results_are_structurally_sound(results, extra):
+    items = everything(results, extra)
+    table = report.results_table(items)
+    n_rows = len(table.rows)
+    tex = report.table_latex(table)
+    assert tex.count(r"\begin{tabular}") == tex.count(r"\end{tabular}") == 1
+    spec = re.search(r"\\begin\{tabular\}\{(.*)\}\n", tex).group(1)
+    ncol = latex_columns(spec)
+    body = tex[tex.index(r"\toprule"):tex.index(r"\bottomrule")]
+    lines = [line for line in body.splitlines() if line.endswith(r"\\")]
+    assert len(lines) == 1 + n_rows
+    for line in lines:
+        assert len(re.findall(r"(?<!\\)&", line)) == ncol - 1, line
+        assert line.count("$") % 2 == 0, line
+        assert line.count("{") == line.count("}"), line
+    assert "--direct" not in tex and "-{}-direct" in tex       # not an en dash
+    md = report.table_markdown(table)
+    assert {markdown_row_cells(line) for line in md.splitlines()
+            if line.startswith("|")} == {len(report.COLUMNS)}
+    assert "**Assumptions — direct-effect stress test from printed numbers:**" in md
+    assert "**Assumptions — calibration of direct effects:**" in md
+    assert "reference magnitudes" in md and "do not prove" in md
+    reader = list(csv.reader(io.StringIO(report.table_csv(table))))
+    assert tuple(reader[0]) == report.CSV_COLUMNS
+    assert len(reader) == 1 + n_rows and all(len(r) == len(report.CSV_COLUMNS) for r in reader)
+
+
+def test_new_rows_round_trip_through_csv_and_json(extra):
+    cal, bare = extra["calibrate_zfs"], extra["published_bare"]
+    table = report.results_table([bare, cal])
+    frame = pd.read_csv(io.StringIO(report.table_csv(table)), keep_default_na=False)
+    b = cal.benchmarks[1]
+    row = frame[frame["analysis"] == f"benchmark: direct effect of height_m without {b.name}"]
+    row = row.iloc[0]
+    assert float(row["estimate"]) == b.implied_direct                 # full precision
+    assert float(row["share_of_reduced_form"]) == b.implied_direct_rf
+    assert float(row["sd_units"]) == b.implied_direct_sd and row["suggestion"] == b.sweep_option
+    assert frame.iloc[0]["n"] == ""                                  # n not printed
+    doc = json.loads(report.table_json(table))
+    assert doc["rows"][0]["n"] is None and doc["rows"][0]["share_of_reduced_form"] is None
+    zrow = doc["rows"][-1]
+    z = cal.zero_first_stage
+    assert zrow["interval"] == [z.interval[0].to_list()] and zrow["se"] == float(z.se[0])
+    assert zrow["sd_units"] == z.direct_sd[0]
+    assert set(doc["assumptions"]) == {"direct-effect stress test from printed numbers",
+                                       "calibration of direct effects"}
+    md = report.table_markdown(report.results_table(bare))
+    assert "| — |" in md.splitlines()[4]                               # n shown as a dash
+
+
+def test_table_files_for_new_results(results, extra):
+    for kind in ("published", "calibrate"):
+        files = report.table_files(extra[kind])
+        assert set(files) == {f"{kind}-table.{ext}" for ext in ("md", "tex", "csv", "json")}
+        assert report.table_files(extra[kind]) == files
+    mixed = report.table_files([results["sweep"], extra["published"], extra["calibrate"]])
+    assert set(mixed) == {f"summary-table.{ext}" for ext in ("md", "tex", "csv", "json")}
+    assert report.results_table(extra["published"]).title.endswith("from printed numbers")
+
+
+def test_figure_files_for_new_results(results, extra):
+    pub = report.figure_files(extra["published"], ("png",))
+    assert set(pub) == {"published-curve.png", "published-frontier.png"}
+    cal = report.figure_files(extra["calibrate"], ("png", "svg"))
+    assert set(cal) == {"calibrate-benchmarks.png", "calibrate-benchmarks.svg"}
+    assert report.figure_files(extra["calibrate"], ("png", "svg")) == cal   # same bytes
+    mixed = report.figure_files([results["sweep"], extra["published"], extra["calibrate"],
+                                 extra["calibrate_zfs"]], ("png",), note="Invented data.")
+    assert set(mixed) == {"sweep-curve.png", "sweep-frontier.png", "published-curve.png",
+                          "published-frontier.png", "calibrate-benchmarks.png",
+                          "calibrate2-benchmarks.png", "summary-intervals.png"}
+    # calibrations alone bound no effect: no summary figure
+    two = report.figure_files([extra["calibrate"], extra["calibrate_zfs"]], ("png",))
+    assert set(two) == {"calibrate-benchmarks.png", "calibrate2-benchmarks.png"}
