@@ -89,6 +89,16 @@ def figure_formats(formats: Optional[list[str]]) -> tuple[str, ...]:
 
 
 
+def write_outputs(out: Optional[Path], result, files: dict, formats: tuple[str, ...]) -> None:
+    """Write a command's own files plus its tables (Markdown, LaTeX, CSV, JSON) and figures
+    into ``out`` — everything rendered first, then written atomically."""
+    if out is None:
+        return
+    from sensiv.report import figure_files, table_files, write_bundle
+
+    write_bundle(out, {**files, **table_files(result), **figure_files(result, formats)})
+
+
 def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant):
     from sensiv.data import Spec
 
@@ -121,19 +131,22 @@ def fit(
     small: bool = SMALL,
     constant: bool = CONSTANT,
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Also write fit.json and fit.md here."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Also write fit.json, fit.md, tables and a figure here."),
+    formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
     from sensiv import iv
     from sensiv.data import from_file
-    from sensiv.report import fit_markdown, to_json, write_bundle
+    from sensiv.report import fit_markdown, to_json
 
+    chosen = figure_formats(formats)
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
     document = result.to_dict()
     if out is not None:
-        write_bundle(out, {"fit.json": to_json(document), "fit.md": fit_markdown(result)})
+        write_outputs(out, result, {"fit.json": to_json(document), "fit.md": fit_markdown(result)},
+                      chosen)
     emit(document, str(result), as_json)
 
 
@@ -251,12 +264,14 @@ def sweep(
     focus: Optional[str] = FOCUS,
     adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Write sweep.json, sweep.md and curve.csv here."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write sweep.json, sweep.md, curve.csv, tables and figures here."),
+    formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Direct-effect sweep: identified set, union of intervals, breakdown point, robust set."""
     from sensiv import bounds, iv
-    from sensiv.report import sweep_files, write_bundle
+    from sensiv.report import sweep_files
 
+    chosen = figure_formats(formats)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = _data_options(data, outcome, treatment, instrument, control, cluster, weight,
                            constant)
@@ -265,7 +280,7 @@ def sweep(
                           confidence_level=level, small=small, threshold=threshold,
                           points=points, focus=focus, adaptive=adaptive)
     if out is not None:
-        write_bundle(out, sweep_files(result))
+        write_outputs(out, result, sweep_files(result), chosen)
     emit(result.to_dict(), str(result), as_json)
 
 
@@ -292,22 +307,26 @@ def prior(
     draws: int = typer.Option(200_000, "--draws", help="Monte Carlo draws (non-normal laws, several instruments)."),
     seed: int = typer.Option(0, "--seed", help="Seed of the Monte Carlo draws."),
     focus: Optional[str] = FOCUS,
+    threshold: float = typer.Option(0.0, "--threshold", help="Threshold for the prior map: which priors leave an interval that excludes it."),
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Write prior.json and prior.md here."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write prior.json, prior.md, tables and the prior map here."),
+    formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Interval for the effect when the direct effect follows a prior law."""
     from sensiv import iv
     from sensiv import prior as prior_layer
-    from sensiv.report import prior_files, write_bundle
+    from sensiv.report import prior_files
 
+    chosen = figure_formats(formats)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = _data_options(data, outcome, treatment, instrument, control, cluster, weight,
                            constant)
     result = prior_layer.prior_analysis(
         source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
-        se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed)
+        se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed,
+        threshold=threshold)
     if out is not None:
-        write_bundle(out, prior_files(result))
+        write_outputs(out, result, prior_files(result), chosen)
     emit(result.to_dict(), str(result), as_json)
 
 

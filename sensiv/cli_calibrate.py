@@ -12,7 +12,7 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import (CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, SE, SMALL,
+from sensiv.cli import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, SE, SMALL,
                         TREATMENT, WEIGHT, app, emit, guarded, spec_from_options)
 
 GROUP = typer.Option(None, "--group", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
@@ -37,12 +37,15 @@ def calibrate(
     no_first_stage_group: Optional[str] = NO_FIRST_STAGE_GROUP,
     as_json: bool = JSON,
     out: Optional[Path] = typer.Option(None, "--out", help="Also write calibrate.json and calibrate.md here."),
+    formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """How large a direct effect is plausible: reduced-form scale, covariate benchmarks and a
     zero-first-stage estimate, each turned into options for sweep and prior."""
     from sensiv import calibrate as calibration
     from sensiv import iv
-    from sensiv.report import to_json, write_bundle
+    from sensiv.report import to_json
+
+    chosen = figure_formats(formats)
 
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
@@ -52,6 +55,6 @@ def calibrate(
                                    confidence_level=level, small=small)
     document = result.to_dict()
     if out is not None:
-        write_bundle(out, {"calibrate.json": to_json(document),
-                           "calibrate.md": calibration.calibration_markdown(result)})
+        write_outputs(out, result, {"calibrate.json": to_json(document),
+                           "calibrate.md": calibration.calibration_markdown(result)}, chosen)
     emit(document, str(result), as_json)

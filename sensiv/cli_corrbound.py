@@ -11,7 +11,7 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import (CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
+from sensiv.cli import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
                         WEIGHT, app, emit, guarded, spec_from_options)
 
 MAX_RATIO = typer.Option(1.0, "--max-ratio", help="Largest ratio r̄ in [0, 1] of |corr(Z, u)| to |corr(X, u)|; 0 is the exclusion restriction.")
@@ -42,6 +42,7 @@ def corrbound(
     constant: bool = CONSTANT,
     as_json: bool = JSON,
     out: Optional[Path] = typer.Option(None, "--out", help="Also write corrbound.json and corrbound.md here."),
+    formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Bounds on the effect when each instrument may be correlated with the error, in the
     treatment's direction and at most --max-ratio times as strongly (Nevo & Rosen 2012)."""
@@ -49,7 +50,9 @@ def corrbound(
     from sensiv.errors import InputError
     from sensiv.partial_id.correlation import (bounds_markdown, check_one_treatment, check_options,
                                               correlation_bounds)
-    from sensiv.report import to_json, write_bundle
+    from sensiv.report import to_json
+
+    chosen = figure_formats(formats)
 
     if reps < 1:
         raise InputError(f"--reps {reps} is not a number of bootstrap replicates; give a "
@@ -63,6 +66,6 @@ def corrbound(
                                 reps=reps, seed=seed, confidence_level=level, progress=True)
     document = result.to_dict()
     if out is not None:
-        write_bundle(out, {"corrbound.json": to_json(document),
-                           "corrbound.md": bounds_markdown(result)})
+        write_outputs(out, result, {"corrbound.json": to_json(document),
+                           "corrbound.md": bounds_markdown(result)}, chosen)
     emit(document, str(result), as_json)

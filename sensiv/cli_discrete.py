@@ -7,7 +7,7 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, app, emit, guarded
+from sensiv.cli import FORMAT, figure_formats, write_outputs, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, app, emit, guarded
 
 EXIT_SOLVER_FAILURE = 1
 
@@ -51,12 +51,15 @@ def discrete(
     as_json: bool = JSON,
     out: Optional[Path] = typer.Option(None, "--out", help="Also write discrete.json and "
                                        "discrete.md here."),
+    formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Bounds on the effect of a discrete treatment with a budget for direct effects of a
     randomised discrete instrument (Balke-Pearl bounds at budget 0)."""
     from sensiv.errors import SolverError
     from sensiv.partial_id.discrete import discrete_bounds
-    from sensiv.report import to_json, write_bundle
+    from sensiv.report import to_json
+
+    chosen = figure_formats(formats)
 
     x, z = _one(treatment, "treatment"), _one(instrument, "instrument")
     if counts:
@@ -80,7 +83,8 @@ def discrete(
         raise typer.Exit(EXIT_SOLVER_FAILURE) from exc
     document = result.to_dict()
     if out is not None:
-        write_bundle(out, {"discrete.json": to_json(document), "discrete.md": _markdown(result)})
+        write_outputs(out, result, {"discrete.json": to_json(document),
+                                    "discrete.md": _markdown(result)}, chosen)
     emit(document, str(result), as_json)
 
 

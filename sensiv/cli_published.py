@@ -11,7 +11,7 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import JSON, LEVEL, THRESHOLD, app, emit, guarded
+from sensiv.cli import FORMAT, figure_formats, write_outputs, JSON, LEVEL, THRESHOLD, app, emit, guarded
 
 
 @app.command()
@@ -39,11 +39,14 @@ def published(
     level: float = LEVEL,
     as_json: bool = JSON,
     out: Optional[Path] = typer.Option(None, "--out", help="Write published.json and published.md here."),
+    formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Stress test from a paper's printed numbers: identified set, union of intervals,
     breakdown, weak-IV-robust set and prior interval (one instrument, no data)."""
     from sensiv.published import published_analysis, published_markdown
-    from sensiv.report import to_json, write_bundle
+    from sensiv.report import to_json
+
+    chosen = figure_formats(formats)
 
     result = published_analysis(
         estimate=estimate, se=se, first_stage=first_stage, first_stage_se=first_stage_se,
@@ -52,6 +55,6 @@ def published(
         confidence_level=level)
     document = result.to_dict()
     if out is not None:
-        write_bundle(out, {"published.json": to_json(document),
-                           "published.md": published_markdown(result)})
+        write_outputs(out, result, {"published.json": to_json(document),
+                           "published.md": published_markdown(result)}, chosen)
     emit(document, str(result), as_json)

@@ -40,7 +40,10 @@ def test_readme_sweep_example(tmp_path):
     assert result.exit_code == 0, result.stderr
     assert "Union of 95% intervals" in result.stdout
     assert "Caution" in result.stdout
-    assert {p.name for p in out.iterdir()} == {"sweep.json", "sweep.md", "curve.csv"}
+    assert {p.name for p in out.iterdir()} == {
+        "sweep.json", "sweep.md", "curve.csv", "sweep-table.md", "sweep-table.tex",
+        "sweep-table.csv", "sweep-table.json", "sweep-curve.png", "sweep-frontier.png"}
+    assert (out / "sweep-curve.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     curve = pd.read_csv(out / "curve.csv")
     assert len(curve) == 101 and list(curve.columns) == ["scale", "lower", "upper", "id_lower",
                                                           "id_upper"]
@@ -136,3 +139,27 @@ def test_sweep_adaptive_needs_one_treatment(tmp_path):
     bad(invoke("sweep", path, "--outcome", "y", "--treatment", "x1", "--treatment", "x2",
                "--instrument", "z1", "--instrument", "z2", "--direct=0:0", "--direct=0:0",
                "--adaptive"), "--adaptive needs one treatment")
+
+
+@pytest.mark.parametrize("command,args,figure", [
+    ("prior", ("--prior", "normal:0:0.003", "--threshold", "0.01"), "prior-map"),
+    ("corrbound", ("--max-ratio", "0.1", "--reps", "20", "--seed", "1"), "corrbound-curve"),
+    ("calibrate", (), "calibrate-benchmarks"),
+])
+def test_out_writes_tables_and_figures_in_each_format(tmp_path, command, args, figure):
+    out = tmp_path / "o"
+    result = invoke(command, EXAMPLE, *ROLES, *args, "--out", out, "--format", "svg",
+                    "--format", "pdf")
+    assert result.exit_code == 0, result.stderr
+    names = {p.name for p in out.iterdir()}
+    assert {f"{figure}.svg", f"{figure}.pdf", f"{command}-table.tex"} <= names
+    assert (out / f"{figure}.pdf").read_bytes().startswith(b"%PDF")
+    import xml.etree.ElementTree as ET
+
+    ET.parse(out / f"{figure}.svg")
+
+
+def test_bad_format_on_an_analysis_command(tmp_path):
+    bad(invoke("sweep", EXAMPLE, *ROLES, "--direct=0:0", "--out", tmp_path / "o", "--format",
+               "jpeg"), "--format 'jpeg'")
+    assert not (tmp_path / "o").exists()

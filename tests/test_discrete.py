@@ -581,7 +581,9 @@ def test_cli_counts_table_and_out_dir(tmp_path):
     assert from_rows.exit_code == 0 and from_cells.exit_code == 0, from_cells.stderr
     first, second = json.loads(from_rows.stdout), json.loads(from_cells.stdout)
     assert first["bounds"] == second["bounds"] and first["ci"] == second["ci"]
-    assert {p.name for p in out.iterdir()} == {"discrete.json", "discrete.md"}
+    assert {p.name for p in out.iterdir()} == {
+        "discrete.json", "discrete.md", "discrete-table.md", "discrete-table.tex", "discrete-table.csv",
+        "discrete-table.json", "discrete-curve.png"} | ({"published-frontier.png"} if "discrete" == "published" else set())
     assert json.loads((out / "discrete.json").read_text())["bounds"] == second["bounds"]
     markdown = (out / "discrete.md").read_text()
     assert "| budget |" in markdown and "Caution" in markdown
