@@ -564,8 +564,8 @@ def test_cli_text_and_out_dir(data, tmp_path):
     assert result.exit_code == 0, result.stderr
     assert "Identified set" in result.stdout and "Caution" in result.stdout
     assert {p.name for p in out.iterdir()} == {
-        "corrbound.json", "corrbound.md", "corrbound-table.md", "corrbound-table.tex", "corrbound-table.csv",
-        "corrbound-table.json", "corrbound-curve.png"} | ({"published-frontier.png"} if "corrbound" == "published" else set())
+        "corrbound.json", "corrbound.md", "corrbound-table.md", "corrbound-table.tex",
+        "corrbound-table.csv", "corrbound-table.json", "corrbound-curve.png"}
     doc = json.loads((out / "corrbound.json").read_text())
     assert doc["endogeneity"] == "positive"
     md = (out / "corrbound.md").read_text()

@@ -582,8 +582,8 @@ def test_cli_counts_table_and_out_dir(tmp_path):
     first, second = json.loads(from_rows.stdout), json.loads(from_cells.stdout)
     assert first["bounds"] == second["bounds"] and first["ci"] == second["ci"]
     assert {p.name for p in out.iterdir()} == {
-        "discrete.json", "discrete.md", "discrete-table.md", "discrete-table.tex", "discrete-table.csv",
-        "discrete-table.json", "discrete-curve.png"} | ({"published-frontier.png"} if "discrete" == "published" else set())
+        "discrete.json", "discrete.md", "discrete-table.md", "discrete-table.tex",
+        "discrete-table.csv", "discrete-table.json", "discrete-curve.png"}
     assert json.loads((out / "discrete.json").read_text())["bounds"] == second["bounds"]
     markdown = (out / "discrete.md").read_text()
     assert "| budget |" in markdown and "Caution" in markdown
