@@ -41,11 +41,12 @@ class Block:
 
 
 def _kind(result) -> str | None:
+    from sensiv.errors import InputError
     from sensiv.report import _kind as table_kind
 
     try:
         return table_kind(result)
-    except Exception:  # not (yet) a table/figure kind: shown as text
+    except InputError:  # not a table/figure kind: shown as its text summary
         return None
 
 

@@ -134,6 +134,10 @@ def prior_summary(res) -> str:
         + (f", Monte Carlo error {format_number(res.mc_error, 2)}, {res.draws} draws, seed "
            f"{res.seed}" if res.mc_error is not None else "") + ")",
     ]
+    if res.fit.overid is not None:
+        o = res.fit.overid
+        lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "
+                     f"p = {format_number(o.p_value, 3)}")
     for note in res.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
