@@ -33,7 +33,7 @@ from sensiv import distributions as dist
 from sensiv import iv, linalg
 from sensiv.errors import InputError, WeakInstrumentWarning
 from sensiv.moments import ScoreBlock, ScoreSums
-from sensiv.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.results import Interval, intervals_to_lists, json_number
 
 SCALE_MAX = 1000.0          # breakdown scales beyond this are reported as "never" (null)
 DEFAULT_POINTS = 101

@@ -88,7 +88,6 @@ def figure_formats(formats: Optional[list[str]]) -> tuple[str, ...]:
     return tuple(dict.fromkeys(chosen))
 
 
-
 def write_outputs(out: Optional[Path], result, files: dict, formats: tuple[str, ...]) -> None:
     """Write a command's own files plus its tables (Markdown, LaTeX, CSV, JSON) and figures
     into ``out`` — everything rendered first, then written atomically."""

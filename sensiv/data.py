@@ -199,7 +199,8 @@ class Layout:
 
 @dataclass(frozen=True, slots=True)
 class Chunk:
-    """Clean rows: ``values`` is ``(rows, len(layout.columns))`` float64, C-contiguous, finite.
+    """Clean rows: ``values`` is ``(rows, len(layout.columns))`` float64, column-major
+    (Fortran-contiguous: each column is one contiguous block, as the moments read them), finite.
 
     ``weights`` (all > 0) and ``clusters`` (no missing) are row-aligned with ``values`` or
     ``None``; ``n_dropped`` counts rows of this chunk dropped for a missing value.  A chunk
@@ -439,7 +440,8 @@ def _to_chunk(frame: pd.DataFrame, source: Source, tally: _Tally) -> Chunk:
     n_kept = int(keep.sum())
     tally.add(len(frame), n_kept, missing_counts)
 
-    values = np.empty((n_kept, len(layout.columns)), dtype=np.float64)
+    # Column-major: every column is written (and later read) as one contiguous block.
+    values = np.empty((n_kept, len(layout.columns)), dtype=np.float64, order="F")
     j = 0
     everything = n_kept == len(frame)
     for name in (spec.outcome, *spec.treatments, *spec.instruments, *spec.controls):
@@ -466,8 +468,7 @@ def _to_chunk(frame: pd.DataFrame, source: Source, tally: _Tally) -> Chunk:
         weights = np.ascontiguousarray(numeric[spec.weight][keep], dtype=np.float64)
     if spec.cluster is not None:
         clusters = frame[spec.cluster].to_numpy()[keep]
-    return Chunk(np.ascontiguousarray(values, dtype=np.float64), weights, clusters,
-                 len(frame) - n_kept)
+    return Chunk(values, weights, clusters, len(frame) - n_kept)
 
 
 def _level_index(levels: tuple[str, ...]) -> pd.Index:

@@ -803,7 +803,7 @@ def discrete_curve(discrete_result, ax=None, *, note: str | None = None):
                    + (f" {pct} interval: bootstrap (Imbens & Manski) at the analysed budget."
                       if ci is not None else ""),
                    *([words] if words else []),
-                   *([f"Hatched: budgets at which the model does not fit the data"
+                   *(["Hatched: budgets at which the model does not fit the data"
                       + (f" (it fits from ε = {format_number(r.min_budget, 3)})."
                          if r.min_budget is not None else " (none fits).")]
                      if empty.any() else [])]

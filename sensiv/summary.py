@@ -127,7 +127,7 @@ def prior_summary(res) -> str:
         f"(n = {res.n}, covariance: {res.se_type})",
         f"2SLS at zero direct effect: {format_number(res.estimate)} "
         f"(se {format_number(res.se)})",
-        f"Prior: " + "; ".join(f"{z} ~ {p}" for z, p in zip(res.instruments, res.priors)),
+        "Prior: " + "; ".join(f"{z} ~ {p}" for z, p in zip(res.instruments, res.priors)),
         "",
         f"{pct} prior interval: {res.interval}  (center {format_number(res.center)}, "
         f"method: {res.method}"

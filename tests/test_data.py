@@ -152,7 +152,7 @@ def test_values_match_frame_rows(frame):
 def test_chunk_contract(frame):
     for chunk in from_frame(frame, SPEC, chunk_rows=SMALL_CHUNK).chunks():
         assert isinstance(chunk, Chunk)
-        assert chunk.values.dtype == np.float64 and chunk.values.flags.c_contiguous
+        assert chunk.values.dtype == np.float64 and chunk.values.flags.f_contiguous
         assert np.isfinite(chunk.values).all()
         assert chunk.weights.dtype == np.float64 and (chunk.weights > 0).all()
         assert len(chunk.values) == len(chunk.weights) == len(chunk.clusters)
