@@ -155,6 +155,14 @@ class DirectSet:
         return bool(np.all(self.vertices == 0.0))
 
 
+def check_range_count(count: int, instruments: Sequence[str]) -> None:
+    """One ``--direct`` range per instrument, or an InputError saying so."""
+    if count != len(instruments):
+        raise InputError(f"{count} --direct range(s) for {len(instruments)} instrument(s) "
+                         f"({', '.join(instruments)}); give one per instrument, in instrument "
+                         "order")
+
+
 def box_set(instruments: Sequence[str], ranges: Sequence[tuple[float, float]]) -> DirectSet:
     """Γ = ``[low₁, high₁] × … × [low_k, high_k]`` in outcome units.
 
@@ -164,10 +172,7 @@ def box_set(instruments: Sequence[str], ranges: Sequence[tuple[float, float]]) -
     [-0.1, 0.2]
     """
     instruments = tuple(instruments)
-    if len(ranges) != len(instruments):
-        raise InputError(f"{len(ranges)} direct-effect range(s) for {len(instruments)} "
-                         f"instrument(s) ({', '.join(instruments)}); give one --direct per "
-                         "instrument, in instrument order")
+    check_range_count(len(ranges), instruments)
     lows = np.array([r[0] for r in ranges], float)
     highs = np.array([r[1] for r in ranges], float)
     if np.any(lows > highs):
@@ -301,8 +306,8 @@ class Core:
         return math.sqrt(float(self.quad[0, 0]))
 
 
-def focus_index(pieces: iv.Pieces, focus: str | None) -> int:
-    treatments = pieces.design.treatments
+def focus_index(treatments: Sequence[str], focus: str | None) -> int:
+    """Position of the ``--focus`` treatment (the first when ``None``); InputError otherwise."""
     if focus is None:
         return 0
     if focus not in treatments:
@@ -870,10 +875,7 @@ def _reduced_form_coef(pieces: iv.Pieces) -> np.ndarray:
 
 def resolve_ranges(ranges: Sequence[RangeSpec], scale: Scale) -> DirectSet:
     """Convert ``--direct`` ranges to outcome units and build the box Γ."""
-    k = len(scale.instruments)
-    if len(ranges) != k:
-        raise InputError(f"{len(ranges)} --direct range(s) for {k} instrument(s) "
-                         f"({', '.join(scale.instruments)}); give one per instrument, in order")
+    check_range_count(len(ranges), scale.instruments)
     out = []
     for j, r in enumerate(ranges):
         a, b = scale.to_outcome(j, r.low, r.unit), scale.to_outcome(j, r.high, r.unit)
@@ -941,18 +943,13 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     source = iv.as_source(data, spec, chunk_rows=chunk_rows)
     se = se or iv.default_se(source.spec)
     treatments = source.layout.treatments
-    if focus is not None and focus not in treatments:
-        raise InputError(f"--focus '{focus}' is not a treatment; choose one of "
-                         f"{', '.join(treatments)}")
-    if ranges and len(ranges) != len(source.layout.instruments):
-        raise InputError(f"{len(ranges)} --direct range(s) for {len(source.layout.instruments)}"
-                         f" instrument(s) ({', '.join(source.layout.instruments)}); give one "
-                         "per instrument, in instrument order")
+    j = focus_index(treatments, focus)
+    if ranges:
+        check_range_count(len(ranges), source.layout.instruments)
     dset_file = read_polytope(polytope, source.layout.instruments) if polytope else None
     if adaptive and len(treatments) != 1:
         raise InputError(f"--adaptive needs one treatment; got {len(treatments)} "
                          f"({', '.join(treatments)}): drop --adaptive or keep one treatment")
-    j = treatments.index(focus) if focus is not None else 0
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se, confidence_level=confidence_level, small=small,
         extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])

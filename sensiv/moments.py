@@ -17,7 +17,7 @@ keeps columns with a large mean (a calendar year, incomes in cents) well conditi
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Iterator, Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -296,11 +296,6 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
         s = sums[b.name]
         meats[b.name] = s.T @ s
     return ScoreSums(meats, len(index))
-
-
-def iterate_chunks(source) -> Iterator:
-    """The chunks of a data-layer source (kept as a function so tests can wrap it)."""
-    return iter(source.chunks())
 
 
 def check_rows(moments: Moments, n_parameters: int) -> None:

@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 
 from sensiv import iv
-from sensiv.bounds import CAUTION, Core, build_core, focus_block
+from sensiv.bounds import CAUTION, Core, build_core, focus_block, focus_index
 from sensiv.errors import InputError
 from sensiv.inference import Progress
 from sensiv.results import Interval, json_number
@@ -409,11 +409,7 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
         raise InputError(f"{len(laws)} --prior law(s) for {len(instruments)} instrument(s) "
                          f"({', '.join(instruments)}); give one per instrument, in order")
     moments_file = read_prior_file(prior_file, instruments) if prior_file else None
-    treatments = source.layout.treatments
-    if focus is not None and focus not in treatments:
-        raise InputError(f"--focus '{focus}' is not a treatment; choose one of "
-                         f"{', '.join(treatments)}")
-    j = treatments.index(focus) if focus is not None else 0
+    j = focus_index(source.layout.treatments, focus)
     se = se or iv.default_se(source.spec)
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se, confidence_level=confidence_level, small=small,

@@ -118,10 +118,6 @@ def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes])
         shutil.rmtree(staging, ignore_errors=True)
 
 
-def _interval_row(label: str, interval) -> list[str]:
-    return [label, str(interval)]
-
-
 def sweep_markdown(res) -> str:
     """Markdown report of a direct-effect sweep."""
     from sensiv.bounds import CAUTION
