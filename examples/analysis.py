@@ -13,11 +13,12 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from sensiv import bounds, iv, prior
-from sensiv.calibrate import calibrate
+from sensiv.sensitivity import bounds, prior
+from sensiv.estimation import iv
+from sensiv.sensitivity.calibrate import calibrate
 from sensiv.data import Spec, from_file
 from sensiv.partial_id.correlation import correlation_bounds
-from sensiv.report import figure_files, table_files, write_bundle
+from sensiv.present.report import figure_files, table_files, write_bundle
 
 HERE = Path(__file__).resolve().parent
 

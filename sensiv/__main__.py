@@ -1,5 +1,5 @@
 """``python -m sensiv`` runs the command line."""
 
-from sensiv.cli import main
+from sensiv.cli.app import main
 
 main()

@@ -19,12 +19,13 @@ import pandas as pd
 import pytest
 from linearmodels.iv import IV2SLS
 
-from sensiv import bounds, iv
-from sensiv.adaptive import (adaptive_from_data, adaptive_set, closed_form,
+from sensiv.sensitivity import bounds
+from sensiv.estimation import iv
+from sensiv.sensitivity.adaptive import (adaptive_from_data, adaptive_set, closed_form,
                              closed_form_relaxed_set, relaxed_set)
-from sensiv.bounds import ReducedForm, Scale
+from sensiv.sensitivity.bounds import ReducedForm, Scale
 from sensiv.data import Spec, from_frame
-from sensiv.errors import InaccurateSolveWarning, InputError, WeakInstrumentWarning
+from sensiv.core.errors import InaccurateSolveWarning, InputError, WeakInstrumentWarning
 
 TOL = 1e-7  # programme against closed form (issue contract)
 REL = 1e-8  # agreement with the reference library

@@ -17,9 +17,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sensiv import bounds, prior
+from sensiv.sensitivity import bounds, prior
 from sensiv.data import Spec, from_frame
-from sensiv.errors import InputError, WeakInstrumentWarning
+from sensiv.core.errors import InputError, WeakInstrumentWarning
 
 from linearmodels.iv import IV2SLS  # noqa: E402  (reference library, test extra)
 
@@ -67,7 +67,7 @@ def run_sweep(frame, k_z, ranges, se="robust", threshold=0.0, points=11, cluster
 
 
 def core_of(frame, k_z, se, cluster=None):
-    from sensiv import iv
+    from sensiv.estimation import iv
 
     source = from_frame(frame, spec_for(k_z, cluster))
     result, pieces, sums = iv.fit_with_pieces(

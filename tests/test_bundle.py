@@ -13,7 +13,7 @@ from pathlib import Path
 import pytest
 from typer.testing import CliRunner
 
-from sensiv.cli import app
+from sensiv.cli.app import app
 
 ROOT = Path(__file__).resolve().parents[1]
 runner = CliRunner()

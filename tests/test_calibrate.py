@@ -23,12 +23,12 @@ from typer.testing import CliRunner
 import linearmodels
 from linearmodels.iv import IV2SLS
 
-from sensiv import bounds
-from sensiv.calibrate import calibrate, parse_group
-from sensiv.cli import app
+from sensiv.sensitivity import bounds
+from sensiv.sensitivity.calibrate import calibrate, parse_group
+from sensiv.cli.app import app
 from sensiv.data import Spec, from_file, from_frame
-from sensiv.errors import InputError, WeakInstrumentWarning
-from sensiv.prior import parse_prior
+from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.sensitivity.prior import parse_prior
 
 LM_VERSION = linearmodels.__version__
 REL = 1e-8  # agreement with the reference library (issue contract)

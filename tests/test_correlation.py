@@ -23,10 +23,10 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
-from sensiv import iv
-from sensiv.cli import app
+from sensiv.estimation import iv
+from sensiv.cli.app import app
 from sensiv.data import Spec
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 from sensiv.partial_id import correlation as cb
 from sensiv.partial_id.correlation import PartialCorrelations, correlation_bounds
 
@@ -230,7 +230,7 @@ def test_brute_force_grid_from_raw_covariances():
 
 # ------------------------------------------------------------------ invariants
 def test_zero_ratio_collapses_to_2sls():
-    # reference library: linearmodels IV2SLS (coefficient at 1e-8) and sensiv.iv.fit.
+    # reference library: linearmodels IV2SLS (coefficient at 1e-8) and sensiv.estimation.iv.fit.
     frame = imperfect_iv(1_500, [0.3], seed=3)
     res = run(frame, ["z1"], ["w"], max_ratio=0.0)
     ref = IV2SLS(frame["y"], frame[["w"]].assign(const=1.0), frame[["x"]],

@@ -18,9 +18,9 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
-from sensiv.cli import app
+from sensiv.cli.app import app
 from sensiv.data import Spec, from_frame
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 from sensiv.partial_id.discrete import discrete_bounds, instrumental_inequality
 from sensiv.partial_id.discrete_data import (counts_from_frame, from_counts, read_counts,
                                              tabulate)

@@ -17,9 +17,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sensiv import iv
+from sensiv.estimation import iv
 from sensiv.data import Spec, from_chunks, from_frame
-from sensiv.errors import WeakInstrumentWarning
+from sensiv.core.errors import WeakInstrumentWarning
 
 linearmodels = pytest.importorskip("linearmodels")
 from linearmodels.iv import IV2SLS  # noqa: E402

@@ -13,7 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from sensiv.data import Spec, from_chunks, from_file, from_frame
-from sensiv.moments import ScoreBlock, accumulate, chunk_moments, score_sums
+from sensiv.estimation.moments import ScoreBlock, accumulate, chunk_moments, score_sums
 
 TOL = 1e-10  # issue contract: relative difference between sources
 

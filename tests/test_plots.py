@@ -21,13 +21,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sensiv import bounds, plots, prior
+from sensiv.sensitivity import bounds, prior
+from sensiv.present import plots
 from sensiv.data import Spec
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 from sensiv.partial_id.correlation import correlation_bounds
 from sensiv.partial_id.discrete import discrete_bounds
 from sensiv.partial_id.discrete_data import from_counts
-from sensiv.results import Interval
+from sensiv.core.results import Interval
 
 REL = 1e-9
 
@@ -141,7 +142,7 @@ def test_figure_draws_into_given_axes(results):
 
 
 def test_importing_plots_does_not_import_matplotlib():
-    code = "import sys, sensiv.plots, sensiv.report; print('matplotlib' in sys.modules)"
+    code = "import sys, sensiv.present.plots, sensiv.present.report; print('matplotlib' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)
     assert out.stdout.strip() == "False"
@@ -336,7 +337,7 @@ def test_extended_curve_reaches_the_threshold(results):
 
 
 def test_prior_map_matches_the_closed_form_interval():
-    # each cell equals sensiv.prior.normal_interval at that prior (Conley, Hansen & Rossi
+    # each cell equals sensiv.sensitivity.prior.normal_interval at that prior (Conley, Hansen & Rossi
     # 2012 closed form)
     core = bounds.Core("x", ("z",), 0.7, np.array([-2.0]), np.diag([0.01, 0.0]), 1.96)
     pm = prior.prior_map(core, np.array([0.05]), np.array([[0.03**2]]), 0.2, points=9)
@@ -399,8 +400,8 @@ def two_instruments(n=800, seed=4):
 
 @pytest.fixture(scope="module")
 def extra():
-    from sensiv.calibrate import calibrate
-    from sensiv.published import published_analysis
+    from sensiv.sensitivity.calibrate import calibrate
+    from sensiv.sensitivity.published import published_analysis
 
     clay = pd.read_csv(EXAMPLE).assign(clay=lambda f: (f["soil"] == "clay").astype(int))
     frame2, spec2 = two_instruments()
@@ -583,7 +584,7 @@ def test_calibration_figure_with_several_instruments_uses_shares(extra):
 
 
 def test_calibration_figure_needs_something_to_draw(extra):
-    from sensiv.calibrate import calibrate
+    from sensiv.sensitivity.calibrate import calibrate
 
     bare = calibrate(EXAMPLE, Spec("maize_yield", ["irrigation_hours"], ["height_m"]))
     assert not bare.benchmarks and bare.zero_first_stage is None

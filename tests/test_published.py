@@ -2,7 +2,7 @@
 
 Sources beside each check:
 * data route (this package, itself checked against linearmodels in tests/test_bounds.py):
-  ``sensiv.bounds.sweep`` and ``sensiv.prior.prior_analysis`` on the same data;
+  ``sensiv.sensitivity.bounds.sweep`` and ``sensiv.sensitivity.prior.prior_analysis`` on the same data;
 * reference library: linearmodels ``IV2SLS`` without endogenous regressors for the reduced form
   (outcome on instrument and controls) and its standard error;
 * Wooldridge, *Introductory Econometrics*, Example 15.1 (mroz, women with wages): printed IV
@@ -41,12 +41,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
 
-from sensiv import bounds, iv
-from sensiv import prior as prior_layer
-from sensiv.cli import app
+from sensiv.sensitivity import bounds
+from sensiv.estimation import iv
+from sensiv.sensitivity import prior as prior_layer
+from sensiv.cli.app import app
 from sensiv.data import Spec, from_frame
-from sensiv.errors import InputError, WeakInstrumentWarning
-from sensiv.published import (METHOD_BACKED_OUT, METHOD_CLIPPED, METHOD_WORST,
+from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.sensitivity.published import (METHOD_BACKED_OUT, METHOD_CLIPPED, METHOD_WORST,
                               InconsistentInputWarning, published_analysis)
 
 from linearmodels.iv import IV2SLS  # noqa: E402  (reference library, test extra)
@@ -101,7 +102,7 @@ CASES = {  # data set, covariance, --direct (outcome units), threshold
 
 
 def reported(frame, spec, se, cluster):
-    """The numbers a paper would print: from ``sensiv.iv.fit`` (estimate, se, first stage) and
+    """The numbers a paper would print: from ``sensiv.estimation.iv.fit`` (estimate, se, first stage) and
     the reference library's OLS of the outcome on instrument and controls (reduced form)."""
     fit = iv.fit(from_frame(frame, spec), se=se)
     t, z = spec.treatments[0], spec.instruments[0]
@@ -158,7 +159,7 @@ def case(request):
 
 # ------------------------------------------------------------------ the key check: data vs printed
 def test_published_reproduces_the_data_sweep(case):
-    # data route: sensiv.bounds.sweep on the same rows; tolerance derived in the module docstring
+    # data route: sensiv.sensitivity.bounds.sweep on the same rows; tolerance derived in the module docstring
     nums, sw = case["nums"], case["sweep"]
     k = kappa(nums)
     assert k < MAX_KAPPA
@@ -284,7 +285,7 @@ def test_worst_case_contains_the_data_route(case):
 
 
 def test_prior_intervals_match_the_data_route():
-    # data route: sensiv.prior.prior_analysis on mroz (closed form and quadrature); both use
+    # data route: sensiv.sensitivity.prior.prior_analysis on mroz (closed form and quadrature); both use
     # only the variance at zero direct effect and the slope 1/π, so they agree to 1e-9
     frame, spec, _ = mroz()
     nums = reported(frame, spec, "classic", None)

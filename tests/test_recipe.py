@@ -11,10 +11,11 @@ from pathlib import Path
 
 import pytest
 
-from sensiv import bounds, iv
+from sensiv.sensitivity import bounds
+from sensiv.estimation import iv
 from sensiv.data import Spec, from_file
-from sensiv.errors import InputError
-from sensiv.recipe import parse_recipe, run_recipe
+from sensiv.core.errors import InputError
+from sensiv.recipes.recipe import parse_recipe, run_recipe
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -125,7 +126,7 @@ direct = ["0:0"]
 
 
 def test_published_study_needs_no_data(folder):
-    from sensiv.published import published_analysis
+    from sensiv.sensitivity.published import published_analysis
 
     text = """\
 [[study]]
@@ -150,7 +151,7 @@ direct = ["-0.25:0.25rf"]
 
 
 def test_calibrate_in_a_recipe(folder):
-    from sensiv.calibrate import calibrate
+    from sensiv.sensitivity.calibrate import calibrate
 
     text = GOOD + """
 [[analysis]]

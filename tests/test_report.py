@@ -18,13 +18,15 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sensiv import bounds, iv, prior, report
+from sensiv.sensitivity import bounds, prior
+from sensiv.estimation import iv
+from sensiv.present import report
 from sensiv.data import Spec
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 from sensiv.partial_id.correlation import correlation_bounds
 from sensiv.partial_id.discrete import discrete_bounds
 from sensiv.partial_id.discrete_data import from_counts
-from sensiv.results import Interval
+from sensiv.core.results import Interval
 
 
 def design(n=300, seed=11, strength=0.8):
@@ -238,8 +240,8 @@ def irrigation_spec():
 
 @pytest.fixture(scope="module")
 def extra():
-    from sensiv.calibrate import calibrate
-    from sensiv.published import published_analysis
+    from sensiv.sensitivity.calibrate import calibrate
+    from sensiv.sensitivity.published import published_analysis
 
     clay = pd.read_csv(EXAMPLE).assign(clay=lambda f: (f["soil"] == "clay").astype(int))
     with warnings.catch_warnings():

@@ -42,11 +42,11 @@ from typing import Literal
 
 import numpy as np
 
-from sensiv import linalg
-from sensiv.errors import InaccurateSolveWarning, InputError, SolverError
-from sensiv.iv import build_design, prepare
-from sensiv.moments import Moments, accumulate, chunk_moments
-from sensiv.results import Interval, format_number, json_number
+from sensiv.estimation import linalg
+from sensiv.core.errors import InaccurateSolveWarning, InputError, SolverError
+from sensiv.estimation.iv import build_design, prepare
+from sensiv.estimation.moments import Moments, accumulate, chunk_moments
+from sensiv.core.results import Interval, format_number, json_number
 
 Endogeneity = Literal["positive", "negative", "unknown"]
 ENDOGENEITY: tuple[str, ...] = ("positive", "negative", "unknown")
@@ -97,10 +97,10 @@ class PartialCorrelations:
 def partial_correlations(moments: Moments, layout) -> PartialCorrelations | None:
     """Partial correlations of ``[y, X, Z]`` given the controls, from moments only.
 
-    Uses the design maps of :func:`sensiv.iv.build_design` on the augmented centred rows, so
+    Uses the design maps of :func:`sensiv.estimation.iv.build_design` on the augmented centred rows, so
     the constant, numeric and indicator controls are handled exactly as in the 2SLS fit.
     Returns ``None`` when a partialled standard deviation is zero or not finite (a degenerate
-    bootstrap replicate); the boundary checks of :func:`sensiv.iv.prepare` run before this on
+    bootstrap replicate); the boundary checks of :func:`sensiv.estimation.iv.prepare` run before this on
     the original data.
     """
     design = build_design(moments, layout.outcome, layout.treatments, layout.instruments,
@@ -699,7 +699,7 @@ def _hull(pc: PartialCorrelations, signs: Sequence[int],
 
 def _bootstrap(rows, layout, signs, ratio, estimate: Interval, reps, seed, confidence_level,
                progress) -> BootstrapSummary:
-    from sensiv.inference import Progress, imbens_manski
+    from sensiv.estimation.inference import Progress, imbens_manski
 
     values, weights, codes = rows
     lows, highs = np.full(reps, np.nan), np.full(reps, np.nan)
@@ -825,7 +825,7 @@ def correlation_bounds(data, spec=None, *, max_ratio: float = DEFAULT_MAX_RATIO,
     if hasattr(data, "chunks"):
         source = data
     else:
-        from sensiv import data as data_layer
+        from sensiv.data import source as data_layer
 
         source = data_layer.load(data, spec, chunk_rows=chunk_rows)
     spec = source.spec

@@ -35,14 +35,14 @@ import math
 
 import numpy as np
 
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 from sensiv.partial_id.discrete_data import CountsTable, plain_number
 from sensiv.partial_id.discrete_programme import Programmes, curve
 from sensiv.partial_id.discrete_results import (CAUTION, Bootstrap, ContrastBounds,
                                                 CurvePoint, DiscreteBounds,
                                                 InstrumentalInequality)
 from sensiv.partial_id.discrete_types import Enumeration
-from sensiv.results import Interval
+from sensiv.core.results import Interval
 
 __all__ = ["CAUTION", "Bootstrap", "ContrastBounds", "CurvePoint", "DiscreteBounds",
            "InstrumentalInequality", "discrete_bounds", "instrumental_inequality"]
@@ -127,7 +127,7 @@ def _curve_end(budget: float, min_budget: float | None, breakdowns) -> float:
 def _bootstrap(programmes: Programmes, counts: np.ndarray, budget: float, defiers: float,
                reps: int, seed: int, progress: bool):
     """Replicate bounds ``(reps, contrasts, 2)`` (NaN where unavailable) and the tallies."""
-    from sensiv.inference import Progress
+    from sensiv.estimation.inference import Progress
 
     K, J, L = counts.shape
     rng = np.random.default_rng(seed)
@@ -246,7 +246,7 @@ def discrete_bounds(table: CountsTable, budget: float = DEFAULT_BUDGET, *,
     for c in contrasts:
         bounds, se, ci = _interval(estimates[c]), spreads[c], None
         if bounds is not None and se is not None:
-            from sensiv.inference import imbens_manski
+            from sensiv.estimation.inference import imbens_manski
 
             ci = imbens_manski(bounds.low, bounds.high, *se, confidence_level)
         results.append(ContrastBounds(float(table.treatment_levels[c]),

@@ -31,7 +31,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 
 if TYPE_CHECKING:
     import pandas as pd

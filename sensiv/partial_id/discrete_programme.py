@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from sensiv.errors import SolverError
+from sensiv.core.errors import SolverError
 from sensiv.partial_id.discrete_types import Columns, Design, Enumeration, make_design
 from sensiv.partial_id.solver import solve
 

@@ -57,7 +57,7 @@ from typing import Literal
 
 import numpy as np
 
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 
 Enumeration = Literal["reduced", "full"]
 MAX_FULL_TYPES = 200_000

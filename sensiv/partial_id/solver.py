@@ -14,7 +14,7 @@ import warnings
 from dataclasses import dataclass
 from typing import Literal
 
-from sensiv.errors import InaccurateSolveWarning, SolverError
+from sensiv.core.errors import InaccurateSolveWarning, SolverError
 
 LP_SOLVER = "HIGHS"
 Outcome = Literal["optimal", "infeasible", "unbounded"]

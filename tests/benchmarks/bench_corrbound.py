@@ -66,7 +66,7 @@ def main(argv: list[str] | None = None) -> int:
     import numpy as np
 
     from sensiv.data import from_frame
-    from sensiv.moments import accumulate
+    from sensiv.estimation.moments import accumulate
     from sensiv.partial_id import correlation as cb
 
     spec = _design.spec()

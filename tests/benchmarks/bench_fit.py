@@ -52,9 +52,9 @@ def best_time(function, repeats: int):
 
 
 def sensiv_fit(frame, spec):
-    from sensiv import iv
+    from sensiv.estimation import iv
     from sensiv.data import from_frame
-    from sensiv.errors import WeakInstrumentWarning
+    from sensiv.core.errors import WeakInstrumentWarning
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", WeakInstrumentWarning)

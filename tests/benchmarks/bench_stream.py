@@ -64,8 +64,8 @@ def _peak_rss_kb() -> int:
 def _quiet_fit(source):
     import warnings
 
-    from sensiv import iv
-    from sensiv.errors import WeakInstrumentWarning
+    from sensiv.estimation import iv
+    from sensiv.core.errors import WeakInstrumentWarning
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", WeakInstrumentWarning)
@@ -122,9 +122,9 @@ def child_baseline() -> dict:
     import pyarrow.parquet  # noqa: F401
 
     import sensiv  # noqa: F401
-    import sensiv.data  # noqa: F401
-    import sensiv.iv  # noqa: F401
-    import sensiv.moments  # noqa: F401
+    import sensiv.data.source  # noqa: F401
+    import sensiv.estimation.iv  # noqa: F401
+    import sensiv.estimation.moments  # noqa: F401
 
     return {"peak_rss_kb": _peak_rss_kb()}
 
@@ -141,7 +141,7 @@ def child_compare(path: Path, repeats: int, profile: bool) -> dict:
     import pandas as pd
 
     from sensiv.data import from_frame
-    from sensiv.moments import accumulate
+    from sensiv.estimation.moments import accumulate
 
     spec = _design.spec()
     _quiet_fit(from_frame(_design.frame(WARMUP_N), spec))  # first-call imports, untimed

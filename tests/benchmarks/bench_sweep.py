@@ -56,7 +56,7 @@ def best_time(function, repeats):
 
 
 def quiet(function):
-    from sensiv.errors import WeakInstrumentWarning
+    from sensiv.core.errors import WeakInstrumentWarning
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", WeakInstrumentWarning)
@@ -72,7 +72,8 @@ def main(argv=None) -> int:
     import numpy as np
     from linearmodels.iv import IV2SLS
 
-    from sensiv import bounds, iv
+    from sensiv.sensitivity import bounds
+    from sensiv.estimation import iv
     from sensiv.data import from_frame
 
     spec = _design.spec()

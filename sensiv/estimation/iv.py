@@ -3,7 +3,7 @@ r"""Two-stage least squares and its diagnostics, computed from moments.
 Model: ``y = X β + W κ + u`` with endogenous ``X`` (``k_x`` columns), excluded instruments ``Z``
 (``k_z ≥ k_x``) and exogenous controls ``W`` (with a constant unless switched off).
 
-Every quantity is computed from :class:`sensiv.moments.Moments` (pass 1) and, for robust and
+Every quantity is computed from :class:`sensiv.estimation.moments.Moments` (pass 1) and, for robust and
 cluster covariances, from one pass of score sums (pass 2); nothing is refitted on rows.  Linear
 maps act on the augmented centred row ``d̃ = [1, d − μ]``.  With a constant, slopes are solved
 in centred coordinates and the intercept recovered by an exact reparameterisation
@@ -27,11 +27,11 @@ from typing import Literal
 
 import numpy as np
 
-from sensiv import distributions as dist
-from sensiv import linalg
-from sensiv.errors import InputError, WeakInstrumentWarning
-from sensiv.moments import Moments, ScoreBlock, ScoreSums, accumulate, check_rows, score_sums
-from sensiv.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.estimation import distributions as dist
+from sensiv.estimation import linalg
+from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums, accumulate, check_rows, score_sums
+from sensiv.core.results import Interval, format_number, intervals_to_lists, json_number
 
 SEType = Literal["classic", "robust", "cluster"]
 SE_TYPES: tuple[str, ...] = ("classic", "robust", "cluster")
@@ -385,7 +385,7 @@ class IVFit:
         return out
 
     def __str__(self) -> str:
-        from sensiv.summary import fit_summary
+        from sensiv.present.summary import fit_summary
 
         return fit_summary(self)
 
@@ -644,7 +644,7 @@ def as_source(data, spec=None, *, chunk_rows: int | None = None):
     """A data-layer source from a source, a DataFrame or a path (with ``spec``)."""
     if hasattr(data, "chunks"):
         return data
-    from sensiv import data as data_layer
+    from sensiv.data import source as data_layer
 
     return data_layer.load(data, spec, chunk_rows=chunk_rows)
 

@@ -17,7 +17,7 @@ The direct-effect figures put on the x-axis the allowed direct effect ``x = t·e
 scale of the stated set Γ and ``e`` its end of largest magnitude (one instrument, outcome
 units), or ``x = t`` itself with several instruments.  The top axis converts ``x`` to a share
 of the reduced-form coefficient using ``direct_set_rf`` of the result.  They draw a sweep from
-data or a stress test of published numbers alike (:class:`~sensiv.published.PublishedResult`:
+data or a stress test of published numbers alike (:class:`~sensiv.sensitivity.published.PublishedResult`:
 one instrument, its set a single interval, and the caption says the numbers are printed ones).
 The benchmark figure of a calibration puts the implied direct effects in outcome units on the
 x-axis and their share of the reduced form on the top axis.
@@ -30,8 +30,8 @@ import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from sensiv.errors import InputError
-from sensiv.results import Interval, format_number
+from sensiv.core.errors import InputError
+from sensiv.core.results import Interval, format_number
 
 # ----------------------------------------------------------------------------- palette
 # A blue/orange pair with neutral greys: the two hues stay apart under the common forms of
@@ -361,10 +361,10 @@ class _DirectView:
     direct_set_rf: tuple[Interval, ...] | None
     confidence_level: float
     focus: str
-    breakdown: object            # sensiv.bounds.Breakdown
-    curve: object                # sensiv.bounds.Curve
+    breakdown: object            # sensiv.sensitivity.bounds.Breakdown
+    curve: object                # sensiv.sensitivity.bounds.Curve
     curve_extended: object | None
-    frontier: object | None      # sensiv.bounds.Frontier
+    frontier: object | None      # sensiv.sensitivity.bounds.Frontier
     caption: str
     recompute: str               # how to get a frontier when the result has none
     # Layout fixes: fewer x ticks (labels such as "−0.25" can touch), no region label on a
@@ -373,8 +373,8 @@ class _DirectView:
 
 
 def _direct_view(result) -> _DirectView:
-    from sensiv.bounds import SweepResult
-    from sensiv.published import PublishedResult
+    from sensiv.sensitivity.bounds import SweepResult
+    from sensiv.sensitivity.published import PublishedResult
 
     if isinstance(result, SweepResult):
         return _DirectView(result.instruments, result.direct_set, result.direct_set_rf,
@@ -382,23 +382,23 @@ def _direct_view(result) -> _DirectView:
                            result.curve, result.curve_extended, result.frontier,
                            _sweep_caption(result),
                            "this sweep result has no breakdown frontier (it was built without "
-                           "sensiv.bounds.analyse); recompute it with sensiv.bounds.sweep")
+                           "sensiv.sensitivity.bounds.analyse); recompute it with sensiv.sensitivity.bounds.sweep")
     if isinstance(result, PublishedResult):
-        from sensiv.published import INSTRUMENT
+        from sensiv.sensitivity.published import INSTRUMENT
 
         rf = (result.direct_set_rf,) if result.direct_set_rf is not None else None
         return _DirectView((INSTRUMENT,), (result.direct_set,), rf, result.confidence_level,
                            result.focus, result.breakdown, result.curve,
                            result.curve_extended, result.frontier, _published_caption(result),
                            "this published result has no breakdown frontier; recompute it "
-                           "with sensiv.published.published_analysis")
+                           "with sensiv.sensitivity.published.published_analysis")
     raise InputError(f"the direct-effect figures draw a sweep or a published stress test, not a "
-                     f"{type(result).__name__}; give a sensiv.bounds.SweepResult or a "
-                     "sensiv.published.PublishedResult")
+                     f"{type(result).__name__}; give a sensiv.sensitivity.bounds.SweepResult or a "
+                     "sensiv.sensitivity.published.PublishedResult")
 
 
 def _covariance_words(method: str) -> str:
-    from sensiv import published
+    from sensiv.sensitivity import published
 
     return {published.METHOD_BACKED_OUT: "covariance of reduced form and first stage backed "
                                          "out of the printed se (delta method)",
@@ -434,7 +434,7 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
 
     Parameters
     ----------
-    sweep : sensiv.bounds.SweepResult or sensiv.published.PublishedResult
+    sweep : sensiv.sensitivity.bounds.SweepResult or sensiv.sensitivity.published.PublishedResult
         A stress test of published numbers is drawn the same way, with a caption that says so.
     ax : matplotlib.axes.Axes, optional
     note : str, optional
@@ -508,7 +508,7 @@ def _mark_curve_breakdown(ax, sweep, axis: _DirectAxis, x_end: float,
     b = sweep.breakdown
     theta = format_number(b.threshold)
     if b.scale is None:
-        from sensiv.bounds import SCALE_MAX
+        from sensiv.sensitivity.bounds import SCALE_MAX
 
         return (f"Breakdown: none within the range — the union interval does not reach "
                 f"{theta} within {format_number(SCALE_MAX)} times the stated set.")
@@ -543,7 +543,7 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
     conclusion ``β > θ`` below the ordinary interval, ``β < θ`` above it); right of it, the
     interval reaches θ.  Between the ends of the ordinary interval there is no conclusion to
     break.  The threshold of the sweep and its breakdown are marked.  A stress test of
-    published numbers (:class:`~sensiv.published.PublishedResult`) is drawn the same way.
+    published numbers (:class:`~sensiv.sensitivity.published.PublishedResult`) is drawn the same way.
 
     Returns
     -------
@@ -589,7 +589,7 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
                                 linestyle="none", zorder=5, clip_on=False, label="breakdown")
             marker.set_gid("breakdown")
         else:
-            from sensiv.bounds import SCALE_MAX
+            from sensiv.sensitivity.bounds import SCALE_MAX
 
             words = (f"Breakdown of the examined threshold: none within "
                      f"{format_number(SCALE_MAX)} times the stated set.")
@@ -602,7 +602,7 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
         ax.set_ylabel("threshold θ")
         top = _share_axis(ax, axis, x_end)
         if clipped.any():
-            from sensiv.bounds import SCALE_MAX
+            from sensiv.sensitivity.bounds import SCALE_MAX
 
             words = ((words + " ") if words else "") + (
                 f"Where the frontier runs along the right edge, the breakdown lies beyond the "
@@ -660,7 +660,7 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
     pm = prior_result.prior_map
     if pm is None:
         raise InputError("this prior result has no prior map; recompute it with "
-                         "sensiv.prior.prior_analysis")
+                         "sensiv.sensitivity.prior.prior_analysis")
     with _style():
         canvas = _canvas(ax)
         ax = canvas.ax
@@ -922,20 +922,20 @@ FAMILY_COLOURS = {"exclusion": INK, "direct effect": BLUE, "partial identificati
 def summary_items(*results) -> list[SummaryItem]:
     """Rows for :func:`summary_intervals` from result objects, in the order given.
 
-    Accepts :class:`~sensiv.iv.IVFit`, :class:`~sensiv.bounds.SweepResult`,
-    :class:`~sensiv.prior.PriorResult`, correlation bounds, discrete bounds and
-    :class:`~sensiv.published.PublishedResult` (its rows labelled "from printed numbers").  The
+    Accepts :class:`~sensiv.estimation.iv.IVFit`, :class:`~sensiv.sensitivity.bounds.SweepResult`,
+    :class:`~sensiv.sensitivity.prior.PriorResult`, correlation bounds, discrete bounds and
+    :class:`~sensiv.sensitivity.published.PublishedResult` (its rows labelled "from printed numbers").  The
     2SLS and Anderson–Rubin rows come once, from the first fit found (a sweep or a prior result
-    carries its fit).  A :class:`~sensiv.calibrate.Calibration` bounds no effect of the
+    carries its fit).  A :class:`~sensiv.sensitivity.calibrate.Calibration` bounds no effect of the
     treatment and adds no row.
     """
-    from sensiv.bounds import SweepResult
-    from sensiv.calibrate import Calibration
-    from sensiv.iv import IVFit
+    from sensiv.sensitivity.bounds import SweepResult
+    from sensiv.sensitivity.calibrate import Calibration
+    from sensiv.estimation.iv import IVFit
     from sensiv.partial_id.correlation import CorrelationBounds
     from sensiv.partial_id.discrete_results import DiscreteBounds
-    from sensiv.prior import PriorResult
-    from sensiv.published import PublishedResult
+    from sensiv.sensitivity.prior import PriorResult
+    from sensiv.sensitivity.published import PublishedResult
 
     items: list[SummaryItem] = []
     fit_done = False
@@ -1233,12 +1233,12 @@ def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
     With one instrument the x-axis is in outcome units (the direct effect of a unit of the
     instrument) and the top axis gives the share of the instrument's reduced form; with several
     the x-axis is the share of each instrument's own reduced form, which makes the rows
-    comparable.  Every number is read from :class:`~sensiv.calibrate.Calibration`
+    comparable.  Every number is read from :class:`~sensiv.sensitivity.calibrate.Calibration`
     (``benchmarks``, ``zero_first_stage``, ``scale``).
 
     Parameters
     ----------
-    calibration : sensiv.calibrate.Calibration
+    calibration : sensiv.sensitivity.calibrate.Calibration
     ax : matplotlib.axes.Axes, optional
     note : str, optional
         A last caption line (e.g. that the data are invented).
@@ -1299,7 +1299,7 @@ def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
             ax.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))
             ax.set_xlabel("implied direct effect as a share of its instrument's reduced form")
             top = False
-        from sensiv.iv import WEAK_F
+        from sensiv.estimation.iv import WEAK_F
 
         caption = ["Reference magnitudes, not the true direct effect."]
         which = (f"of {instruments}" if single else

@@ -5,7 +5,7 @@ This module offers three yardsticks, each computed from moments:
 
 * **scale** — the reduced-form coefficient ``ρ_k`` of each instrument (controls partialled
   out), the outcome SD and each instrument's SD (weighted, divisor ``Σw``; the definitions of
-  :class:`sensiv.bounds.Scale`), so that a direct effect ``γ_k`` reads as a share of the
+  :class:`sensiv.sensitivity.bounds.Scale`), so that a direct effect ``γ_k`` reads as a share of the
   reduced form, ``γ_k / ρ_k``, or in SD units, ``γ_k · SD(z_k) / SD(y)``;
 * **covariate benchmarks** — for each control (or named group of controls), the shift in the
   instruments' reduced-form coefficients when that control is left out,
@@ -35,12 +35,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from sensiv import distributions as dist
-from sensiv import iv, linalg
-from sensiv.bounds import Scale
-from sensiv.errors import InputError
-from sensiv.moments import Moments, ScoreBlock, accumulate, score_sums
-from sensiv.results import Interval, format_number, json_number
+from sensiv.estimation import distributions as dist
+from sensiv.estimation import iv, linalg
+from sensiv.sensitivity.bounds import Scale
+from sensiv.core.errors import InputError
+from sensiv.estimation.moments import Moments, ScoreBlock, accumulate, score_sums
+from sensiv.core.results import Interval, format_number, json_number
 
 # Significant digits of the option strings offered for `sweep` and `prior`; range ends are
 # rounded outwards so that the offered range contains the computed one.
@@ -126,7 +126,7 @@ def instrument_coefficients(moments: Moments, design: iv.Design) -> np.ndarray:
 
 def scale_from_moments(moments: Moments, outcome: str, instruments: Sequence[str],
                        reduced_form: np.ndarray) -> Scale:
-    """The units of :class:`sensiv.bounds.Scale` (weighted SDs with divisor ``Σw``)."""
+    """The units of :class:`sensiv.sensitivity.bounds.Scale` (weighted SDs with divisor ``Σw``)."""
     return Scale(tuple(instruments), np.asarray(reduced_form, float),
                  math.sqrt(moments.variance(outcome)),
                  np.array([math.sqrt(moments.variance(z)) for z in instruments]))
@@ -286,7 +286,7 @@ class ZeroFirstStage:
     @property
     def premise_doubtful(self) -> bool:
         """True when some first-stage F in the subgroup reaches the weak-instrument rule of
-        thumb (:data:`sensiv.iv.WEAK_F`): the instrument seems to move the treatment there."""
+        thumb (:data:`sensiv.estimation.iv.WEAK_F`): the instrument seems to move the treatment there."""
         return any(f >= iv.WEAK_F for f in self.first_stage_f.values())
 
     @property
@@ -796,7 +796,7 @@ def calibration_text(cal: Calibration) -> str:
 
 def calibration_markdown(cal: Calibration) -> str:
     """Markdown report (formatting only)."""
-    from sensiv.report import markdown_table
+    from sensiv.present.report import markdown_table
 
     s = cal.scale
     parts = [

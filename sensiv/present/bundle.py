@@ -14,7 +14,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from sensiv import __version__
-from sensiv.bounds import CAUTION
+from sensiv.sensitivity.bounds import CAUTION
 
 REPORT_CAUTION = (
     "Every interval below holds only under the assumption stated beside it. Sensitivity "
@@ -41,8 +41,8 @@ class Block:
 
 
 def _kind(result) -> str | None:
-    from sensiv.errors import InputError
-    from sensiv.report import _kind as table_kind
+    from sensiv.core.errors import InputError
+    from sensiv.present.report import _kind as table_kind
 
     try:
         return table_kind(result)
@@ -52,14 +52,14 @@ def _kind(result) -> str | None:
 
 def _figure_files(results: Sequence, formats: Sequence[str], note: str | None
                   ) -> dict[str, bytes]:
-    from sensiv.report import figure_files
+    from sensiv.present.report import figure_files
 
     return figure_files(list(results), tuple(formats), note=note)
 
 
 def _summary_figure(results: Sequence, formats: Sequence[str], note: str | None
                     ) -> dict[str, bytes]:
-    from sensiv import plots
+    from sensiv.present import plots
 
     return plots.save_figure(plots.summary_intervals(list(results), note=note), formats)
 
@@ -72,7 +72,7 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
     ``results/<study>-<n>-<kind>.json`` (every result in full), ``tables/…`` (Markdown, LaTeX,
     CSV and JSON per analysis and per study) and ``figures/…`` in every requested format.
     """
-    from sensiv.report import results_table, table_files, to_json
+    from sensiv.present.report import results_table, table_files, to_json
 
     formats = tuple(dict.fromkeys(("png", *formats)))  # PNG always: the HTML embeds it
     files: dict[str, str | bytes] = {"recipe.toml": run.recipe.path.read_text(encoding="utf-8")}
@@ -112,7 +112,7 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
 
 
 def _analysis_blocks(r, formats, note, files) -> list[Block]:
-    from sensiv.report import results_table, table_files
+    from sensiv.present.report import results_table, table_files
 
     result = r.result
     title = KIND_TITLES.get(r.analysis.kind, r.analysis.kind)
@@ -151,14 +151,14 @@ def _analysis_blocks(r, formats, note, files) -> list[Block]:
 
 # ----------------------------------------------------------------------------- renderers
 def _table_cells(table) -> tuple[list[str], list[list[str]]]:
-    from sensiv.report import _cells
+    from sensiv.present.report import _cells
 
     return _cells(table)
 
 
 def render_markdown(blocks: Sequence[Block]) -> str:
     """The report in Markdown (figures linked by relative path)."""
-    from sensiv.report import markdown_table
+    from sensiv.present.report import markdown_table
 
     out = []
     for b in blocks:

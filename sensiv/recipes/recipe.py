@@ -44,7 +44,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 
 FORMATS = ("png", "pdf", "svg")
 SE_CHOICES = ("classic", "robust", "cluster")
@@ -309,7 +309,8 @@ def _spec(data: Mapping):
 
 
 def _run_one(analysis: Analysis, study: Study, source, frame, seed: int | None) -> Any:
-    from sensiv import bounds, iv
+    from sensiv.sensitivity import bounds
+    from sensiv.estimation import iv
 
     o = analysis.options
     inf = study.inference
@@ -324,7 +325,7 @@ def _run_one(analysis: Analysis, study: Study, source, frame, seed: int | None) 
                             points=o.get("points", bounds.DEFAULT_POINTS),
                             focus=o.get("focus"), **common)
     if analysis.kind == "prior":
-        from sensiv import prior
+        from sensiv.sensitivity import prior
 
         return prior.prior_analysis(source, priors=o.get("prior"),
                                     prior_file=o.get("prior_file"), focus=o.get("focus"),
@@ -356,7 +357,7 @@ def _run_one(analysis: Analysis, study: Study, source, frame, seed: int | None) 
                                points=o.get("points", 51), seed=seed,
                                confidence_level=common["confidence_level"], progress=False)
     if analysis.kind == "calibrate":
-        from sensiv.calibrate import calibrate
+        from sensiv.sensitivity.calibrate import calibrate
 
         groups = o.get("groups", {})
         for name, columns in groups.items():
@@ -367,7 +368,7 @@ def _run_one(analysis: Analysis, study: Study, source, frame, seed: int | None) 
         return calibrate(data, _spec(study.data), groups=groups or None,
                          no_first_stage_group=o.get("no_first_stage_group"), **common)
     if analysis.kind == "published":
-        from sensiv.published import published_analysis
+        from sensiv.sensitivity.published import published_analysis
 
         numbers = {k: o[k] for k in ("estimate", "se", "first_stage", "first_stage_se",
                                      "first_stage_f", "reduced_form", "reduced_form_se", "n")

@@ -37,7 +37,7 @@ def guarded(command):
     """Turn the caller's mistakes (``InputError``) into exit code 2 with a clean message."""
     @functools.wraps(command)
     def wrapper(*args, **kwargs):
-        from sensiv.errors import InputError, SolverError
+        from sensiv.core.errors import InputError, SolverError
 
         try:
             with warnings.catch_warnings(record=True) as caught:
@@ -54,7 +54,7 @@ def guarded(command):
 
 
 def _echo_warnings(caught) -> None:
-    from sensiv.errors import WeakInstrumentWarning
+    from sensiv.core.errors import WeakInstrumentWarning
 
     for w in caught:
         if issubclass(w.category, WeakInstrumentWarning):
@@ -79,7 +79,7 @@ FORMAT = typer.Option(None, "--format", help="Figure format: png, pdf or svg; re
 
 def figure_formats(formats: Optional[list[str]]) -> tuple[str, ...]:
     """Validated figure formats (a comma-separated value counts as several)."""
-    from sensiv.errors import InputError
+    from sensiv.core.errors import InputError
 
     chosen = [f.strip().lower() for item in (formats or ["png"]) for f in item.split(",") if f]
     for f in chosen:
@@ -93,7 +93,7 @@ def write_outputs(out: Optional[Path], result, files: dict, formats: tuple[str, 
     into ``out`` — everything rendered first, then written atomically."""
     if out is None:
         return
-    from sensiv.report import figure_files, table_files, write_bundle
+    from sensiv.present.report import figure_files, table_files, write_bundle
 
     write_bundle(out, {**files, **table_files(result), **figure_files(result, formats)})
 
@@ -107,7 +107,7 @@ def spec_from_options(outcome, treatment, instrument, control, cluster, weight, 
 
 
 def emit(document: dict, text: str, as_json: bool) -> None:
-    from sensiv.report import to_json
+    from sensiv.present.report import to_json
 
     if as_json:
         sys.stdout.write(to_json(document))
@@ -134,9 +134,9 @@ def fit(
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
-    from sensiv import iv
+    from sensiv.estimation import iv
     from sensiv.data import from_file
-    from sensiv.report import fit_markdown, to_json
+    from sensiv.present.report import fit_markdown, to_json
 
     chosen = figure_formats(formats)
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
@@ -161,10 +161,10 @@ def demo(
     import tempfile
 
     from sensiv import demo as demo_data
-    from sensiv.bundle import run_files
-    from sensiv.recipe import parse_recipe, run_recipe
-    from sensiv.report import results_table, write_bundle
-    from sensiv.summary import text_table
+    from sensiv.present.bundle import run_files
+    from sensiv.recipes.recipe import parse_recipe, run_recipe
+    from sensiv.present.report import results_table, write_bundle
+    from sensiv.present.summary import text_table
 
     chosen = figure_formats(formats)
     with tempfile.TemporaryDirectory() as staging:
@@ -186,7 +186,7 @@ def demo(
                                    if name.startswith("figures/") and name.endswith(".png")})
     truth = {"irrigation": demo_data.irrigation().truth["beta"],
              "nudge": demo_data.nudge().truth["beta"]}
-    from sensiv.bundle import REPORT_CAUTION
+    from sensiv.present.bundle import REPORT_CAUTION
 
     lines = ["sensiv demo: three INVENTED studies (seeded data from sensiv.demo; no real place, "
              "person or study)", "", f"Caution: {REPORT_CAUTION}", ""]
@@ -267,8 +267,9 @@ def sweep(
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Direct-effect sweep: identified set, union of intervals, breakdown point, robust set."""
-    from sensiv import bounds, iv
-    from sensiv.report import sweep_files
+    from sensiv.sensitivity import bounds
+    from sensiv.estimation import iv
+    from sensiv.present.report import sweep_files
 
     chosen = figure_formats(formats)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
@@ -312,9 +313,9 @@ def prior(
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Interval for the effect when the direct effect follows a prior law."""
-    from sensiv import iv
-    from sensiv import prior as prior_layer
-    from sensiv.report import prior_files
+    from sensiv.estimation import iv
+    from sensiv.sensitivity import prior as prior_layer
+    from sensiv.present.report import prior_files
 
     chosen = figure_formats(formats)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
@@ -338,9 +339,9 @@ def run(
     as_json: bool = JSON,
 ) -> None:
     """Run every analysis of a recipe and write the report bundle."""
-    from sensiv.bundle import run_files
-    from sensiv.recipe import parse_recipe, run_recipe
-    from sensiv.report import write_bundle
+    from sensiv.present.bundle import run_files
+    from sensiv.recipes.recipe import parse_recipe, run_recipe
+    from sensiv.present.report import write_bundle
 
     chosen = figure_formats(formats)
     parsed = parse_recipe(recipe)
@@ -361,17 +362,10 @@ def run(
 
 # Commands of the partial-identification layer live in their own modules and register
 # themselves on ``app`` when imported.
-from sensiv import cli_calibrate, cli_corrbound, cli_discrete, cli_published  # noqa: E402,F401
+from sensiv.cli import calibrate as cli_calibrate, corrbound as cli_corrbound, discrete as cli_discrete, published as cli_published  # noqa: E402,F401
 
 
 def main() -> None:
     """Console-script entry point."""
     app()
 
-
-if __name__ == "__main__":
-    # Run through the imported module so that the commands registered by the cli_* modules
-    # (which import ``sensiv.cli``, not ``__main__``) are on the app that runs.
-    from sensiv.cli import main as _main
-
-    _main()

@@ -8,7 +8,7 @@ import sys
 import time
 from dataclasses import dataclass
 
-from sensiv.results import Interval
+from sensiv.core.results import Interval
 
 # Seconds a loop must have run before a progress line is shown.
 PROGRESS_AFTER = 2.0

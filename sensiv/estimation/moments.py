@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 
 
 @dataclass(frozen=True, slots=True)

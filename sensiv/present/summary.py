@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from sensiv.results import format_number
+from sensiv.core.results import format_number
 
 
 def _table(header: list[str], rows: list[list[str]]) -> list[str]:
@@ -17,7 +17,7 @@ def _table(header: list[str], rows: list[list[str]]) -> list[str]:
 
 
 def fit_summary(fit) -> str:
-    """Text table of a :class:`sensiv.iv.IVFit`: 2SLS beside OLS, first stages, AR set, overid."""
+    """Text table of a :class:`sensiv.estimation.iv.IVFit`: 2SLS beside OLS, first stages, AR set, overid."""
     pct = f"{100 * fit.confidence_level:g}%"
     se_label = fit.se_type + (", small-sample" if fit.small else "")
     lines = [
@@ -70,7 +70,7 @@ def _pieces(pieces) -> str:
 
 
 def sweep_summary(res) -> str:
-    """Text summary of a :class:`sensiv.bounds.SweepResult`."""
+    """Text summary of a :class:`sensiv.sensitivity.bounds.SweepResult`."""
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown
     lines = [
@@ -113,14 +113,14 @@ def sweep_summary(res) -> str:
     for note in res.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
-    from sensiv.bounds import CAUTION
+    from sensiv.sensitivity.bounds import CAUTION
 
     lines += ["", CAUTION]
     return "\n".join(lines)
 
 
 def prior_summary(res) -> str:
-    """Text summary of a :class:`sensiv.prior.PriorResult`."""
+    """Text summary of a :class:`sensiv.sensitivity.prior.PriorResult`."""
     pct = f"{100 * res.confidence_level:g}%"
     lines = [
         f"Prior interval for the effect of {res.focus} on {res.outcome} "
@@ -141,16 +141,16 @@ def prior_summary(res) -> str:
     for note in res.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
-    from sensiv.bounds import CAUTION
+    from sensiv.sensitivity.bounds import CAUTION
 
     lines += ["", CAUTION]
     return "\n".join(lines)
 
 
 def text_table(table) -> str:
-    """A results table (``sensiv.report.Table``) as plain text for the terminal: analysis,
+    """A results table (``sensiv.present.report.Table``) as plain text for the terminal: analysis,
     estimate or bounds, interval and breakdown (assumptions are in the report)."""
-    from sensiv.report import _cells
+    from sensiv.present.report import _cells
 
     header, rows = _cells(table)
     keep = [0, 2, 3, 4]

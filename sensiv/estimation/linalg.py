@@ -9,7 +9,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from sensiv.results import Interval
+from sensiv.core.results import Interval
 
 # A column whose variance left after partialling out the earlier columns is below this share
 # of its own variance is treated as an exact linear combination of them.

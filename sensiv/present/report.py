@@ -23,8 +23,8 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
-from sensiv.errors import InputError
-from sensiv.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.core.errors import InputError
+from sensiv.core.results import Interval, format_number, intervals_to_lists, json_number
 
 
 def to_json(document: Mapping) -> str:
@@ -45,7 +45,7 @@ def markdown_table(header: list[str], rows: list[list[str]]) -> str:
 
 def fit_markdown(fit) -> str:
     """Markdown report of a 2SLS fit: coefficients, first stages, AR set, overid, assumptions."""
-    from sensiv.iv import CAUTION
+    from sensiv.estimation.iv import CAUTION
 
     pct = f"{100 * fit.confidence_level:g}%"
     rows = []
@@ -120,7 +120,7 @@ def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes])
 
 def sweep_markdown(res) -> str:
     """Markdown report of a direct-effect sweep."""
-    from sensiv.bounds import CAUTION
+    from sensiv.sensitivity.bounds import CAUTION
 
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown
@@ -166,7 +166,7 @@ def sweep_files(res) -> dict[str, str]:
 
 
 def prior_markdown(res) -> str:
-    from sensiv.bounds import CAUTION
+    from sensiv.sensitivity.bounds import CAUTION
 
     pct = f"{100 * res.confidence_level:g}%"
     rows = [["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
@@ -259,7 +259,7 @@ def _covariance_text(fit) -> str:
 
 def fit_rows(fit) -> list[TableRow]:
     """2SLS for every treatment, and the Anderson–Rubin set (one treatment)."""
-    from sensiv.iv import CAUTION
+    from sensiv.estimation.iv import CAUTION
 
     rows = []
     for name in fit.treatments:
@@ -277,7 +277,7 @@ def fit_rows(fit) -> list[TableRow]:
 
 
 def _sweep_breakdown(res) -> str:
-    from sensiv.bounds import SCALE_MAX
+    from sensiv.sensitivity.bounds import SCALE_MAX
 
     b = res.breakdown
     if b.scale is None:
@@ -291,7 +291,7 @@ def _sweep_breakdown(res) -> str:
 
 def sweep_rows(res) -> list[TableRow]:
     """Identified set with the union of intervals, and the weak-IV-robust set."""
-    from sensiv.bounds import CAUTION
+    from sensiv.sensitivity.bounds import CAUTION
 
     shape = "polytope with bounding box " if res.polytope else ""
     words = f"direct effect in {shape}{_ranges_text(res.instruments, res.direct_set)}"
@@ -307,7 +307,7 @@ def sweep_rows(res) -> list[TableRow]:
 
 
 def prior_rows(res) -> list[TableRow]:
-    from sensiv.bounds import CAUTION
+    from sensiv.sensitivity.bounds import CAUTION
 
     laws = "; ".join(f"{z} ~ {p}" for z, p in zip(res.instruments, res.priors))
     method = res.method + ("" if res.mc_error is None else
@@ -362,7 +362,7 @@ def published_rows(res) -> list[TableRow]:
     """The printed estimate; the identified set with the union of intervals and the breakdown;
     the weak-IV-robust set; the prior interval when a prior is given (all from the printed
     numbers, with the approximation they rest on)."""
-    from sensiv.bounds import CAUTION
+    from sensiv.sensitivity.bounds import CAUTION
 
     pct = f"{100 * res.confidence_level:g}%"
     cov = f"from reported numbers ({res.covariance.method})"
@@ -397,7 +397,7 @@ def calibrate_rows(res) -> list[TableRow]:
     """The scale (reduced form and SDs) of each instrument, one row per covariate benchmark
     and instrument, and the zero-first-stage estimate when there is one.  The estimates are
     direct effects of an instrument on the outcome, not effects of the treatment."""
-    from sensiv.calibrate import CAUTION
+    from sensiv.sensitivity.calibrate import CAUTION
 
     s = res.scale
     level = res.confidence_level
@@ -452,13 +452,13 @@ def _bound_breakdown(symbol: str, value: float | None, threshold: float, what: s
 
 def _kind(result) -> str:
     """The analysis name of a result object (also the stem of its file names)."""
-    from sensiv.bounds import SweepResult
-    from sensiv.calibrate import Calibration
-    from sensiv.iv import IVFit
+    from sensiv.sensitivity.bounds import SweepResult
+    from sensiv.sensitivity.calibrate import Calibration
+    from sensiv.estimation.iv import IVFit
     from sensiv.partial_id.correlation import CorrelationBounds
     from sensiv.partial_id.discrete_results import DiscreteBounds
-    from sensiv.prior import PriorResult
-    from sensiv.published import PublishedResult
+    from sensiv.sensitivity.prior import PriorResult
+    from sensiv.sensitivity.published import PublishedResult
 
     for cls, name in ((IVFit, "fit"), (SweepResult, "sweep"), (PriorResult, "prior"),
                       (CorrelationBounds, "corrbound"), (DiscreteBounds, "discrete"),
@@ -711,7 +711,7 @@ def table_files(results, stem: str | None = None) -> dict[str, str]:
 
 # ----------------------------------------------------------------------------- figure files
 def _figures(result, note):
-    from sensiv import plots
+    from sensiv.present import plots
 
     kind = _kind(result)
     if kind == "fit":
@@ -748,7 +748,7 @@ def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[
     ``note`` is added to every caption (e.g. "Invented demo data").  The same results give
     the same bytes.
     """
-    from sensiv import plots
+    from sensiv.present import plots
 
     items = _as_list(results)
     files: dict[str, bytes] = {}

@@ -523,6 +523,3 @@ def main(argv: list[str] | None = None) -> int:
         print(path)
     return 0
 
-
-if __name__ == "__main__":
-    raise SystemExit(main())

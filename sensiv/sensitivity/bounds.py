@@ -29,11 +29,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from sensiv import distributions as dist
-from sensiv import iv, linalg
-from sensiv.errors import InputError, WeakInstrumentWarning
-from sensiv.moments import ScoreBlock, ScoreSums
-from sensiv.results import Interval, intervals_to_lists, json_number
+from sensiv.estimation import distributions as dist
+from sensiv.estimation import iv, linalg
+from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.estimation.moments import ScoreBlock, ScoreSums
+from sensiv.core.results import Interval, intervals_to_lists, json_number
 
 SCALE_MAX = 1000.0          # breakdown scales beyond this are reported as "never" (null)
 DEFAULT_POINTS = 101
@@ -795,7 +795,7 @@ class SweepResult:
     notes: tuple[str, ...] = field(default=())
     frontier: Frontier | None = None
     curve_extended: Curve | None = None
-    adaptive: object | None = None  # sensiv.adaptive.AdaptiveResult with ``adaptive=True``
+    adaptive: object | None = None  # sensiv.sensitivity.adaptive.AdaptiveResult with ``adaptive=True``
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -855,7 +855,7 @@ class SweepResult:
                 "min_relaxation": document["min_relaxation"], "adaptive": document}
 
     def __str__(self) -> str:
-        from sensiv.summary import sweep_summary
+        from sensiv.present.summary import sweep_summary
 
         return sweep_summary(self)
 
@@ -1007,7 +1007,7 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         rf = reduced_form(pieces, sums, result)
         ar, ar_method = robust_set(rf, dset)
         if adaptive:
-            from sensiv.adaptive import adaptive_set  # imports this module: keep it lazy
+            from sensiv.sensitivity.adaptive import adaptive_set  # imports this module: keep it lazy
 
             fas = adaptive_set(rf, instruments=core.instruments, scale=scale,
                                confidence_level=result.confidence_level)

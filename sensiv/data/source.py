@@ -36,7 +36,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from sensiv.errors import InputError
+from sensiv.core.errors import InputError
 
 if TYPE_CHECKING:
     import pandas as pd

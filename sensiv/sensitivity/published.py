@@ -23,7 +23,7 @@ in ``γ``:
     Q_{01} = \frac{B v_{ππ} - c}{P^3}, \quad
     Q_{11} = \frac{v_{ππ}}{P^4},
 
-which is exactly the :class:`sensiv.bounds.Core` form ``[1, −γ] Q [1, −γ]'`` with estimate ``B``
+which is exactly the :class:`sensiv.sensitivity.bounds.Core` form ``[1, −γ] Q [1, −γ]'`` with estimate ``B``
 and slope ``1/P`` (``det Q = (v_ρρ v_ππ − c²)/P⁶ ≥ 0``).  In a just-identified 2SLS fit this is
 not an approximation of the data-based variance: the 2SLS residual at ``γ`` is the reduced-form
 residual minus ``β̂(γ)`` times the first-stage residual, so the classic, robust and cluster
@@ -50,7 +50,7 @@ of ``(ρ̂, π̂)``.  The only unknown is ``c``, which papers seldom print:
   linear in ``c``, so its maximum over the admissible ``c`` sits at the same two ends).
 
 The unions, identified sets, breakdown points and Anderson–Rubin sets are those of
-:mod:`sensiv.bounds`, reused unchanged; prior intervals are those of :mod:`sensiv.prior`.
+:mod:`sensiv.sensitivity.bounds`, reused unchanged; prior intervals are those of :mod:`sensiv.sensitivity.prior`.
 """
 
 from __future__ import annotations
@@ -61,12 +61,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from sensiv import bounds
-from sensiv import distributions as dist
-from sensiv import prior as prior_layer
-from sensiv.bounds import CAUTION, Breakdown, Core, Curve, Frontier, RangeSpec, ReducedForm
-from sensiv.errors import InputError, WeakInstrumentWarning
-from sensiv.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.sensitivity import bounds
+from sensiv.estimation import distributions as dist
+from sensiv.sensitivity import prior as prior_layer
+from sensiv.sensitivity.bounds import CAUTION, Breakdown, Core, Curve, Frontier, RangeSpec, ReducedForm
+from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.core.results import Interval, format_number, intervals_to_lists, json_number
 
 FOCUS = "treatment"          # published numbers carry no column names
 INSTRUMENT = "instrument"
@@ -314,7 +314,7 @@ def choose_covariance(rep: Reported, sp: float) -> tuple[Covariance, list[str]]:
 
 def core_from(estimate: float, first_stage: float, matrix: np.ndarray, critical: float,
               inflation: float = 0.0) -> Core:
-    """The :class:`~sensiv.bounds.Core` of ``(ρ̂ − γ)/π̂`` for one covariance of ``(ρ̂, π̂)``.
+    """The :class:`~sensiv.sensitivity.bounds.Core` of ``(ρ̂ − γ)/π̂`` for one covariance of ``(ρ̂, π̂)``.
 
     Examples
     --------
@@ -752,7 +752,7 @@ def _summary_lines(res: PublishedResult) -> list[str]:
 
 def published_markdown(res: PublishedResult) -> str:
     """Markdown report of a published stress test."""
-    from sensiv.report import markdown_table
+    from sensiv.present.report import markdown_table
 
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown

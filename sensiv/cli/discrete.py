@@ -7,13 +7,13 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import FORMAT, figure_formats, write_outputs, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, app, emit, guarded
+from sensiv.cli.app import FORMAT, figure_formats, write_outputs, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, app, emit, guarded
 
 EXIT_SOLVER_FAILURE = 1
 
 
 def _one(names: list[str], role: str) -> str:
-    from sensiv.errors import InputError
+    from sensiv.core.errors import InputError
 
     if len(names) != 1:
         raise InputError(f"`sensiv discrete` takes exactly one --{role}; got {len(names)} "
@@ -55,9 +55,9 @@ def discrete(
 ) -> None:
     """Bounds on the effect of a discrete treatment with a budget for direct effects of a
     randomised discrete instrument (Balke-Pearl bounds at budget 0)."""
-    from sensiv.errors import SolverError
+    from sensiv.core.errors import SolverError
     from sensiv.partial_id.discrete import discrete_bounds
-    from sensiv.report import to_json
+    from sensiv.present.report import to_json
 
     chosen = figure_formats(formats)
 
@@ -91,8 +91,8 @@ def discrete(
 def _markdown(result) -> str:
     """Markdown report of a discrete-bounds result (formatting only)."""
     from sensiv.partial_id.discrete_data import plain_number
-    from sensiv.report import markdown_table
-    from sensiv.results import format_number
+    from sensiv.present.report import markdown_table
+    from sensiv.core.results import format_number
 
     t = result.table
     pct = f"{100 * result.confidence_level:g}%"

@@ -1,7 +1,7 @@
 """Command `sensiv published` (registered on the shared typer app when imported).
 
 Direct-effect stress test of a published IV estimate from its printed numbers only: parse the
-options, call :func:`sensiv.published.published_analysis`, print or write.
+options, call :func:`sensiv.sensitivity.published.published_analysis`, print or write.
 """
 
 from __future__ import annotations
@@ -11,7 +11,7 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import FORMAT, figure_formats, write_outputs, JSON, LEVEL, THRESHOLD, app, emit, guarded
+from sensiv.cli.app import FORMAT, figure_formats, write_outputs, JSON, LEVEL, THRESHOLD, app, emit, guarded
 
 
 @app.command()
@@ -43,8 +43,8 @@ def published(
 ) -> None:
     """Stress test from a paper's printed numbers: identified set, union of intervals,
     breakdown, weak-IV-robust set and prior interval (one instrument, no data)."""
-    from sensiv.published import published_analysis, published_markdown
-    from sensiv.report import to_json
+    from sensiv.sensitivity.published import published_analysis, published_markdown
+    from sensiv.present.report import to_json
 
     chosen = figure_formats(formats)
 

@@ -75,10 +75,10 @@ from typing import Literal
 
 import numpy as np
 
-from sensiv import distributions as dist
-from sensiv.bounds import ReducedForm, Scale
-from sensiv.errors import InaccurateSolveWarning, InputError, SolverError
-from sensiv.results import Interval, format_number, json_number
+from sensiv.estimation import distributions as dist
+from sensiv.sensitivity.bounds import ReducedForm, Scale
+from sensiv.core.errors import InaccurateSolveWarning, InputError, SolverError
+from sensiv.core.results import Interval, format_number, json_number
 
 Units = Literal["effect", "sd"]
 UNITS: tuple[str, ...] = ("effect", "sd")
@@ -304,7 +304,7 @@ def _check(rf: ReducedForm, units: str, scale: Scale | None,
     if units == "sd":
         if scale is None or len(scale.instrument_sd) != k:
             raise InputError("units 'sd' need the outcome and instrument SDs: pass scale= "
-                             "(a sensiv.bounds.Scale for the same instruments)")
+                             "(a sensiv.sensitivity.bounds.Scale for the same instruments)")
     if instruments is None:
         instruments = scale.instruments if scale is not None else tuple(
             f"z{j + 1}" for j in range(k))
@@ -332,7 +332,7 @@ def closed_form(rf: ReducedForm, *, units: Units = "effect",
 
     Examples
     --------
-    >>> from sensiv.bounds import ReducedForm
+    >>> from sensiv.sensitivity.bounds import ReducedForm
     >>> rf = ReducedForm(np.array([1.0, 3.0]), np.array([1.0, 1.0]), np.eye(2), np.zeros((2, 2)),
     ...                  np.eye(2), 5.99)
     >>> fas, delta = closed_form(rf)
@@ -384,14 +384,14 @@ def adaptive_set(rf: ReducedForm, *, instruments=None, units: Units = "effect",
 
     Parameters
     ----------
-    rf : sensiv.bounds.ReducedForm
+    rf : sensiv.sensitivity.bounds.ReducedForm
         ``rho`` and ``pi`` (one treatment) with their joint covariance, e.g.
         ``bounds.reduced_form(pieces, sums, result)``.
     instruments : sequence of str, optional
         Names for the output (default: ``scale.instruments`` or ``z1..zK``).
     units : {"effect", "sd"}
         Scale of the relaxation (module docstring); ``"sd"`` needs ``scale``.
-    scale : sensiv.bounds.Scale, optional
+    scale : sensiv.sensitivity.bounds.Scale, optional
     confidence_level : float, optional
         Adds the Bonferroni outer confidence set of :class:`AdaptiveResult`.
 
@@ -401,7 +401,7 @@ def adaptive_set(rf: ReducedForm, *, instruments=None, units: Units = "effect",
 
     Examples
     --------
-    >>> from sensiv.bounds import ReducedForm
+    >>> from sensiv.sensitivity.bounds import ReducedForm
     >>> rf = ReducedForm(np.array([1.0, 3.0]), np.array([1.0, 1.0]), np.eye(2),
     ...                  np.zeros((2, 2)), np.eye(2) * 0.01, 5.99)
     >>> res = adaptive_set(rf)
@@ -483,8 +483,9 @@ def adaptive_from_data(data, spec=None, *, units: Units = "effect", se: str | No
     -------
     AdaptiveResult
     """
-    from sensiv import bounds, iv
-    from sensiv.calibrate import scale_from_moments
+    from sensiv.sensitivity import bounds
+    from sensiv.estimation import iv
+    from sensiv.sensitivity.calibrate import scale_from_moments
 
     source = iv.as_source(data, spec, chunk_rows=chunk_rows)
     treatments = source.layout.treatments

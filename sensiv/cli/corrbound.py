@@ -11,7 +11,7 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
+from sensiv.cli.app import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
                         WEIGHT, app, emit, guarded, spec_from_options)
 
 MAX_RATIO = typer.Option(1.0, "--max-ratio", help="Largest ratio r̄ in [0, 1] of |corr(Z, u)| to |corr(X, u)|; 0 is the exclusion restriction.")
@@ -47,10 +47,10 @@ def corrbound(
     """Bounds on the effect when each instrument may be correlated with the error, in the
     treatment's direction and at most --max-ratio times as strongly (Nevo & Rosen 2012)."""
     from sensiv.data import from_file
-    from sensiv.errors import InputError
+    from sensiv.core.errors import InputError
     from sensiv.partial_id.correlation import (bounds_markdown, check_one_treatment, check_options,
                                               correlation_bounds)
-    from sensiv.report import to_json
+    from sensiv.present.report import to_json
 
     chosen = figure_formats(formats)
 

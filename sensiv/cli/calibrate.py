@@ -2,7 +2,7 @@
 
 Reference magnitudes for a plausible direct effect: the scale of the reduced form, covariate
 benchmarks and a zero-first-stage estimate (van Kippersluis & Rietveld 2018).  Parses the
-options, calls :func:`sensiv.calibrate.calibrate`, prints or writes.
+options, calls :func:`sensiv.sensitivity.calibrate.calibrate`, prints or writes.
 """
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, SE, SMALL,
+from sensiv.cli.app import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, SE, SMALL,
                         TREATMENT, WEIGHT, app, emit, guarded, spec_from_options)
 
 GROUP = typer.Option(None, "--group", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
@@ -41,9 +41,9 @@ def calibrate(
 ) -> None:
     """How large a direct effect is plausible: reduced-form scale, covariate benchmarks and a
     zero-first-stage estimate, each turned into options for sweep and prior."""
-    from sensiv import calibrate as calibration
-    from sensiv import iv
-    from sensiv.report import to_json
+    from sensiv.sensitivity import calibrate as calibration
+    from sensiv.estimation import iv
+    from sensiv.present.report import to_json
 
     chosen = figure_formats(formats)
 

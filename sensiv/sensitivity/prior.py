@@ -24,11 +24,11 @@ from pathlib import Path
 
 import numpy as np
 
-from sensiv import iv
-from sensiv.bounds import CAUTION, Core, build_core, focus_block, focus_index
-from sensiv.errors import InputError
-from sensiv.inference import Progress
-from sensiv.results import Interval, json_number
+from sensiv.estimation import iv
+from sensiv.sensitivity.bounds import CAUTION, Core, build_core, focus_block, focus_index
+from sensiv.core.errors import InputError
+from sensiv.estimation.inference import Progress
+from sensiv.core.results import Interval, json_number
 
 PRIOR_KINDS = ("normal", "uniform", "triangular")
 MC_DRAWS = 200_000
@@ -304,7 +304,7 @@ class PriorResult:
         }
 
     def __str__(self) -> str:
-        from sensiv.summary import prior_summary
+        from sensiv.present.summary import prior_summary
 
         return prior_summary(self)
 

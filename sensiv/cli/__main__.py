@@ -1,0 +1,5 @@
+"""``python -m sensiv.cli`` runs the command line."""
+
+from sensiv.cli import main
+
+main()
