@@ -74,3 +74,20 @@ def format_number(value: float, digits: int = 4) -> str:
 def intervals_to_lists(pieces: tuple[Interval, ...]) -> list[list[float | None]]:
     """A union of intervals as a JSON list of ``[low, high]`` pairs."""
     return [piece.to_list() for piece in pieces]
+
+
+# The one hook from the computing layers to the presentation layer: a result's ``__str__``
+# calls :func:`describe`, which looks the result's kind up in the analysis registry (a higher
+# layer, imported by name at call time so that no computing module imports a presenting one).
+REGISTRY_MODULE = "sensiv.analyses.registry"
+
+
+def describe(result: object) -> str:
+    """Plain-text summary of an analysis result, as printed by the command line.
+
+    Every result dataclass's ``__str__`` returns ``describe(self)``; the text itself is built in
+    ``sensiv.present`` from the result's facts, found through the registry entry of its kind.
+    """
+    import importlib
+
+    return importlib.import_module(REGISTRY_MODULE).describe(result)

@@ -31,7 +31,7 @@ from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums, accumulate, check_rows, score_sums
-from sensiv.core.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.core.results import Interval, describe, format_number, intervals_to_lists, json_number
 
 SEType = Literal["classic", "robust", "cluster"]
 SE_TYPES: tuple[str, ...] = ("classic", "robust", "cluster")
@@ -385,9 +385,7 @@ class IVFit:
         return out
 
     def __str__(self) -> str:
-        from sensiv.present.summary import fit_summary
-
-        return fit_summary(self)
+        return describe(self)
 
 
 # ----------------------------------------------------------------------------- the fit

@@ -46,7 +46,7 @@ from sensiv.estimation import linalg
 from sensiv.core.errors import InaccurateSolveWarning, InputError, SolverError
 from sensiv.estimation.iv import build_design, prepare
 from sensiv.estimation.moments import Moments, accumulate, chunk_moments
-from sensiv.core.results import Interval, format_number, json_number
+from sensiv.core.results import Interval, describe, format_number, json_number
 
 Endogeneity = Literal["positive", "negative", "unknown"]
 ENDOGENEITY: tuple[str, ...] = ("positive", "negative", "unknown")
@@ -559,7 +559,7 @@ class CorrelationBounds:
         return out
 
     def __str__(self) -> str:
-        return "\n".join(_summary_lines(self, markdown=False))
+        return describe(self)
 
 
 def _describe_set(result: CorrelationBounds) -> str:

@@ -6,7 +6,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from sensiv.partial_id.discrete_data import CountsTable, plain_number
-from sensiv.core.results import Interval, format_number, json_number
+from sensiv.core.results import Interval, describe, format_number, json_number
 
 CAUTION = ("Caution: these bounds hold only under the stated assumptions — a randomised "
            "instrument and at most the stated share of units whose outcome the instrument "
@@ -188,7 +188,7 @@ class DiscreteBounds:
         }
 
     def __str__(self) -> str:
-        return summary(self)
+        return describe(self)
 
 
 # --------------------------------------------------------------------------- text summary

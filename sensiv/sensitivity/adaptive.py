@@ -78,7 +78,7 @@ import numpy as np
 from sensiv.estimation import distributions as dist
 from sensiv.sensitivity.bounds import ReducedForm, Scale
 from sensiv.core.errors import InaccurateSolveWarning, InputError, SolverError
-from sensiv.core.results import Interval, format_number, json_number
+from sensiv.core.results import Interval, describe, format_number, json_number
 
 Units = Literal["effect", "sd"]
 UNITS: tuple[str, ...] = ("effect", "sd")
@@ -182,7 +182,7 @@ class AdaptiveResult:
         }
 
     def __str__(self) -> str:
-        return adaptive_text(self)
+        return describe(self)
 
 
 # ============================================================================ the programmes

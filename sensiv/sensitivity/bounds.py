@@ -33,7 +33,7 @@ from sensiv.estimation import distributions as dist
 from sensiv.estimation import iv, linalg
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.estimation.moments import ScoreBlock, ScoreSums
-from sensiv.core.results import Interval, intervals_to_lists, json_number
+from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 
 SCALE_MAX = 1000.0          # breakdown scales beyond this are reported as "never" (null)
 DEFAULT_POINTS = 101
@@ -855,9 +855,7 @@ class SweepResult:
                 "min_relaxation": document["min_relaxation"], "adaptive": document}
 
     def __str__(self) -> str:
-        from sensiv.present.summary import sweep_summary
-
-        return sweep_summary(self)
+        return describe(self)
 
 
 def _scale(pieces: iv.Pieces, rf_coef: np.ndarray) -> Scale:

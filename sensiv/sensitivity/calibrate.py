@@ -40,7 +40,7 @@ from sensiv.estimation import iv, linalg
 from sensiv.sensitivity.bounds import Scale
 from sensiv.core.errors import InputError
 from sensiv.estimation.moments import Moments, ScoreBlock, accumulate, score_sums
-from sensiv.core.results import Interval, format_number, json_number
+from sensiv.core.results import Interval, describe, format_number, json_number
 
 # Significant digits of the option strings offered for `sweep` and `prior`; range ends are
 # rounded outwards so that the offered range contains the computed one.
@@ -604,7 +604,7 @@ class Calibration:
         }
 
     def __str__(self) -> str:
-        return calibration_text(self)
+        return describe(self)
 
 
 # ============================================================================ entry point

@@ -28,7 +28,7 @@ from sensiv.estimation import iv
 from sensiv.sensitivity.bounds import CAUTION, Core, build_core, focus_block, focus_index
 from sensiv.core.errors import InputError
 from sensiv.estimation.inference import Progress
-from sensiv.core.results import Interval, json_number
+from sensiv.core.results import Interval, describe, json_number
 
 PRIOR_KINDS = ("normal", "uniform", "triangular")
 MC_DRAWS = 200_000
@@ -304,9 +304,7 @@ class PriorResult:
         }
 
     def __str__(self) -> str:
-        from sensiv.present.summary import prior_summary
-
-        return prior_summary(self)
+        return describe(self)
 
 
 def normal_interval(core: Core, mean: np.ndarray, cov: np.ndarray) -> tuple[Interval, float]:

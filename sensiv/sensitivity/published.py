@@ -66,7 +66,7 @@ from sensiv.estimation import distributions as dist
 from sensiv.sensitivity import prior as prior_layer
 from sensiv.sensitivity.bounds import CAUTION, Breakdown, Core, Curve, Frontier, RangeSpec, ReducedForm
 from sensiv.core.errors import InputError, WeakInstrumentWarning
-from sensiv.core.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.core.results import Interval, describe, format_number, intervals_to_lists, json_number
 
 FOCUS = "treatment"          # published numbers carry no column names
 INSTRUMENT = "instrument"
@@ -443,7 +443,7 @@ class PublishedResult:
         }
 
     def __str__(self) -> str:
-        return "\n".join(_summary_lines(self))
+        return describe(self)
 
     def to_markdown(self) -> str:
         return published_markdown(self)
