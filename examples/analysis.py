@@ -18,7 +18,8 @@ from sensiv.estimation import iv
 from sensiv.sensitivity.calibrate import calibrate
 from sensiv.data import Spec, from_file
 from sensiv.partial_id.correlation import correlation_bounds
-from sensiv.present.report import figure_files, table_files, write_bundle
+from sensiv.analyses.outputs import figure_files, table_files
+from sensiv.present.writer import write_bundle
 
 HERE = Path(__file__).resolve().parent
 

@@ -1,7 +1,50 @@
-"""sensiv: sensitivity analysis for instrumental-variable estimates.
+"""sensiv: sensitivity analysis for instrumental-variable estimates whose instrument may
+violate the exclusion restriction.
 
-The package namespace is kept free of heavy imports so that the command line starts
-instantly; import the layers directly (``sensiv.data``, ``sensiv.estimation.moments``, ``sensiv.estimation.iv``).
+The public face, loaded lazily so that importing ``sensiv`` (and ``sensiv --help``) stays
+instant::
+
+    import sensiv
+    fit = sensiv.fit(source)                      # 2SLS with diagnostics
+    res = sensiv.sweep(source, direct=["-0.01:0.01"])
+    pri = sensiv.prior(source, priors=["normal:0:0.005"])
+
+``fit``, ``sweep``, ``prior``, ``corrbound``, ``discrete``, ``published``, ``calibrate`` and
+``run_recipe`` are the analyses of the command line; ``sensiv.data`` reads the data
+(``Spec``, ``from_file``, ``from_frame``).  The layers, lowest first: ``core``, ``data``,
+``estimation``, ``partial_id``, ``sensitivity``, ``present``, ``analyses``, ``recipes``, ``cli``.
 """
 
-__version__ = "0.1.0"
+from __future__ import annotations
+
+import importlib
+
+from sensiv.core.version import __version__
+
+# public name -> (module, attribute); resolved on first use
+_PUBLIC = {
+    "fit": ("sensiv.estimation.iv", "fit"),
+    "sweep": ("sensiv.sensitivity.bounds", "sweep"),
+    "prior": ("sensiv.sensitivity.prior", "prior_analysis"),
+    "corrbound": ("sensiv.partial_id.correlation", "correlation_bounds"),
+    "discrete": ("sensiv.partial_id.discrete", "discrete_bounds"),
+    "published": ("sensiv.sensitivity.published", "published_analysis"),
+    "calibrate": ("sensiv.sensitivity.calibrate", "calibrate"),
+    "run_recipe": ("sensiv.recipes.run", "run_recipe"),
+}
+
+__all__ = ["__version__", *_PUBLIC]
+
+
+def __getattr__(name: str):
+    try:
+        module, attribute = _PUBLIC[name]
+    except KeyError:
+        raise AttributeError(f"module 'sensiv' has no attribute {name!r}") from None
+    value = getattr(importlib.import_module(module), attribute)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted({*globals(), *_PUBLIC})

@@ -142,7 +142,7 @@ def test_figure_draws_into_given_axes(results):
 
 
 def test_importing_plots_does_not_import_matplotlib():
-    code = "import sys, sensiv.present.plots, sensiv.present.report; print('matplotlib' in sys.modules)"
+    code = "import sys, sensiv.present.figures, sensiv.present.tables, sensiv.analyses.outputs; print('matplotlib' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)
     assert out.stdout.strip() == "False"

@@ -15,7 +15,8 @@ from sensiv.sensitivity import bounds
 from sensiv.estimation import iv
 from sensiv.data import Spec, from_file
 from sensiv.core.errors import InputError
-from sensiv.recipes.recipe import parse_recipe, run_recipe
+from sensiv.recipes.parse import parse_recipe
+from sensiv.recipes.run import run_recipe
 
 ROOT = Path(__file__).resolve().parents[1]
 

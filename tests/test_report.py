@@ -20,7 +20,8 @@ import pytest
 
 from sensiv.sensitivity import bounds, prior
 from sensiv.estimation import iv
-from sensiv.present import report
+from sensiv.analyses import outputs, registry
+from sensiv.present import markdown, table_rows, tables, writer
 from sensiv.data import Spec
 from sensiv.core.errors import InputError
 from sensiv.partial_id.correlation import correlation_bounds
@@ -74,41 +75,41 @@ def all_results(results):
 def test_rows_read_numbers_from_the_results(results):
     fit, sweep, pri = results["fit"], results["sweep"], results["prior"]
     corr, disc = results["corrbound"], results["discrete"]
-    (tsls, ar) = report.fit_rows(fit)
+    (tsls, ar) = table_rows.fit_rows(fit)
     assert tsls.estimate == fit.tsls.value("hours_%") and tsls.se == fit.tsls.std_error(
         "hours_%")
     assert tsls.interval == (fit.conf_int("hours_%"),) and ar.interval == fit.ar_set
     assert tsls.n == fit.n and tsls.covariance == "cluster, 20 clusters"
-    row = report.sweep_rows(sweep)[0]
+    row = table_rows.sweep_rows(sweep)[0]
     assert row.bounds == (sweep.identified_set,) and row.interval == (sweep.union_ci,)
     assert row.breakdown == sweep.breakdown.scale
-    (row,) = report.prior_rows(pri)
+    (row,) = table_rows.prior_rows(pri)
     assert row.estimate == pri.center and row.interval == (pri.interval,)
-    (row,) = report.corrbound_rows(corr)
+    (row,) = table_rows.corrbound_rows(corr)
     assert row.bounds == corr.pieces and row.breakdown == corr.breakdown_ratio
-    (row,) = report.discrete_rows(disc)
+    (row,) = table_rows.discrete_rows(disc)
     assert row.bounds == (disc.bounds,) and row.interval == (disc.ci,)
     assert row.breakdown == disc.breakdown_budget and row.n == disc.table.n
 
 
 def test_unbounded_union_is_kept_unbounded(results):
-    row = report.sweep_rows(results["weak"])[0]
+    row = table_rows.sweep_rows(results["weak"])[0]
     assert row.interval == (results["weak"].union_ci,)
     assert math.isinf(row.interval[0].low)
-    text = report.table_markdown(report.results_table(results["weak"]))
+    text = tables.table_markdown(outputs.results_table(results["weak"]))
     assert "[−∞, +∞]" in text
-    doc = json.loads(report.table_json(report.results_table(results["weak"])))
+    doc = json.loads(tables.table_json(outputs.results_table(results["weak"])))
     assert doc["rows"][0]["interval"] == [[None, None]]
-    lines = list(csv.DictReader(io.StringIO(report.table_csv(
-        report.results_table(results["weak"])))))
+    lines = list(csv.DictReader(io.StringIO(tables.table_csv(
+        outputs.results_table(results["weak"])))))
     assert lines[0]["interval_lower"] == "-inf" and lines[0]["interval_upper"] == "inf"
 
 
 def test_unknown_result_is_refused():
     with pytest.raises(InputError, match="no table or figure for a dict"):
-        report.results_table({"a": 1})
+        outputs.results_table({"a": 1})
     with pytest.raises(InputError, match="at least one"):
-        report.table_files([])
+        outputs.table_files([])
 
 
 # ----------------------------------------------------------------------------- formats
@@ -119,16 +120,16 @@ def latex_columns(spec: str) -> int:
 
 
 def test_latex_table_is_structurally_sound(results):
-    tex = report.table_latex(report.results_table(all_results(results)))
+    tex = tables.table_latex(outputs.results_table(all_results(results)))
     assert tex.count(r"\begin{tabular}") == tex.count(r"\end{tabular}") == 1
     for rule in (r"\toprule", r"\midrule", r"\bottomrule"):
         assert tex.count(rule) == 1
     spec = re.search(r"\\begin\{tabular\}\{(.*)\}\n", tex).group(1)
     ncol = latex_columns(spec)
-    assert ncol == len(report.COLUMNS)
+    assert ncol == len(tables.COLUMNS)
     body = tex[tex.index(r"\toprule"):tex.index(r"\bottomrule")]
     rows = [line for line in body.splitlines() if line.endswith(r"\\")]
-    assert len(rows) == 1 + sum(len(report.results_table(r).rows)
+    assert len(rows) == 1 + sum(len(outputs.results_table(r).rows)
                                 for r in all_results(results))
     for line in rows:
         assert len(re.findall(r"(?<!\\)&", line)) == ncol - 1, line
@@ -142,11 +143,11 @@ def test_latex_table_is_structurally_sound(results):
 
 
 def test_latex_escape():
-    assert report.latex_escape("a_b 5% & #1 {x} ~ ^") == \
+    assert tables.latex_escape("a_b 5% & #1 {x} ~ ^") == \
         r"a\_b 5\% \& \#1 \{x\} \textasciitilde{} \textasciicircum{}"
-    assert report.latex_escape("γ ∈ [−0.1, 0.1]") == r"$\gamma$ $\in$ [$-$0.1, 0.1]"
-    assert report.latex_escape("r̄·2") == r"$\bar{r} \cdot$2"
-    assert report.latex_escape("$5") == r"\$5"
+    assert tables.latex_escape("γ ∈ [−0.1, 0.1]") == r"$\gamma$ $\in$ [$-$0.1, 0.1]"
+    assert tables.latex_escape("r̄·2") == r"$\bar{r} \cdot$2"
+    assert tables.latex_escape("$5") == r"\$5"
 
 
 def markdown_row_cells(line: str) -> int:
@@ -154,20 +155,20 @@ def markdown_row_cells(line: str) -> int:
 
 
 def test_markdown_table_has_consistent_columns(results):
-    md = report.table_markdown(report.results_table(all_results(results)))
+    md = tables.table_markdown(outputs.results_table(all_results(results)))
     lines = [line for line in md.splitlines() if line.startswith("|")]
     counts = {markdown_row_cells(line) for line in lines}
-    assert counts == {len(report.COLUMNS)}
+    assert counts == {len(tables.COLUMNS)}
     assert md.count("\n> Caution") + md.startswith("> Caution") >= 1
     assert "**Assumptions — direct-effect sweep: hours_%:**" in md
 
 
 def test_csv_round_trip(results):
-    table = report.results_table(all_results(results))
-    text = report.table_csv(table)
+    table = outputs.results_table(all_results(results))
+    text = tables.table_csv(table)
     reader = list(csv.reader(io.StringIO(text)))
-    assert tuple(reader[0]) == report.CSV_COLUMNS
-    assert all(len(r) == len(report.CSV_COLUMNS) for r in reader)
+    assert tuple(reader[0]) == tables.CSV_COLUMNS
+    assert all(len(r) == len(tables.CSV_COLUMNS) for r in reader)
     frame = pd.read_csv(io.StringIO(text))
     assert len(frame) == len(table.rows)
     sweep = results["sweep"]
@@ -179,7 +180,7 @@ def test_csv_round_trip(results):
 
 
 def test_json_round_trip(results):
-    doc = json.loads(report.table_json(report.results_table(all_results(results))))
+    doc = json.loads(tables.table_json(outputs.results_table(all_results(results))))
     assert {"title", "rows", "assumptions", "caution"} <= set(doc)
     fit = results["fit"]
     first = doc["rows"][0]
@@ -191,19 +192,19 @@ def test_json_round_trip(results):
 
 # ----------------------------------------------------------------------------- file dicts
 def test_table_files_names_and_determinism(results):
-    files = report.table_files(results["sweep"])
+    files = outputs.table_files(results["sweep"])
     assert set(files) == {f"sweep-table.{ext}" for ext in ("md", "tex", "csv", "json")}
-    assert report.table_files(results["sweep"]) == files
-    several = report.table_files(all_results(results))
+    assert outputs.table_files(results["sweep"]) == files
+    several = outputs.table_files(all_results(results))
     assert set(several) == {f"summary-table.{ext}" for ext in ("md", "tex", "csv", "json")}
 
 
 def test_figure_files_for_one_and_several_results(results):
-    files = report.figure_files(results["sweep"], ("png", "svg"))
+    files = outputs.figure_files(results["sweep"], ("png", "svg"))
     assert set(files) == {"sweep-curve.png", "sweep-curve.svg", "sweep-frontier.png",
                           "sweep-frontier.svg"}
     assert all(isinstance(v, bytes) for v in files.values())
-    several = report.figure_files([results["fit"], results["sweep"], results["weak"],
+    several = outputs.figure_files([results["fit"], results["sweep"], results["weak"],
                                    results["prior"], results["corrbound"],
                                    results["discrete"]], ("png",),
                                   note="Invented test data.")
@@ -213,17 +214,17 @@ def test_figure_files_for_one_and_several_results(results):
 
 
 def test_write_bundle_takes_figures_and_tables(results, tmp_path):
-    files = {**report.table_files(results["prior"]),
-             **report.figure_files(results["prior"], ("pdf",))}
-    written = report.write_bundle(tmp_path / "out", files)
+    files = {**outputs.table_files(results["prior"]),
+             **outputs.figure_files(results["prior"], ("pdf",))}
+    written = writer.write_bundle(tmp_path / "out", files)
     assert sorted(p.name for p in written) == sorted(files)
     assert (tmp_path / "out" / "prior-map.pdf").read_bytes().startswith(b"%PDF")
 
 
 def test_existing_bundles_are_unchanged(results):
-    assert set(report.sweep_files(results["sweep"])) == {"sweep.json", "sweep.md", "curve.csv"}
-    assert set(report.prior_files(results["prior"])) == {"prior.json", "prior.md"}
-    doc = json.loads(report.sweep_files(results["sweep"])["sweep.json"])
+    assert set(markdown.sweep_files(results["sweep"])) == {"sweep.json", "sweep.md", "curve.csv"}
+    assert set(markdown.prior_files(results["prior"])) == {"prior.json", "prior.md"}
+    doc = json.loads(markdown.sweep_files(results["sweep"])["sweep.json"])
     assert {"curve", "breakdown", "frontier", "curve_extended"} <= set(doc)
 
 
@@ -265,13 +266,13 @@ def everything(results, extra):
 
 
 def test_kind_names_new_results(extra):
-    assert report._kind(extra["published"]) == "published"
-    assert report._kind(extra["calibrate"]) == "calibrate"
+    assert registry.entry_for(extra["published"]).name == "published"
+    assert registry.entry_for(extra["calibrate"]).name == "calibrate"
 
 
 def test_published_rows_read_the_result(extra):
     res = extra["published"]
-    est, stress, ar, pri = report.published_rows(res)
+    est, stress, ar, pri = table_rows.published_rows(res)
     assert (est.estimate, est.se) == (res.estimate, res.se)
     assert est.interval == (Interval(res.curve.lower[0], res.curve.upper[0]),)
     # common practice, no source: at zero direct effect the interval is the printed one,
@@ -285,14 +286,14 @@ def test_published_rows_read_the_result(extra):
     assert {r.n for r in (est, stress, ar, pri)} == {212}
     assert all(r.covariance.startswith("from reported numbers") for r in (est, stress, ar, pri))
     assert "prove" in stress.caution
-    bare = report.published_rows(extra["published_bare"])
+    bare = table_rows.published_rows(extra["published_bare"])
     assert len(bare) == 3 and all(r.n is None for r in bare)
     assert "worst-case" in bare[0].covariance
 
 
 def test_calibration_rows_read_the_result(extra):
     cal = extra["calibrate_zfs"]
-    rows = report.calibrate_rows(cal)
+    rows = table_rows.calibrate_rows(cal)
     assert len(rows) == 1 + len(cal.benchmarks) + 1
     scale = rows[0]
     assert scale.estimate == float(cal.scale.reduced_form[0]) and scale.interval is None
@@ -308,14 +309,14 @@ def test_calibration_rows_read_the_result(extra):
     assert zrow.share_rf == z.direct_rf[0] and z.prior_options[0] in zrow.suggestion
     assert "premise doubtful" in zrow.assumption
     assert all("reference magnitudes" in r.caution for r in rows)
-    assert len(report.calibrate_rows(extra["calibrate"])) == 1 + 2   # scale, two benchmarks
+    assert len(table_rows.calibrate_rows(extra["calibrate"])) == 1 + 2   # scale, two benchmarks
 
 
 def test_tables_with_new_results_are_structurally_sound(results, extra):
     items = everything(results, extra)
-    table = report.results_table(items)
+    table = outputs.results_table(items)
     n_rows = len(table.rows)
-    tex = report.table_latex(table)
+    tex = tables.table_latex(table)
     assert tex.count(r"\begin{tabular}") == tex.count(r"\end{tabular}") == 1
     spec = re.search(r"\\begin\{tabular\}\{(.*)\}\n", tex).group(1)
     ncol = latex_columns(spec)
@@ -327,21 +328,21 @@ def test_tables_with_new_results_are_structurally_sound(results, extra):
         assert line.count("$") % 2 == 0, line
         assert line.count("{") == line.count("}"), line
     assert "--direct" not in tex and "-{}-direct" in tex       # not an en dash
-    md = report.table_markdown(table)
+    md = tables.table_markdown(table)
     assert {markdown_row_cells(line) for line in md.splitlines()
-            if line.startswith("|")} == {len(report.COLUMNS)}
+            if line.startswith("|")} == {len(tables.COLUMNS)}
     assert "**Assumptions — direct-effect stress test from printed numbers:**" in md
     assert "**Assumptions — calibration of direct effects:**" in md
     assert "reference magnitudes" in md and "do not prove" in md
-    reader = list(csv.reader(io.StringIO(report.table_csv(table))))
-    assert tuple(reader[0]) == report.CSV_COLUMNS
-    assert len(reader) == 1 + n_rows and all(len(r) == len(report.CSV_COLUMNS) for r in reader)
+    reader = list(csv.reader(io.StringIO(tables.table_csv(table))))
+    assert tuple(reader[0]) == tables.CSV_COLUMNS
+    assert len(reader) == 1 + n_rows and all(len(r) == len(tables.CSV_COLUMNS) for r in reader)
 
 
 def test_new_rows_round_trip_through_csv_and_json(extra):
     cal, bare = extra["calibrate_zfs"], extra["published_bare"]
-    table = report.results_table([bare, cal])
-    frame = pd.read_csv(io.StringIO(report.table_csv(table)), keep_default_na=False)
+    table = outputs.results_table([bare, cal])
+    frame = pd.read_csv(io.StringIO(tables.table_csv(table)), keep_default_na=False)
     b = cal.benchmarks[1]
     row = frame[frame["analysis"] == f"benchmark: direct effect of height_m without {b.name}"]
     row = row.iloc[0]
@@ -349,7 +350,7 @@ def test_new_rows_round_trip_through_csv_and_json(extra):
     assert float(row["share_of_reduced_form"]) == b.implied_direct_rf
     assert float(row["sd_units"]) == b.implied_direct_sd and row["suggestion"] == b.sweep_option
     assert frame.iloc[0]["n"] == ""                                  # n not printed
-    doc = json.loads(report.table_json(table))
+    doc = json.loads(tables.table_json(table))
     assert doc["rows"][0]["n"] is None and doc["rows"][0]["share_of_reduced_form"] is None
     zrow = doc["rows"][-1]
     z = cal.zero_first_stage
@@ -357,31 +358,31 @@ def test_new_rows_round_trip_through_csv_and_json(extra):
     assert zrow["sd_units"] == z.direct_sd[0]
     assert set(doc["assumptions"]) == {"direct-effect stress test from printed numbers",
                                        "calibration of direct effects"}
-    md = report.table_markdown(report.results_table(bare))
+    md = tables.table_markdown(outputs.results_table(bare))
     assert "| — |" in md.splitlines()[4]                               # n shown as a dash
 
 
 def test_table_files_for_new_results(results, extra):
     for kind in ("published", "calibrate"):
-        files = report.table_files(extra[kind])
+        files = outputs.table_files(extra[kind])
         assert set(files) == {f"{kind}-table.{ext}" for ext in ("md", "tex", "csv", "json")}
-        assert report.table_files(extra[kind]) == files
-    mixed = report.table_files([results["sweep"], extra["published"], extra["calibrate"]])
+        assert outputs.table_files(extra[kind]) == files
+    mixed = outputs.table_files([results["sweep"], extra["published"], extra["calibrate"]])
     assert set(mixed) == {f"summary-table.{ext}" for ext in ("md", "tex", "csv", "json")}
-    assert report.results_table(extra["published"]).title.endswith("from printed numbers")
+    assert outputs.results_table(extra["published"]).title.endswith("from printed numbers")
 
 
 def test_figure_files_for_new_results(results, extra):
-    pub = report.figure_files(extra["published"], ("png",))
+    pub = outputs.figure_files(extra["published"], ("png",))
     assert set(pub) == {"published-curve.png", "published-frontier.png"}
-    cal = report.figure_files(extra["calibrate"], ("png", "svg"))
+    cal = outputs.figure_files(extra["calibrate"], ("png", "svg"))
     assert set(cal) == {"calibrate-benchmarks.png", "calibrate-benchmarks.svg"}
-    assert report.figure_files(extra["calibrate"], ("png", "svg")) == cal   # same bytes
-    mixed = report.figure_files([results["sweep"], extra["published"], extra["calibrate"],
+    assert outputs.figure_files(extra["calibrate"], ("png", "svg")) == cal   # same bytes
+    mixed = outputs.figure_files([results["sweep"], extra["published"], extra["calibrate"],
                                  extra["calibrate_zfs"]], ("png",), note="Invented data.")
     assert set(mixed) == {"sweep-curve.png", "sweep-frontier.png", "published-curve.png",
                           "published-frontier.png", "calibrate-benchmarks.png",
                           "calibrate2-benchmarks.png", "summary-intervals.png"}
     # calibrations alone bound no effect: no summary figure
-    two = report.figure_files([extra["calibrate"], extra["calibrate_zfs"]], ("png",))
+    two = outputs.figure_files([extra["calibrate"], extra["calibrate_zfs"]], ("png",))
     assert set(two) == {"calibrate-benchmarks.png", "calibrate2-benchmarks.png"}

@@ -12,8 +12,10 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli.app import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, SE, SMALL,
-                        TREATMENT, WEIGHT, app, emit, guarded, spec_from_options)
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
+                                OUTCOME, SE, SMALL, TREATMENT, WEIGHT, emit, figure_formats,
+                                spec_from_options, write_outputs)
 
 GROUP = typer.Option(None, "--group", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
 NO_FIRST_STAGE_GROUP = typer.Option(None, "--no-first-stage-group", help="0/1 column; rows with 1 form a subgroup where the instrument is believed not to move the treatment (van Kippersluis & Rietveld 2018).")
@@ -43,7 +45,7 @@ def calibrate(
     zero-first-stage estimate, each turned into options for sweep and prior."""
     from sensiv.sensitivity import calibrate as calibration
     from sensiv.estimation import iv
-    from sensiv.present.report import to_json
+    from sensiv.present.writer import to_json
 
     chosen = figure_formats(formats)
 

@@ -11,8 +11,10 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli.app import (FORMAT, figure_formats, write_outputs, CLUSTER, CONSTANT, CONTROL, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
-                        WEIGHT, app, emit, guarded, spec_from_options)
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
+                                OUTCOME, TREATMENT, WEIGHT, emit, figure_formats,
+                                spec_from_options, write_outputs)
 
 MAX_RATIO = typer.Option(1.0, "--max-ratio", help="Largest ratio r̄ in [0, 1] of |corr(Z, u)| to |corr(X, u)|; 0 is the exclusion restriction.")
 ENDOGENEITY = typer.Option("unknown", "--endogeneity", help="Sign of corr(X, u): positive, negative or unknown (union over both).")
@@ -50,7 +52,7 @@ def corrbound(
     from sensiv.core.errors import InputError
     from sensiv.partial_id.correlation import (bounds_markdown, check_one_treatment, check_options,
                                               correlation_bounds)
-    from sensiv.present.report import to_json
+    from sensiv.present.writer import to_json
 
     chosen = figure_formats(formats)
 

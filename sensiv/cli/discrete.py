@@ -7,7 +7,9 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli.app import FORMAT, figure_formats, write_outputs, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, app, emit, guarded
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import (FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, emit,
+                                figure_formats, write_outputs)
 
 EXIT_SOLVER_FAILURE = 1
 
@@ -57,7 +59,8 @@ def discrete(
     randomised discrete instrument (Balke-Pearl bounds at budget 0)."""
     from sensiv.core.errors import SolverError
     from sensiv.partial_id.discrete import discrete_bounds
-    from sensiv.present.report import to_json
+    from sensiv.present.writer import to_json
+    from sensiv.present.markdown import discrete_markdown
 
     chosen = figure_formats(formats)
 
@@ -84,51 +87,6 @@ def discrete(
     document = result.to_dict()
     if out is not None:
         write_outputs(out, result, {"discrete.json": to_json(document),
-                                    "discrete.md": _markdown(result)}, chosen)
+                                    "discrete.md": discrete_markdown(result)}, chosen)
     emit(document, str(result), as_json)
 
-
-def _markdown(result) -> str:
-    """Markdown report of a discrete-bounds result (formatting only)."""
-    from sensiv.partial_id.discrete_data import plain_number
-    from sensiv.present.report import markdown_table
-    from sensiv.core.results import format_number
-
-    t = result.table
-    pct = f"{100 * result.confidence_level:g}%"
-
-    def number(value) -> str:
-        return format_number(value) if value is not None else "n/a"
-
-    rows = [[f"{plain_number(c.level)} vs {plain_number(c.base)}",
-             str(c.bounds) if c.bounds is not None else "empty (no fit)",
-             str(c.ci) if c.ci is not None else "n/a",
-             number(c.breakdown_budget) if c.breakdown_budget is not None else "never"]
-            for c in result.contrasts]
-    ineq = result.inequality
-    parts = [
-        f"# Discrete bounds: {t.treatment} on {t.outcome}, instrument {t.instrument}\n\n",
-        f"Data: {t.description}, n = {t.n} ({t.n_dropped} rows dropped for missing values). "
-        f"Estimand: {result.estimand()}. Budget: {result.budget:g}"
-        + (f"; monotone with defier budget {result.defier_budget:g}" if result.monotone
-           else "") + ".\n\n",
-        markdown_table(["contrast", "bounds", f"{pct} CI",
-                        f"breakdown budget (θ₀ = {result.threshold:g})"], rows),
-        f"\nInstrumental inequality (Pearl 1995): {ineq.value:.4g} — "
-        f"{'holds' if ineq.holds else 'fails'}. Smallest budget that fits the data: "
-        f"{number(result.min_budget) if result.min_budget is not None else 'none'}.\n",
-    ]
-    if result.bootstrap is not None:
-        b = result.bootstrap
-        parts.append(f"\nBootstrap: {b.reps} replicates (seed {b.seed}); {b.used} used, "
-                     f"{b.infeasible} without a fit, {b.skipped} skipped.\n")
-    parts.append("\n## Curve\n\n")
-    parts.append(markdown_table(
-        ["budget", "lower", "upper"],
-        [[format_number(p.budget), number(p.bounds.low if p.bounds else None),
-          number(p.bounds.high if p.bounds else None)] for p in result.curve]))
-    parts += [f"\n**Note:** {note}\n" for note in result.notes]
-    parts.append("\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in result.assumptions())
-                 + "\n")
-    parts.append(f"\n> {result.caution}\n")
-    return "".join(parts)

@@ -11,7 +11,8 @@ from typing import Optional
 
 import typer
 
-from sensiv.cli.app import FORMAT, figure_formats, write_outputs, JSON, LEVEL, THRESHOLD, app, emit, guarded
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import FORMAT, JSON, LEVEL, THRESHOLD, emit, figure_formats, write_outputs
 
 
 @app.command()
@@ -44,7 +45,7 @@ def published(
     """Stress test from a paper's printed numbers: identified set, union of intervals,
     breakdown, weak-IV-robust set and prior interval (one instrument, no data)."""
     from sensiv.sensitivity.published import published_analysis, published_markdown
-    from sensiv.present.report import to_json
+    from sensiv.present.writer import to_json
 
     chosen = figure_formats(formats)
 

@@ -1,9 +1,9 @@
-"""The report bundle of a recipe run: every table and figure, ``report.md`` and a
-self-contained ``report.html`` (part of the report layer: formatting only, nothing computed).
+"""The report of a recipe run as blocks, rendered to ``report.md`` and a self-contained
+``report.html`` (formatting only, nothing computed).
 
 The report is built once as a list of blocks (headings, paragraphs, lists, tables, figures,
-cautions) and rendered twice, to Markdown and to HTML, so both say exactly the same thing.
-Nothing in it depends on the clock: the same recipe and seed give the same bytes.
+cautions) by :func:`sensiv.recipes.bundle.run_files` and rendered twice, to Markdown and to
+HTML, so both say exactly the same thing.  Nothing here depends on the clock.
 """
 
 from __future__ import annotations
@@ -13,21 +13,13 @@ import html
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from sensiv import __version__
-from sensiv.sensitivity.bounds import CAUTION
+from sensiv.present.tables import markdown_table, table_cells
 
 REPORT_CAUTION = (
     "Every interval below holds only under the assumption stated beside it. Sensitivity "
     "bounds are conditional on the assumed ranges of the exclusion-restriction violation; "
     "they do not establish that an instrument is valid, and a larger violation than assumed "
     "can overturn any conclusion shown here.")
-# Kinds whose results are intervals for the effect (drawn in the study's summary figure).
-INTERVAL_KINDS = ("fit", "sweep", "prior", "corrbound", "discrete", "published")
-KIND_TITLES = {"fit": "2SLS with diagnostics", "sweep": "Direct-effect sweep",
-               "prior": "Prior interval", "corrbound": "Correlation-restriction bounds",
-               "discrete": "Discrete bounds with an exclusion budget",
-               "published": "Stress test of printed numbers",
-               "calibrate": "Calibrating a plausible violation"}
 
 
 @dataclass(frozen=True, slots=True)
@@ -40,126 +32,8 @@ class Block:
     level: int = 0
 
 
-def _kind(result) -> str | None:
-    from sensiv.core.errors import InputError
-    from sensiv.present.report import _kind as table_kind
-
-    try:
-        return table_kind(result)
-    except InputError:  # not a table/figure kind: shown as its text summary
-        return None
-
-
-def _figure_files(results: Sequence, formats: Sequence[str], note: str | None
-                  ) -> dict[str, bytes]:
-    from sensiv.present.report import figure_files
-
-    return figure_files(list(results), tuple(formats), note=note)
-
-
-def _summary_figure(results: Sequence, formats: Sequence[str], note: str | None
-                    ) -> dict[str, bytes]:
-    from sensiv.present import plots
-
-    return plots.save_figure(plots.summary_intervals(list(results), note=note), formats)
-
-
-def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
-              ) -> dict[str, str | bytes]:
-    """Every file of a recipe run, name → content, ready for ``report.write_bundle``.
-
-    Layout: ``report.md``, ``report.html``, ``recipe.toml`` (the recipe as run),
-    ``results/<study>-<n>-<kind>.json`` (every result in full), ``tables/…`` (Markdown, LaTeX,
-    CSV and JSON per analysis and per study) and ``figures/…`` in every requested format.
-    """
-    from sensiv.present.report import results_table, table_files, to_json
-
-    formats = tuple(dict.fromkeys(("png", *formats)))  # PNG always: the HTML embeds it
-    files: dict[str, str | bytes] = {"recipe.toml": run.recipe.path.read_text(encoding="utf-8")}
-    blocks = [Block("heading", run.recipe.title, 1),
-              Block("caution", REPORT_CAUTION),
-              Block("paragraph", f"Produced by sensiv {__version__} from the recipe "
-                                 f"`{run.recipe.path.name}` (copied beside this report)"
-                                 + (f" with seed {run.recipe.seed}" if run.recipe.seed is not None
-                                    else "") + ".")]
-    for study in run.recipe.studies:
-        runs = [r for r in run.runs if r.study == study.name]
-        blocks.append(Block("heading", f"Study: {study.name}", 2))
-        if study.description:
-            blocks.append(Block("paragraph", study.description))
-        tabled = [r for r in runs if _kind(r.result) is not None]
-        if sum(_kind(r.result) in INTERVAL_KINDS for r in tabled) > 1:
-            summary = results_table([r.result for r in tabled])
-            blocks.append(Block("table", summary))
-            for name, content in table_files([r.result for r in tabled],
-                                             stem=f"{study.name}-summary").items():
-                files[f"tables/{name}"] = content
-            summary_figures = _summary_figure([r.result for r in tabled
-                                               if _kind(r.result) in INTERVAL_KINDS],
-                                              formats, note)
-            for fmt, data in summary_figures.items():
-                files[f"figures/{study.name}-summary-intervals.{fmt}"] = data
-            blocks.append(Block("figure", (f"figures/{study.name}-summary-intervals.png",
-                                           summary_figures["png"],
-                                           "Every analysis of this study as one interval, "
-                                           "each under its own assumption.")))
-        for r in runs:
-            blocks += _analysis_blocks(r, formats, note, files)
-            files[f"results/{r.stem}.json"] = to_json(r.result.to_dict())
-    files["report.md"] = render_markdown(blocks)
-    files["report.html"] = render_html(blocks, run.recipe.title)
-    return files
-
-
-def _analysis_blocks(r, formats, note, files) -> list[Block]:
-    from sensiv.present.report import results_table, table_files
-
-    result = r.result
-    title = KIND_TITLES.get(r.analysis.kind, r.analysis.kind)
-    label = r.analysis.label
-    blocks = [Block("heading", title if label == r.analysis.kind else f"{title}: {label}", 3)]
-    assumptions = list(result.assumptions()) if hasattr(result, "assumptions") else []
-    if assumptions:
-        blocks.append(Block("paragraph", "Assumptions:"))
-        blocks.append(Block("list", assumptions))
-    kind = _kind(result)
-    if kind is None:
-        blocks.append(Block("pre", str(result)))
-    else:
-        table = results_table(result)
-        blocks.append(Block("table", table))
-        for name, content in table_files(result, stem=r.stem).items():
-            files[f"tables/{name}"] = content
-        figures = _figure_files([result], formats, note)
-        for name, data in figures.items():
-            files[f"figures/{r.stem}-{name.split('-', 1)[1]}"] = data
-        for name, data in figures.items():
-            if name.endswith(".png"):
-                path = f"figures/{r.stem}-{name.split('-', 1)[1]}"
-                blocks.append(Block("figure", (path, data, "")))
-    notes = getattr(result, "notes", ())
-    if notes:
-        blocks.append(Block("paragraph", "Notes:"))
-        blocks.append(Block("list", list(notes)))
-    caution = getattr(result, "caution", None)
-    caution = caution() if callable(caution) else caution
-    text = caution if isinstance(caution, str) else CAUTION
-    text = text.removeprefix("Caution: ").removeprefix("Caution. ")
-    blocks.append(Block("caution", text[:1].upper() + text[1:]))
-    return blocks
-
-
-# ----------------------------------------------------------------------------- renderers
-def _table_cells(table) -> tuple[list[str], list[list[str]]]:
-    from sensiv.present.report import _cells
-
-    return _cells(table)
-
-
 def render_markdown(blocks: Sequence[Block]) -> str:
     """The report in Markdown (figures linked by relative path)."""
-    from sensiv.present.report import markdown_table
-
     out = []
     for b in blocks:
         if b.kind == "heading":
@@ -169,7 +43,7 @@ def render_markdown(blocks: Sequence[Block]) -> str:
         elif b.kind == "list":
             out.append("\n".join(f"- {item}" for item in b.content) + "\n")
         elif b.kind == "table":
-            header, rows = _table_cells(b.content)
+            header, rows = table_cells(b.content)
             out.append(markdown_table(header, rows))
         elif b.kind == "figure":
             path, _, caption = b.content
@@ -216,7 +90,7 @@ def render_html(blocks: Sequence[Block], title: str) -> str:
         elif b.kind == "list":
             body.append("<ul>" + "".join(f"<li>{e(str(i))}</li>" for i in b.content) + "</ul>")
         elif b.kind == "table":
-            header, rows = _table_cells(b.content)
+            header, rows = table_cells(b.content)
             head = "".join(f"<th>{e(h)}</th>" for h in header)
             cells = "".join("<tr>" + "".join(f"<td>{e(c)}</td>" for c in row) + "</tr>"
                             for row in rows)

@@ -796,7 +796,7 @@ def calibration_text(cal: Calibration) -> str:
 
 def calibration_markdown(cal: Calibration) -> str:
     """Markdown report (formatting only)."""
-    from sensiv.present.report import markdown_table
+    from sensiv.present.tables import markdown_table
 
     s = cal.scale
     parts = [

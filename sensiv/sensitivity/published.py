@@ -752,7 +752,7 @@ def _summary_lines(res: PublishedResult) -> list[str]:
 
 def published_markdown(res: PublishedResult) -> str:
     """Markdown report of a published stress test."""
-    from sensiv.present.report import markdown_table
+    from sensiv.present.tables import markdown_table
 
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 from sensiv.core.results import format_number
+from sensiv.present.tables import table_cells
+from sensiv.sensitivity import bounds
 
 
 def _table(header: list[str], rows: list[list[str]]) -> list[str]:
@@ -113,9 +115,7 @@ def sweep_summary(res) -> str:
     for note in res.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
-    from sensiv.sensitivity.bounds import CAUTION
-
-    lines += ["", CAUTION]
+    lines += ["", bounds.CAUTION]
     return "\n".join(lines)
 
 
@@ -141,17 +141,13 @@ def prior_summary(res) -> str:
     for note in res.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
-    from sensiv.sensitivity.bounds import CAUTION
-
-    lines += ["", CAUTION]
+    lines += ["", bounds.CAUTION]
     return "\n".join(lines)
 
 
 def text_table(table) -> str:
-    """A results table (``sensiv.present.report.Table``) as plain text for the terminal: analysis,
+    """A results table (:class:`~sensiv.present.tables.Table`) as plain text for the terminal: analysis,
     estimate or bounds, interval and breakdown (assumptions are in the report)."""
-    from sensiv.present.report import _cells
-
-    header, rows = _cells(table)
+    header, rows = table_cells(table)
     keep = [0, 2, 3, 4]
     return "\n".join(_table([header[j] for j in keep], [[r[j] for j in keep] for r in rows]))

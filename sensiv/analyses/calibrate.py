@@ -1,0 +1,38 @@
+"""Registry entry of ``calibrate``: yardsticks for a plausible direct effect."""
+
+from __future__ import annotations
+
+from sensiv.analyses.kind import AnalysisKind
+from sensiv.core.errors import InputError
+from sensiv.present import figures, table_rows
+from sensiv.present import text_calibrate
+from sensiv.sensitivity import calibrate
+
+OPTIONS = {"groups": dict, "no_first_stage_group": str}
+
+
+def run(context, options) -> calibrate.Calibration:
+    o = options
+    groups = o.get("groups", {})
+    for name, columns in groups.items():
+        if not (isinstance(columns, list) and all(isinstance(c, str) for c in columns)):
+            raise InputError(f"groups.{name} of study '{context.study}' must be a list of "
+                             "column names")
+    data = context.frame if o.get("no_first_stage_group") else context.source
+    return calibrate.calibrate(data, context.spec, groups=groups or None,
+                               no_first_stage_group=o.get("no_first_stage_group"),
+                               **context.common)
+
+
+def draw(result, note):
+    if result.benchmarks or result.zero_first_stage is not None:
+        return {"benchmarks": figures.calibration_benchmarks(result, note=note)}
+    return {}
+
+
+ENTRY = AnalysisKind(
+    name="calibrate", result_type=calibrate.Calibration,
+    title="Calibrating a plausible violation", table_title="Calibration of direct effects",
+    text=text_calibrate.calibration_text, rows=table_rows.calibrate_rows, figures=draw,
+    summary_rows=None, options=OPTIONS, run=run,
+    note_heading="calibration of direct effects")

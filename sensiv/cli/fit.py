@@ -1,0 +1,49 @@
+"""``sensiv fit``: 2SLS with OLS beside it, first stages, the Anderson–Rubin set and the overidentification test."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
+                                OUTCOME, SE, SMALL, TREATMENT, WEIGHT, emit, figure_formats,
+                                spec_from_options, write_outputs)
+
+
+@app.command()
+@guarded
+def fit(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    control: Optional[list[str]] = CONTROL,
+    se: Optional[str] = SE,
+    cluster: Optional[str] = CLUSTER,
+    weight: Optional[str] = WEIGHT,
+    level: float = LEVEL,
+    small: bool = SMALL,
+    constant: bool = CONSTANT,
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Also write fit.json, fit.md, tables and a figure here."),
+    formats: Optional[list[str]] = FORMAT,
+) -> None:
+    """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
+    from sensiv.estimation import iv
+    from sensiv.data import from_file
+    from sensiv.present.writer import to_json
+    from sensiv.present.markdown import fit_markdown
+
+    chosen = figure_formats(formats)
+    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
+    iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
+    document = result.to_dict()
+    if out is not None:
+        write_outputs(out, result, {"fit.json": to_json(document), "fit.md": fit_markdown(result)},
+                      chosen)
+    emit(document, str(result), as_json)
+

@@ -1,0 +1,60 @@
+"""``sensiv prior``: the interval for the effect when the direct effect follows a prior law."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT, JSON, LEVEL,
+                                OUTCOME, SE, SMALL, TREATMENT, WEIGHT, data_source, emit,
+                                figure_formats, write_outputs)
+
+
+@app.command()
+@guarded
+def prior(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    control: Optional[list[str]] = CONTROL,
+    se: Optional[str] = SE,
+    cluster: Optional[str] = CLUSTER,
+    weight: Optional[str] = WEIGHT,
+    level: float = LEVEL,
+    small: bool = SMALL,
+    constant: bool = CONSTANT,
+    prior_law: Optional[list[str]] = typer.Option(
+        None, "--prior",
+        help="Prior of one instrument's direct effect: normal:MEAN:SD, uniform:LOW:HIGH or "
+             "triangular:LOW:MODE:HIGH; one per instrument in order."),
+    prior_file: Optional[Path] = typer.Option(
+        None, "--prior-file", help="TOML or JSON with 'mean' and 'cov' (multivariate normal)."),
+    draws: int = typer.Option(200_000, "--draws", help="Monte Carlo draws (non-normal laws, several instruments)."),
+    seed: int = typer.Option(0, "--seed", help="Seed of the Monte Carlo draws."),
+    focus: Optional[str] = FOCUS,
+    threshold: float = typer.Option(0.0, "--threshold", help="Threshold for the prior map: which priors leave an interval that excludes it."),
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Write prior.json, prior.md, tables and the prior map here."),
+    formats: Optional[list[str]] = FORMAT,
+) -> None:
+    """Interval for the effect when the direct effect follows a prior law."""
+    from sensiv.estimation import iv
+    from sensiv.sensitivity import prior as prior_layer
+    from sensiv.present.markdown import prior_files
+
+    chosen = figure_formats(formats)
+    iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
+                           constant)
+    result = prior_layer.prior_analysis(
+        source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
+        se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed,
+        threshold=threshold)
+    if out is not None:
+        write_outputs(out, result, prior_files(result), chosen)
+    emit(result.to_dict(), str(result), as_json)
+

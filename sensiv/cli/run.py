@@ -1,0 +1,43 @@
+"""``sensiv run``: a recipe's analyses and the report bundle."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import FORMAT, JSON, emit, figure_formats
+
+
+@app.command()
+@guarded
+def run(
+    recipe: Path = typer.Argument(..., help="Recipe file (TOML): data, roles, analyses."),
+    out: Path = typer.Option(..., "--out", help="Folder for report.md, report.html, tables and figures."),
+    formats: Optional[list[str]] = FORMAT,
+    as_json: bool = JSON,
+) -> None:
+    """Run every analysis of a recipe and write the report bundle."""
+    from sensiv.present.writer import write_bundle
+    from sensiv.recipes.bundle import run_files
+    from sensiv.recipes.parse import parse_recipe
+    from sensiv.recipes.run import run_recipe
+
+    chosen = figure_formats(formats)
+    parsed = parse_recipe(recipe)
+    result = run_recipe(parsed)
+    files = run_files(result, chosen)
+    write_bundle(out, files)
+    document = {"recipe": str(recipe), "out": str(out), "title": parsed.title,
+                "analyses": [{"study": r.study, "kind": r.analysis.kind,
+                              "label": r.analysis.label, "result": r.result.to_dict()}
+                             for r in result.runs],
+                "files": sorted(files)}
+    text = [f"{parsed.title}: {len(result.runs)} analyses in {len(parsed.studies)} "
+            f"stud{'y' if len(parsed.studies) == 1 else 'ies'}"]
+    text += [f"  {r.study} / {r.analysis.label} ({r.analysis.kind})" for r in result.runs]
+    text.append(f"Written to {out}/: report.md, report.html, tables/, figures/, results/")
+    emit(document, "\n".join(text), as_json)
+

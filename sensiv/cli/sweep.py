@@ -1,0 +1,62 @@
+"""``sensiv sweep``: what survives a direct effect of the instruments on the outcome."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from sensiv.cli.app import app, guarded
+from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT, JSON, LEVEL,
+                                OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT, data_source,
+                                emit, figure_formats, write_outputs)
+
+
+@app.command()
+@guarded
+def sweep(
+    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    outcome: str = OUTCOME,
+    treatment: list[str] = TREATMENT,
+    instrument: list[str] = INSTRUMENT,
+    control: Optional[list[str]] = CONTROL,
+    se: Optional[str] = SE,
+    cluster: Optional[str] = CLUSTER,
+    weight: Optional[str] = WEIGHT,
+    level: float = LEVEL,
+    small: bool = SMALL,
+    constant: bool = CONSTANT,
+    direct: Optional[list[str]] = typer.Option(
+        None, "--direct",
+        help="Assumed range LOW:HIGH of one instrument's direct effect on the outcome, one per "
+             "instrument in order; suffix 'rf' = share of the reduced form, 'sd' = outcome SDs "
+             "per instrument SD. Write --direct=-0.1:0.1 when LOW is negative."),
+    direct_polytope: Optional[Path] = typer.Option(
+        None, "--direct-polytope",
+        help="CSV with one column per instrument and 'bound': rows a'g <= bound."),
+    threshold: float = THRESHOLD,
+    points: int = typer.Option(101, "--points", help="Curve points over scalings 0..1 of the set."),
+    focus: Optional[str] = FOCUS,
+    adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
+    as_json: bool = JSON,
+    out: Optional[Path] = typer.Option(None, "--out", help="Write sweep.json, sweep.md, curve.csv, tables and figures here."),
+    formats: Optional[list[str]] = FORMAT,
+) -> None:
+    """Direct-effect sweep: identified set, union of intervals, breakdown point, robust set."""
+    from sensiv.sensitivity import bounds
+    from sensiv.estimation import iv
+    from sensiv.present.markdown import sweep_files
+
+    chosen = figure_formats(formats)
+    iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
+                           constant)
+    result = bounds.sweep(source, direct=direct or None,
+                          polytope=str(direct_polytope) if direct_polytope else None, se=se,
+                          confidence_level=level, small=small, threshold=threshold,
+                          points=points, focus=focus, adaptive=adaptive)
+    if out is not None:
+        write_outputs(out, result, sweep_files(result), chosen)
+    emit(result.to_dict(), str(result), as_json)
+

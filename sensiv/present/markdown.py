@@ -1,0 +1,160 @@
+"""The per-command Markdown reports (``fit.md``, ``sweep.md``, ``prior.md``, ``discrete.md``)
+and the sweep's ``curve.csv``: formatting only, every number read from a result object."""
+
+from __future__ import annotations
+
+from sensiv.core.results import format_number
+from sensiv.estimation import iv
+from sensiv.partial_id.discrete_data import plain_number
+from sensiv.present.writer import to_json
+from sensiv.present.tables import markdown_table
+from sensiv.sensitivity import bounds
+
+
+def fit_markdown(fit) -> str:
+    """Markdown report of a 2SLS fit: coefficients, first stages, AR set, overid, assumptions."""
+    pct = f"{100 * fit.confidence_level:g}%"
+    rows = []
+    for name in fit.reported_names():
+        ci = fit.conf_int(name)
+        rows.append([name, format_number(fit.tsls.value(name), 6),
+                     format_number(fit.tsls.std_error(name), 6), str(ci),
+                     format_number(fit.ols.value(name), 6),
+                     format_number(fit.ols.std_error(name), 6)])
+    parts = [
+        f"# 2SLS: {fit.outcome} on {', '.join(fit.treatments)}\n",
+        f"Instruments: {', '.join(fit.instruments)}. Controls: "
+        f"{', '.join(fit.controls) if fit.controls else 'none'}"
+        f"{' and a constant' if fit.constant else ''}. n = {fit.n} "
+        f"({fit.n_dropped} rows dropped for missing values). Covariance: {fit.se_type}"
+        f"{' with small-sample corrections' if fit.small else ''}"
+        f"{f', {fit.n_clusters} clusters' if fit.n_clusters is not None else ''}.\n",
+        markdown_table(["coefficient", "2SLS", "se", f"{pct} CI", "OLS", "OLS se"], rows),
+        "\n## First stage\n",
+        markdown_table(
+            ["treatment", "instrument", "coef", "se", "F", "partial R²", "effective F"],
+            [[fs.treatment, inst, format_number(fs.coef[inst], 6), format_number(fs.se[inst], 6),
+              format_number(fs.f, 5), format_number(fs.partial_r2, 4),
+              format_number(fs.effective_f, 5) if fs.effective_f is not None else "n/a"]
+             for fs in fit.first_stages for inst in fit.instruments]),
+    ]
+    if fit.ar_set is not None:
+        pieces = " ∪ ".join(str(p) for p in fit.ar_set) if fit.ar_set else "empty"
+        parts.append(f"\nAnderson–Rubin {pct} confidence set for {fit.treatments[0]}: "
+                     f"{pieces}\n")
+    if fit.overid is not None:
+        o = fit.overid
+        parts.append(f"\nOveridentification test ({o.name}): {format_number(o.stat, 5)} on "
+                     f"{o.df} df, p = {format_number(o.p_value, 3)}\n")
+    for note in fit.notes:
+        parts.append(f"\n**Warning:** {note}\n")
+    parts.append("\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in fit.assumptions()) + "\n")
+    parts.append(f"\n> {iv.CAUTION}\n")
+    return "".join(parts)
+
+
+def sweep_markdown(res) -> str:
+    """Markdown report of a direct-effect sweep."""
+    pct = f"{100 * res.confidence_level:g}%"
+    b = res.breakdown
+    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale, 6)
+    rows = [
+        ["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
+                                       f"{format_number(res.se, 6)})"],
+        ["identified set", str(res.identified_set)],
+        [f"union of {pct} intervals", str(res.union_ci)],
+        [f"weak-IV-robust {pct} set", " ∪ ".join(str(p) for p in res.ar_set)
+         if res.ar_set else ("empty" if res.ar_set is not None else "n/a")],
+        ["conclusion examined", b.conclusion],
+        ["breakdown scale of the set", scale],
+    ]
+    for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
+        rows.append([f"breakdown direct effect, {z} alone",
+                     f"{'none' if lo is None else format_number(lo, 6)} / "
+                     f"{'none' if hi is None else format_number(hi, 6)}"])
+    ranges = markdown_table(
+        ["instrument", "outcome units", "share of reduced form", "SD units"],
+        [[z, str(a), str(r), str(s)] for z, a, r, s in
+         zip(res.instruments, res.direct_set, res.direct_set_rf, res.direct_set_sd)])
+    notes = "".join(f"\n**Warning:** {n}\n" for n in res.notes)
+    return (f"# Direct-effect sensitivity: {res.focus} → {res.outcome}\n\n"
+            f"n = {res.n}, covariance: {res.se_type}.\n\n## Assumed direct effects\n\n{ranges}\n"
+            f"## Results\n\n{markdown_table(['quantity', 'value'], rows)}{notes}\n"
+            "## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
+            + f"\n\n> {bounds.CAUTION}\n")
+
+
+def curve_csv(res) -> str:
+    """The sensitivity curve as CSV (scale, union interval, identified set)."""
+    lines = ["scale,lower,upper,id_lower,id_upper"]
+    for row in res.curve.to_list():
+        lines.append(",".join("" if row[k] is None else repr(float(row[k]))
+                              for k in ("scale", "lower", "upper", "id_lower", "id_upper")))
+    return "\n".join(lines) + "\n"
+
+
+def sweep_files(res) -> dict[str, str]:
+    return {"sweep.json": to_json(res.to_dict()), "sweep.md": sweep_markdown(res),
+            "curve.csv": curve_csv(res)}
+
+
+def prior_markdown(res) -> str:
+    pct = f"{100 * res.confidence_level:g}%"
+    rows = [["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
+                                           f"{format_number(res.se, 6)})"],
+            [f"{pct} prior interval", str(res.interval)],
+            ["center", format_number(res.center, 6)],
+            ["method", res.method],
+            ["Monte Carlo error", "n/a" if res.mc_error is None else format_number(res.mc_error,
+                                                                                   3)]]
+    return (f"# Prior interval: {res.focus} → {res.outcome}\n\n"
+            + markdown_table(["quantity", "value"], rows)
+            + "\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
+            + f"\n\n> {bounds.CAUTION}\n")
+
+
+def prior_files(res) -> dict[str, str]:
+    return {"prior.json": to_json(res.to_dict()), "prior.md": prior_markdown(res)}
+
+
+def discrete_markdown(result) -> str:
+    """Markdown report of a discrete-bounds result (formatting only)."""
+
+    t = result.table
+    pct = f"{100 * result.confidence_level:g}%"
+
+    def number(value) -> str:
+        return format_number(value) if value is not None else "n/a"
+
+    rows = [[f"{plain_number(c.level)} vs {plain_number(c.base)}",
+             str(c.bounds) if c.bounds is not None else "empty (no fit)",
+             str(c.ci) if c.ci is not None else "n/a",
+             number(c.breakdown_budget) if c.breakdown_budget is not None else "never"]
+            for c in result.contrasts]
+    ineq = result.inequality
+    parts = [
+        f"# Discrete bounds: {t.treatment} on {t.outcome}, instrument {t.instrument}\n\n",
+        f"Data: {t.description}, n = {t.n} ({t.n_dropped} rows dropped for missing values). "
+        f"Estimand: {result.estimand()}. Budget: {result.budget:g}"
+        + (f"; monotone with defier budget {result.defier_budget:g}" if result.monotone
+           else "") + ".\n\n",
+        markdown_table(["contrast", "bounds", f"{pct} CI",
+                        f"breakdown budget (θ₀ = {result.threshold:g})"], rows),
+        f"\nInstrumental inequality (Pearl 1995): {ineq.value:.4g} — "
+        f"{'holds' if ineq.holds else 'fails'}. Smallest budget that fits the data: "
+        f"{number(result.min_budget) if result.min_budget is not None else 'none'}.\n",
+    ]
+    if result.bootstrap is not None:
+        b = result.bootstrap
+        parts.append(f"\nBootstrap: {b.reps} replicates (seed {b.seed}); {b.used} used, "
+                     f"{b.infeasible} without a fit, {b.skipped} skipped.\n")
+    parts.append("\n## Curve\n\n")
+    parts.append(markdown_table(
+        ["budget", "lower", "upper"],
+        [[format_number(p.budget), number(p.bounds.low if p.bounds else None),
+          number(p.bounds.high if p.bounds else None)] for p in result.curve]))
+    parts += [f"\n**Note:** {note}\n" for note in result.notes]
+    parts.append("\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in result.assumptions())
+                 + "\n")
+    parts.append(f"\n> {result.caution}\n")
+    return "".join(parts)

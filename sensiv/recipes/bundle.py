@@ -1,0 +1,96 @@
+"""The report bundle of a recipe run: ``run_files`` gathers every table and figure and builds
+the report as blocks, which ``sensiv.present.bundle`` renders to ``report.md`` and a
+self-contained ``report.html``.  Each analysis's tables and figures are found through the
+registry.  Nothing in it depends on the clock: the same recipe and seed give the same bytes.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+from sensiv.core.version import __version__
+from sensiv.analyses.outputs import figure_files, results_table, summary_figure, table_files
+from sensiv.analyses.registry import entry, is_tabled
+from sensiv.present import figures
+from sensiv.present.bundle import REPORT_CAUTION, Block, render_html, render_markdown
+from sensiv.present.writer import to_json
+from sensiv.sensitivity.bounds import CAUTION
+
+
+def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
+              ) -> dict[str, str | bytes]:
+    """Every file of a recipe run, name → content, ready for ``report.write_bundle``.
+
+    Layout: ``report.md``, ``report.html``, ``recipe.toml`` (the recipe as run),
+    ``results/<study>-<n>-<kind>.json`` (every result in full), ``tables/…`` (Markdown, LaTeX,
+    CSV and JSON per analysis and per study) and ``figures/…`` in every requested format.
+    """
+    formats = tuple(dict.fromkeys(("png", *formats)))  # PNG always: the HTML embeds it
+    files: dict[str, str | bytes] = {"recipe.toml": run.recipe.path.read_text(encoding="utf-8")}
+    blocks = [Block("heading", run.recipe.title, 1),
+              Block("caution", REPORT_CAUTION),
+              Block("paragraph", f"Produced by sensiv {__version__} from the recipe "
+                                 f"`{run.recipe.path.name}` (copied beside this report)"
+                                 + (f" with seed {run.recipe.seed}" if run.recipe.seed is not None
+                                    else "") + ".")]
+    for study in run.recipe.studies:
+        runs = [r for r in run.runs if r.study == study.name]
+        blocks.append(Block("heading", f"Study: {study.name}", 2))
+        if study.description:
+            blocks.append(Block("paragraph", study.description))
+        tabled = [r for r in runs if is_tabled(r.result)]
+        effects = [r.result for r in tabled if entry(r.analysis.kind).in_summary]
+        if len(effects) > 1:
+            summary = results_table([r.result for r in tabled])
+            blocks.append(Block("table", summary))
+            for name, content in table_files([r.result for r in tabled],
+                                             stem=f"{study.name}-summary").items():
+                files[f"tables/{name}"] = content
+            summary_figures = figures.save_figure(summary_figure(effects, note=note), formats)
+            for fmt, data in summary_figures.items():
+                files[f"figures/{study.name}-summary-intervals.{fmt}"] = data
+            blocks.append(Block("figure", (f"figures/{study.name}-summary-intervals.png",
+                                           summary_figures["png"],
+                                           "Every analysis of this study as one interval, "
+                                           "each under its own assumption.")))
+        for r in runs:
+            blocks += _analysis_blocks(r, formats, note, files)
+            files[f"results/{r.stem}.json"] = to_json(r.result.to_dict())
+    files["report.md"] = render_markdown(blocks)
+    files["report.html"] = render_html(blocks, run.recipe.title)
+    return files
+
+
+def _analysis_blocks(r, formats, note, files) -> list[Block]:
+    result = r.result
+    title = entry(r.analysis.kind).title
+    label = r.analysis.label
+    blocks = [Block("heading", title if label == r.analysis.kind else f"{title}: {label}", 3)]
+    assumptions = list(result.assumptions()) if hasattr(result, "assumptions") else []
+    if assumptions:
+        blocks.append(Block("paragraph", "Assumptions:"))
+        blocks.append(Block("list", assumptions))
+    if not is_tabled(result):
+        blocks.append(Block("pre", str(result)))
+    else:
+        table = results_table(result)
+        blocks.append(Block("table", table))
+        for name, content in table_files(result, stem=r.stem).items():
+            files[f"tables/{name}"] = content
+        drawn = figure_files([result], tuple(formats), note=note)
+        for name, data in drawn.items():
+            files[f"figures/{r.stem}-{name.split('-', 1)[1]}"] = data
+        for name, data in drawn.items():
+            if name.endswith(".png"):
+                path = f"figures/{r.stem}-{name.split('-', 1)[1]}"
+                blocks.append(Block("figure", (path, data, "")))
+    notes = getattr(result, "notes", ())
+    if notes:
+        blocks.append(Block("paragraph", "Notes:"))
+        blocks.append(Block("list", list(notes)))
+    caution = getattr(result, "caution", None)
+    caution = caution() if callable(caution) else caution
+    text = caution if isinstance(caution, str) else CAUTION
+    text = text.removeprefix("Caution: ").removeprefix("Caution. ")
+    blocks.append(Block("caution", text[:1].upper() + text[1:]))
+    return blocks

@@ -1,0 +1,186 @@
+"""Reading and validating a recipe: every problem is an :class:`InputError` that names the key
+and its line.  The keys each analysis kind accepts come from its registry entry."""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from sensiv.analyses.registry import KINDS
+from sensiv.core.errors import InputError
+from sensiv.recipes.schema import (COMMON_KEYS, DATA_KEYS, FORMATS, INFERENCE_KEYS, SE_CHOICES,
+                                   STUDY_KEYS, TOP_KEYS, Analysis, Recipe, Study)
+
+
+# ----------------------------------------------------------------------------- parsing
+class KeyLines:
+    """Finds the line of a key in the recipe text, for error messages.
+
+    ``scope`` narrows the search to the text after the n-th header of a table array
+    (``("analysis", 2)`` is the third ``[[analysis]]`` or ``[[study.analysis]]``).
+    """
+
+    def __init__(self, text: str, path: Path) -> None:
+        self._lines = text.splitlines()
+        self._path = path
+
+    def _start(self, scope: tuple[str, int] | None) -> int:
+        if scope is None:
+            return 0
+        name, occurrence = scope
+        header = re.compile(rf"^\s*\[\[(study\.)?{re.escape(name)}\]\]")
+        seen = -1
+        for number, line in enumerate(self._lines):
+            if header.match(line):
+                seen += 1
+                if seen == occurrence:
+                    return number
+        return 0
+
+    def where(self, key: str, scope: tuple[str, int] | None = None) -> str:
+        pattern = re.compile(rf"^\s*{re.escape(key)}\s*=")
+        start = self._start(scope)
+        for number in range(start, len(self._lines)):
+            if pattern.match(self._lines[number]):
+                return f"{self._path.name} line {number + 1}"
+        return self._path.name
+
+    def fail(self, key: str, message: str, scope: tuple[str, int] | None = None) -> InputError:
+        return InputError(f"{self.where(key, scope)}: {message}")
+
+
+def _type_name(kind: type) -> str:
+    return {str: "a string", int: "an integer", float: "a number", bool: "true or false",
+            list: "a list", dict: "a table"}[kind]
+
+
+def _check_table(table: Mapping, allowed: Mapping[str, type], where: str,
+                 lines: KeyLines, scope: tuple[str, int] | None = None) -> None:
+    for key, value in table.items():
+        if key not in allowed:
+            raise lines.fail(key, f"unknown key '{key}' in {where}; allowed: "
+                                  f"{', '.join(sorted(allowed))}", scope)
+        kind = allowed[key]
+        ok = (isinstance(value, (int, float)) and not isinstance(value, bool)
+              if kind is float else
+              isinstance(value, int) and not isinstance(value, bool) if kind is int else
+              isinstance(value, kind))
+        if not ok:
+            raise lines.fail(key, f"'{key}' in {where} must be {_type_name(kind)}; got "
+                                  f"{value!r}", scope)
+        if kind is float and not math.isfinite(float(value)):
+            raise lines.fail(key, f"'{key}' in {where} must be finite", scope)
+
+
+def _strings(value: list, key: str, where: str, lines: KeyLines,
+             scope: tuple[str, int] | None = None) -> list[str]:
+    if not all(isinstance(v, str) for v in value):
+        raise lines.fail(key, f"'{key}' in {where} must be a list of strings; got {value!r}",
+                         scope)
+    return list(value)
+
+
+def _analysis(entry: Any, where: str, lines: KeyLines, has_data: bool,
+              scope: tuple[str, int]) -> Analysis:
+    if not isinstance(entry, dict):
+        raise InputError(f"{lines.where('analysis')}: each [[analysis]] must be a table")
+    kind = entry.get("kind")
+    if kind not in KINDS:
+        raise lines.fail("kind", f"analysis kind {kind!r} in {where} is not known; choose one "
+                                 f"of {', '.join(KINDS)}", scope)
+    _check_table(entry, {**COMMON_KEYS, **KINDS[kind].options}, f"{where} ({kind})", lines, scope)
+    if KINDS[kind].needs_data and not has_data and not (kind == "discrete" and "counts" in entry):
+        raise lines.fail("kind", f"analysis '{kind}' in {where} needs a [data] table", scope)
+    options = {k: v for k, v in entry.items() if k not in COMMON_KEYS}
+    for key in ("direct", "prior"):
+        if key in options:
+            options[key] = _strings(options[key], key, where, lines, scope)
+    label = entry.get("label", kind)
+    return Analysis(kind, options, label, entry.get("seed"))
+
+
+def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
+           first_analysis: int) -> Study:
+    _check_table(table, STUDY_KEYS, where, lines)
+    data = table.get("data")
+    if data is not None:
+        _check_table(data, DATA_KEYS, f"{where}.data", lines)
+        for key in ("outcome", "treatments", "instruments"):
+            if key not in data:
+                raise lines.fail("data", f"{where}.data lacks '{key}'")
+        for key in ("treatments", "instruments", "controls"):
+            if key in data:
+                data = {**data, key: _strings(data[key], key, f"{where}.data", lines)}
+        if "path" not in data:
+            raise lines.fail("data", f"{where}.data lacks 'path' (the data file)")
+        resolved = (base / data["path"]).resolve()
+        if not resolved.is_file():
+            raise lines.fail("path", f"data file '{data['path']}' in {where}.data does not "
+                                     f"exist (looked for {resolved}); fix the path")
+        data = {**data, "path": str(resolved)}
+    inference = dict(table.get("inference", {}))
+    _check_table(inference, INFERENCE_KEYS, f"{where}.inference", lines)
+    if "se" in inference and inference["se"] not in SE_CHOICES:
+        raise lines.fail("se", f"se '{inference['se']}' in {where}.inference is not one of "
+                               f"{', '.join(SE_CHOICES)}")
+    entries = table.get("analysis", [])
+    if not entries:
+        raise lines.fail("analysis", f"{where} has no [[analysis]] entries; add at least one")
+    analyses = tuple(_analysis(e, f"{where}.analysis {j + 1}", lines, data is not None,
+                               ("analysis", first_analysis + j))
+                     for j, e in enumerate(entries))
+    for a in analyses:
+        for key in ("polytope", "prior_file", "counts"):
+            if key in a.options:
+                resolved = (base / a.options[key]).resolve()
+                if not resolved.is_file():
+                    raise lines.fail(key, f"file '{a.options[key]}' ({key}) does not exist; "
+                                          "fix the path")
+                a.options[key] = str(resolved)
+    name = table.get("name", f"study{index + 1}")
+    if not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
+        raise lines.fail("name", f"study name {name!r} may hold only letters, digits, '_', "
+                                 "'.' and '-' (it names output files)")
+    return Study(name, table.get("description", ""), data, inference, analyses)
+
+
+def parse_recipe(path: str | Path) -> Recipe:
+    """Read and validate a recipe; every problem is an :class:`InputError` naming key and line."""
+    import tomllib
+
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(f"recipe '{path}' does not exist; check the path")
+    text = p.read_text(encoding="utf-8")
+    try:
+        content = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{p.name}: not valid TOML ({exc}); fix the syntax") from exc
+    lines = KeyLines(text, p)
+    _check_table(content, TOP_KEYS, "the recipe", lines)
+    formats = tuple(_strings(content.get("formats", ["png"]), "formats", "the recipe", lines))
+    for f in formats:
+        if f not in FORMATS:
+            raise lines.fail("formats", f"figure format '{f}' is not one of "
+                                        f"{', '.join(FORMATS)}")
+    if "study" in content:
+        single = {k for k in ("data", "inference", "analysis", "name", "description")
+                  if k in content}
+        if single:
+            raise lines.fail(sorted(single)[0], "a recipe with [[study]] tables cannot also "
+                                                "have top-level data/analysis keys")
+        tables = content["study"]
+    else:
+        tables = [{k: content[k] for k in STUDY_KEYS if k in content}]
+    studies, first = [], 0
+    for i, t in enumerate(tables):
+        studies.append(_study(t, f"[[study]] {i + 1}", lines, p.parent, i, first))
+        first += len(t.get("analysis", [])) if isinstance(t, dict) else 0
+    studies = tuple(studies)
+    names = [s.name for s in studies]
+    if len(set(names)) != len(names):
+        raise lines.fail("name", "study names must be distinct (they name output files)")
+    return Recipe(p, content.get("title", p.stem), content.get("seed"), formats, studies)

@@ -1,0 +1,108 @@
+"""Recipes: a TOML file that names the data, the roles, the covariance and a list of analyses.
+
+A recipe makes a referee-response analysis reproducible: ``sensiv run RECIPE.toml --out DIR``
+runs every analysis and writes every table, figure and a report.  Schema (all paths relative to
+the recipe file)::
+
+    title = "Irrigation and maize yield (INVENTED data)"   # optional
+    seed = 20261201                                         # optional: seeds every resampling
+    formats = ["png"]                                       # optional: figure formats
+
+    [[study]]                      # one or more; a recipe without [[study]] is one study
+    name = "irrigation"
+    description = "..."            # optional
+
+    [study.data]                   # omitted for a study of reported numbers only
+    path = "irrigation.csv"
+    outcome = "maize_yield"
+    treatments = ["irrigation_hours"]
+    instruments = ["height_m"]
+    controls = ["plot_ha", "soil"] # optional
+    cluster = "village"            # optional
+    weight = "w"                   # optional
+    constant = true                # optional
+
+    [study.inference]              # optional
+    se = "cluster"                 # classic | robust | cluster
+    level = 0.95
+    small = false
+
+    [[study.analysis]]
+    kind = "sweep"                 # fit | sweep | prior | corrbound | discrete | published |
+    direct = ["-0.005:0.005"]      #   calibrate; the other keys are that command's options
+    label = "direct effect of height up to 5 kg/ha per metre"   # optional
+
+Unknown keys, wrong types and missing files are reported with the key and its line.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+FORMATS = ("png", "pdf", "svg")
+SE_CHOICES = ("classic", "robust", "cluster")
+
+# Allowed keys and their types per table; ``float`` accepts TOML integers too.  The keys of
+# each analysis kind are its registry entry's ``options``.
+TOP_KEYS = {"title": str, "seed": int, "formats": list, "study": list, "name": str,
+            "description": str, "data": dict, "inference": dict, "analysis": list}
+STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
+              "analysis": list}
+DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
+             "controls": list, "cluster": str, "weight": str, "constant": bool}
+INFERENCE_KEYS = {"se": str, "level": float, "small": bool}
+COMMON_KEYS = {"kind": str, "label": str, "seed": int}
+
+
+@dataclass(frozen=True, slots=True)
+class Analysis:
+    """One analysis of a study: its kind, options and a label for the report."""
+
+    kind: str
+    options: dict[str, Any]
+    label: str
+    seed: int | None
+
+
+@dataclass(frozen=True, slots=True)
+class Study:
+    """Data, roles, inference options and analyses of one study."""
+
+    name: str
+    description: str
+    data: dict[str, Any] | None
+    inference: dict[str, Any]
+    analyses: tuple[Analysis, ...]
+
+
+@dataclass(frozen=True, slots=True)
+class Recipe:
+    """A parsed, validated recipe (paths resolved against the recipe's folder)."""
+
+    path: Path
+    title: str
+    seed: int | None
+    formats: tuple[str, ...]
+    studies: tuple[Study, ...]
+
+
+@dataclass(frozen=True, slots=True)
+class AnalysisRun:
+    """A finished analysis: the study, the analysis and its result object."""
+
+    study: str
+    index: int
+    analysis: Analysis
+    result: Any
+
+    @property
+    def stem(self) -> str:
+        return f"{self.study}-{self.index}-{self.analysis.kind}"
+
+
+@dataclass(frozen=True, slots=True)
+class RunResult:
+    recipe: Recipe
+    runs: tuple[AnalysisRun, ...] = field(default=())
