@@ -20,7 +20,8 @@ class RunContext:
 
     ``source`` is the validated data (``None`` for a study of printed numbers only);
     ``frame`` the raw table (for analyses that need columns outside the roles); ``spec`` the
-    :class:`~sensiv.data.Spec` of the roles and ``roles`` the study's ``[data]`` table; ``common`` the keyword options shared by every data analysis
+    :class:`~sensiv.data.Spec` of the roles and ``roles`` the study's ``[data]`` table;
+    ``common`` the keyword options shared by every data analysis
     (``se``, ``confidence_level``, ``small``); ``study`` the study's name (for messages).
     """
 

@@ -24,6 +24,6 @@ def draw(result, note):
 
 ENTRY = AnalysisKind(
     name="prior", result_type=prior.PriorResult, title="Prior interval",
-    table_title="Prior interval", text=text.prior_summary, rows=table_rows.prior_rows, figures=draw,
-    summary_rows=figures.prior_items, fit_of=lambda r: (r.fit, r.focus),
+    table_title="Prior interval", text=text.prior_summary, rows=table_rows.prior_rows,
+    figures=draw, summary_rows=figures.prior_items, fit_of=lambda r: (r.fit, r.focus),
     headline=lambda r: r.interval, options=OPTIONS, run=run)

@@ -16,7 +16,8 @@ def _pieces(pieces) -> tuple[Interval, ...]:
 
 
 def _ranges_text(names, boxes) -> str:
-    return ", ".join(f"{z} in [{end_text(b.low)}, {end_text(b.high)}]" for z, b in zip(names, boxes))
+    return ", ".join(f"{z} in [{end_text(b.low)}, {end_text(b.high)}]"
+                     for z, b in zip(names, boxes))
 
 
 def _covariance_text(fit) -> str:
@@ -122,7 +123,8 @@ def published_rows(res) -> list[TableRow]:
     pct = f"{100 * res.confidence_level:g}%"
     cov = f"from reported numbers ({res.covariance.method})"
     box = res.direct_set
-    words = (f"direct effect in [{end_text(box.low)}, {end_text(box.high)}] (outcome units; given as "
+    words = (f"direct effect in [{end_text(box.low)}, {end_text(box.high)}] (outcome units; "
+             "given as "
              f"{res.range_text}); {res.approximation}")
     # the curve at zero direct effect is the printed estimate's interval (unbounded when the
     # printed first stage is not significant)
@@ -133,7 +135,8 @@ def published_rows(res) -> list[TableRow]:
                      bounds.CAUTION),
             TableRow("direct-effect stress test from printed numbers", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
-                     res.breakdown.scale, _sweep_breakdown(res), res.reported.n, cov, bounds.CAUTION),
+                     res.breakdown.scale, _sweep_breakdown(res), res.reported.n, cov,
+                     bounds.CAUTION),
             TableRow("weak-IV-robust set from printed numbers", words, None, None, None,
                      _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
                      res.reported.n, f"{cov}; {res.ar_method}", bounds.CAUTION)]
@@ -184,7 +187,8 @@ def calibrate_rows(res) -> list[TableRow]:
                 "in the whole sample",
                 float(zfs.direct[k]), float(zfs.se[k]), None,
                 (zfs.interval[k],) if zfs.interval else None, zfs.confidence_level, None,
-                NONE_TEXT, zfs.n, zfs.se_type, calibrate.CAUTION, zfs.direct_rf[k], zfs.direct_sd[k],
+                NONE_TEXT, zfs.n, zfs.se_type, calibrate.CAUTION, zfs.direct_rf[k],
+                zfs.direct_sd[k],
                 f"--prior {zfs.prior_options[k]}; {zfs.sweep_options[k]}"))
     return rows
 

@@ -19,7 +19,8 @@ def _table(header: list[str], rows: list[list[str]]) -> list[str]:
 
 
 def fit_summary(fit) -> str:
-    """Text table of a :class:`sensiv.estimation.iv.IVFit`: 2SLS beside OLS, first stages, AR set, overid."""
+    """Text table of a :class:`sensiv.estimation.iv.IVFit`: 2SLS beside OLS, first stages, AR
+    set, overidentification."""
     pct = f"{100 * fit.confidence_level:g}%"
     se_label = fit.se_type + (", small-sample" if fit.small else "")
     lines = [
@@ -146,7 +147,8 @@ def prior_summary(res) -> str:
 
 
 def text_table(table) -> str:
-    """A results table (:class:`~sensiv.present.tables.Table`) as plain text for the terminal: analysis,
+    """A results table (:class:`~sensiv.present.tables.Table`) as plain text for the terminal:
+    analysis,
     estimate or bounds, interval and breakdown (assumptions are in the report)."""
     header, rows = table_cells(table)
     keep = [0, 2, 3, 4]
