@@ -5,9 +5,11 @@ from __future__ import annotations
 
 def _text_functions() -> dict:
     from sensiv.estimation.iv import IVFit
-    from sensiv.partial_id.correlation import CorrelationBounds, _summary_lines as corr_lines
-    from sensiv.partial_id.discrete_results import DiscreteBounds, summary as discrete_text
+    from sensiv.partial_id.correlation_results import CorrelationBounds
+    from sensiv.partial_id.discrete_results import DiscreteBounds
     from sensiv.present.summary import fit_summary, prior_summary, sweep_summary
+    from sensiv.present.text_correlation import correlation_summary
+    from sensiv.present.text_discrete import discrete_summary
     from sensiv.sensitivity.adaptive import AdaptiveResult, adaptive_text
     from sensiv.sensitivity.bounds import SweepResult
     from sensiv.sensitivity.calibrate import Calibration, calibration_text
@@ -16,8 +18,7 @@ def _text_functions() -> dict:
 
     return {IVFit: fit_summary, SweepResult: sweep_summary, PriorResult: prior_summary,
             AdaptiveResult: adaptive_text, Calibration: calibration_text,
-            DiscreteBounds: discrete_text,
-            CorrelationBounds: lambda r: "\n".join(corr_lines(r, markdown=False)),
+            DiscreteBounds: discrete_summary, CorrelationBounds: correlation_summary,
             PublishedResult: lambda r: "\n".join(pub_lines(r))}
 
 

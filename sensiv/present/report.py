@@ -318,7 +318,7 @@ def prior_rows(res) -> list[TableRow]:
 
 
 def corrbound_rows(res) -> list[TableRow]:
-    from sensiv.partial_id.correlation import CAUTION
+    from sensiv.partial_id.correlation_results import CAUTION
 
     words = (f"|corr(Z, u)| ≤ {format_number(res.max_ratio)}·|corr(X, u)|, same sign; "
              f"endogeneity {res.endogeneity}")
@@ -455,7 +455,7 @@ def _kind(result) -> str:
     from sensiv.sensitivity.bounds import SweepResult
     from sensiv.sensitivity.calibrate import Calibration
     from sensiv.estimation.iv import IVFit
-    from sensiv.partial_id.correlation import CorrelationBounds
+    from sensiv.partial_id.correlation_results import CorrelationBounds
     from sensiv.partial_id.discrete_results import DiscreteBounds
     from sensiv.sensitivity.prior import PriorResult
     from sensiv.sensitivity.published import PublishedResult
