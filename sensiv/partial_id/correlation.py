@@ -28,7 +28,8 @@ One instrument, closed form (re-derived here; Nevo & Rosen 2012 write the bounds
 ``V(λ) = σ_X Z − λ σ_Z X``): the sign-``s`` piece is
 ``{β(λ) : λ ∈ [0, r̄], s (ρ_xy ρ_zx − ρ_zy)/(ρ_zx − λ) ≥ 0}`` with
 ``β(λ) = cov(V(λ), y) / cov(V(λ), X) = (σ_y/σ_X)(ρ_zy − λ ρ_xy)/(ρ_zx − λ)``, monotone in
-``λ`` on either side of the pole ``λ = ρ_zx``; see :func:`one_instrument_piece`.
+``λ`` on either side of the pole ``λ = ρ_zx``; see
+:func:`sensiv.partial_id.correlation_moments.one_instrument_piece`.
 
 How it is computed: the set and the curve come from the cvxpy programmes of
 :mod:`sensiv.partial_id.correlation_programme` (built once per number of instruments, swept
@@ -44,6 +45,7 @@ a hundred times faster than a cvxpy solve; the tests check it against the progra
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Literal
 
@@ -223,7 +225,9 @@ def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepare
                      float(fitted.ols.params[-1]), pc)
 
 
-def _sets(pc: PartialCorrelations, signs, max_ratio: float, points: int):
+def _sets(pc: PartialCorrelations, signs: Sequence[int], max_ratio: float, points: int
+          ) -> tuple[tuple[CurvePoint, ...], tuple[tuple[str, Interval | None], ...],
+                     float | None]:
     """The curve of sets from ``r̄ = 0`` to ``max_ratio``, the pieces by sign at ``max_ratio``
     and the smallest consistent ratio (0 when the set at ``r̄ = 0`` is non-empty)."""
     programmes = compiled_programmes(len(pc.zx))
@@ -243,9 +247,9 @@ def _sets(pc: PartialCorrelations, signs, max_ratio: float, points: int):
     return tuple(curve), named, min_ratio
 
 
-def _inference(prepared: _Prepared, signs, max_ratio: float, hull: Interval | None, reps: int,
-               seed: int | None, confidence_level: float, progress: bool,
-               notes: list[str]) -> BootstrapSummary | None:
+def _inference(prepared: _Prepared, signs: Sequence[int], max_ratio: float,
+               hull: Interval | None, reps: int, seed: int | None, confidence_level: float,
+               progress: bool, notes: list[str]) -> BootstrapSummary | None:
     """The bootstrap at ``max_ratio`` when the set has a finite end; notes are appended."""
     if reps and hull is not None and (math.isfinite(hull.low) or math.isfinite(hull.high)):
         if seed is None:
