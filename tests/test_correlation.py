@@ -27,8 +27,11 @@ from sensiv.estimation import iv
 from sensiv.cli.app import app
 from sensiv.data import Spec
 from sensiv.core.errors import InputError
-from sensiv.partial_id import correlation as cb
-from sensiv.partial_id.correlation import PartialCorrelations, correlation_bounds
+from sensiv.partial_id.correlation import correlation_bounds
+from sensiv.partial_id.correlation_bootstrap import replicate_moments, resample_rows
+from sensiv.partial_id.correlation_moments import (PartialCorrelations, eliminate,
+                                                   one_instrument_piece, partial_correlations)
+from sensiv.partial_id.correlation_programme import compiled_programmes
 
 linearmodels = pytest.importorskip("linearmodels")
 from linearmodels.iv import IV2SLS  # noqa: E402
@@ -165,7 +168,7 @@ def test_true_beta_inside_negative_endogeneity_two_instruments():
 def test_one_instrument_programme_equals_closed_form():
     # Closed form: Nevo & Rosen (2012) V(λ) bounds, re-derived (module docstring); 1e-7.
     rng = np.random.default_rng(11)
-    programmes = cb._programmes(1)
+    programmes = compiled_programmes(1)
     checked = {"empty": 0, "bounded": 0, "unbounded": 0}
     for j in range(90):
         pc = random_corr(rng, 1)
@@ -173,8 +176,8 @@ def test_one_instrument_programme_equals_closed_form():
         for ratio in ((0.0, 1.0)[j % 2], float(rng.uniform())):
             sign = int(rng.choice([1, -1]))
             lp = programmes.piece(sign, ratio)
-            closed = as_pair(cb.one_instrument_piece(pc.xy, float(pc.zy[0]), float(pc.zx[0]),
-                                                     ratio, sign))
+            closed = as_pair(one_instrument_piece(pc.xy, float(pc.zy[0]), float(pc.zx[0]),
+                                                  ratio, sign))
             assert same_piece(lp, closed, CLOSED_FORM_TOL), (pc, ratio, sign, lp, closed)
             kind = ("empty" if closed is None else
                     "bounded" if np.isfinite(closed).all() else "unbounded")
@@ -186,13 +189,13 @@ def test_one_instrument_programme_equals_closed_form():
 def test_elimination_equals_programme(k):
     # Exact one-variable elimination (used in the bootstrap) against the cvxpy programmes.
     rng = np.random.default_rng(20 + k)
-    programmes = cb._programmes(k)
+    programmes = compiled_programmes(k)
     for _ in range(25):
         pc = random_corr(rng, k)
         programmes.load(pc)
         for sign in (1, -1):
             ratio = float(rng.uniform())
-            assert same_piece(programmes.piece(sign, ratio), cb.eliminate(pc, sign, ratio),
+            assert same_piece(programmes.piece(sign, ratio), eliminate(pc, sign, ratio),
                               CLOSED_FORM_TOL)
 
 
@@ -401,7 +404,7 @@ def test_unbounded_end_is_inf_and_json_null():
     frame = frame_from_corr(corr)
     res = run(frame, max_ratio=0.8, endogeneity="positive")
     assert res.identified_set.low == -math.inf
-    closed = cb.one_instrument_piece(0.6, 0.2, 0.5, 0.8, 1)
+    closed = one_instrument_piece(0.6, 0.2, 0.5, 0.8, 1)
     scale = 2.0 / 0.5  # sd_y / sd_x of frame_from_corr
     assert res.identified_set.high == pytest.approx(closed.high * scale, rel=CLOSED_FORM_TOL)
     doc = res.to_dict()
@@ -474,14 +477,14 @@ def test_bootstrap_replicates_elimination_matches_programme():
     from sensiv.data import from_frame
 
     source = from_frame(frame, spec)
-    rows = cb._rows(list(source.chunks()), None)
-    programmes = cb._programmes(2)
-    replicates = cb._replicate_moments(*rows, source.layout.columns, 15, 99)
+    rows = resample_rows(list(source.chunks()), None)
+    programmes = compiled_programmes(2)
+    replicates = replicate_moments(*rows, source.layout.columns, 15, 99)
     for moments in replicates:
-        pc = cb.partial_correlations(moments, source.layout)
+        pc = partial_correlations(moments, source.layout)
         programmes.load(pc)
         for sign in (1, -1):
-            assert same_piece(programmes.piece(sign, 0.5), cb.eliminate(pc, sign, 0.5),
+            assert same_piece(programmes.piece(sign, 0.5), eliminate(pc, sign, 0.5),
                               CLOSED_FORM_TOL)
 
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from sensiv.analyses.kind import AnalysisKind
-from sensiv.partial_id import correlation
+from sensiv.partial_id import correlation, correlation_results
 from sensiv.present import figures, table_rows
 from sensiv.present import text_correlation
 
@@ -11,7 +11,7 @@ OPTIONS = {"max_ratio": float, "endogeneity": str, "threshold": float, "reps": i
            "points": int}
 
 
-def run(context, options) -> correlation.CorrelationBounds:
+def run(context, options) -> correlation_results.CorrelationBounds:
     o = options
     return correlation.correlation_bounds(
         context.source, max_ratio=o.get("max_ratio", 1.0),
@@ -25,7 +25,7 @@ def draw(result, note):
 
 
 ENTRY = AnalysisKind(
-    name="corrbound", result_type=correlation.CorrelationBounds,
+    name="corrbound", result_type=correlation_results.CorrelationBounds,
     title="Correlation-restriction bounds", table_title="Correlation-restriction bounds",
-    text=text_correlation.correlation_text, rows=table_rows.corrbound_rows, figures=draw,
+    text=text_correlation.correlation_summary, rows=table_rows.corrbound_rows, figures=draw,
     summary_rows=figures.correlation_items, options=OPTIONS, run=run)

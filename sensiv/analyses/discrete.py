@@ -36,5 +36,5 @@ def draw(result, note):
 ENTRY = AnalysisKind(
     name="discrete", result_type=discrete_results.DiscreteBounds,
     title="Discrete bounds with an exclusion budget", table_title="Discrete bounds",
-    text=text_discrete.discrete_text, rows=table_rows.discrete_rows, figures=draw,
+    text=text_discrete.discrete_summary, rows=table_rows.discrete_rows, figures=draw,
     summary_rows=figures.discrete_items, options=OPTIONS, run=run)

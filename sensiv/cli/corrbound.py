@@ -50,8 +50,9 @@ def corrbound(
     treatment's direction and at most --max-ratio times as strongly (Nevo & Rosen 2012)."""
     from sensiv.data import from_file
     from sensiv.core.errors import InputError
-    from sensiv.partial_id.correlation import (bounds_markdown, check_one_treatment, check_options,
+    from sensiv.partial_id.correlation import (check_one_treatment, check_options,
                                               correlation_bounds)
+    from sensiv.present.text_correlation import bounds_markdown
     from sensiv.present.writer import to_json
 
     chosen = figure_formats(formats)

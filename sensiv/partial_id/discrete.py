@@ -36,13 +36,14 @@ import math
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.results import Interval
+from sensiv.estimation.inference import Progress, imbens_manski
 from sensiv.partial_id.discrete_data import CountsTable, plain_number
 from sensiv.partial_id.discrete_programme import Programmes, curve
 from sensiv.partial_id.discrete_results import (CAUTION, Bootstrap, ContrastBounds,
                                                 CurvePoint, DiscreteBounds,
                                                 InstrumentalInequality)
 from sensiv.partial_id.discrete_types import Enumeration
-from sensiv.core.results import Interval
 
 __all__ = ["CAUTION", "Bootstrap", "ContrastBounds", "CurvePoint", "DiscreteBounds",
            "InstrumentalInequality", "discrete_bounds", "instrumental_inequality"]
@@ -127,8 +128,6 @@ def _curve_end(budget: float, min_budget: float | None, breakdowns) -> float:
 def _bootstrap(programmes: Programmes, counts: np.ndarray, budget: float, defiers: float,
                reps: int, seed: int, progress: bool):
     """Replicate bounds ``(reps, contrasts, 2)`` (NaN where unavailable) and the tallies."""
-    from sensiv.estimation.inference import Progress
-
     K, J, L = counts.shape
     rng = np.random.default_rng(seed)
     n = int(counts.sum())
@@ -210,7 +209,7 @@ def discrete_bounds(table: CountsTable, budget: float = DEFAULT_BUDGET, *,
                    max_budget, confidence_level)
     budget, defier_budget = float(budget), float(defier_budget)
     threshold, confidence_level = float(threshold), float(confidence_level)
-    K, J, L = table.shape
+    J = table.shape[1]
     # Without monotonicity the defier cap is set to 1, where it binds nothing.
     defiers = defier_budget if monotone else 1.0
     programmes = Programmes(table.shape, table.outcome_levels, enumeration=enumeration)
@@ -224,43 +223,54 @@ def discrete_bounds(table: CountsTable, budget: float = DEFAULT_BUDGET, *,
     breakdowns = {c: programmes.breakdown(c, threshold, defiers) for c in contrasts}
     end = max_budget if max_budget is not None else _curve_end(
         budget, min_budget, breakdowns.values())
-    grid = np.linspace(0.0, end, points)
-    curves = {c: tuple(CurvePoint(float(e), _interval(pair)) for e, pair in
-                       zip(grid, curve(programmes, c, grid, defiers, min_budget)))
-              for c in contrasts}
-
+    curves = _curves(programmes, contrasts, np.linspace(0.0, end, points), defiers, min_budget)
+    fits = estimates[J - 1] is not None
     notes = _fit_notes(table, budget, monotone, defier_budget, min_budget, min_defiers,
-                       inequality)
-    if estimates[J - 1] is None and min_budget is not None and budget >= min_budget:
-        notes.append(f"the solver found no fit at budget {budget:g}, on the edge of the "
-                     f"smallest fitting budget {min_budget:.6g}; raise the budget slightly")
-    boot, spreads = None, {c: None for c in contrasts}
-    if reps and estimates[J - 1] is not None:
-        seed = int(np.random.SeedSequence().entropy % 2**32) if seed is None else int(seed)
-        boot, spreads = _inference(programmes, table, budget, defiers, reps, seed, progress,
-                                   notes)
-    elif reps:
-        notes.append("no confidence interval: the model does not fit the data at this budget")
+                       inequality, fits)
+    boot, spreads = _inference(programmes, table, budget, defiers, reps, seed, progress, notes,
+                               fits)
+    results = _contrasts(table, estimates, spreads, curves, breakdowns, confidence_level)
+    return DiscreteBounds(table, budget, bool(monotone), defier_budget, threshold,
+                          confidence_level, results, min_budget, min_defiers,
+                          inequality, boot, tuple(notes))
 
+
+def _curves(programmes: Programmes, contrasts, grid: np.ndarray, defiers: float,
+            min_budget: float | None) -> dict[int, tuple[CurvePoint, ...]]:
+    """The bounds of each contrast on the grid of budgets."""
+    return {c: tuple(CurvePoint(float(e), _interval(pair)) for e, pair in
+                     zip(grid, curve(programmes, c, grid, defiers, min_budget)))
+            for c in contrasts}
+
+
+def _contrasts(table: CountsTable, estimates, spreads, curves, breakdowns,
+               confidence_level: float) -> tuple[ContrastBounds, ...]:
+    """One :class:`ContrastBounds` per treatment level above the base, with its interval."""
     results = []
-    for c in contrasts:
-        bounds, se, ci = _interval(estimates[c]), spreads[c], None
+    for c, pair in estimates.items():
+        bounds, se, ci = _interval(pair), spreads[c], None
         if bounds is not None and se is not None:
-            from sensiv.estimation.inference import imbens_manski
-
             ci = imbens_manski(bounds.low, bounds.high, *se, confidence_level)
         results.append(ContrastBounds(float(table.treatment_levels[c]),
                                       float(table.treatment_levels[0]), bounds, se, ci,
                                       curves[c], breakdowns[c]))
-    return DiscreteBounds(table, budget, bool(monotone), defier_budget, threshold,
-                          confidence_level, tuple(results), min_budget, min_defiers,
-                          inequality, boot, tuple(notes))
+    return tuple(results)
 
 
-def _inference(programmes, table, budget, defiers, reps, seed, progress, notes):
+def _inference(programmes, table, budget, defiers, reps, seed, progress, notes, fits: bool):
     """Bootstrap tallies and the standard errors ``(se_lower, se_upper)`` per contrast
-    (``None`` with fewer than 2 usable replicates); notes are appended to ``notes``."""
+    (``None`` with fewer than 2 usable replicates); notes are appended to ``notes``.
+
+    No bootstrap (``(None, {contrast: None})``) when ``reps`` is 0 or the model does not fit
+    the data at ``budget`` (``fits`` false).
+    """
     J = table.shape[1]
+    if not (reps and fits):
+        if reps:
+            notes.append("no confidence interval: the model does not fit the data at this "
+                         "budget")
+        return None, {c: None for c in range(1, J)}
+    seed = int(np.random.SeedSequence().entropy % 2**32) if seed is None else int(seed)
     replicates, infeasible, skipped = _bootstrap(programmes, table.counts, budget, defiers,
                                                  reps, seed, progress)
     usable = np.isfinite(replicates[:, 0, 0])
@@ -290,7 +300,9 @@ def _interval(pair: tuple[float, float] | None) -> Interval | None:
 
 
 def _fit_notes(table, budget, monotone, defier_budget, min_budget, min_defiers,
-               inequality) -> list[str]:
+               inequality, fits: bool) -> list[str]:
+    """Whether the model fits the data: the instrumental inequality, the smallest fitting
+    budget and a solve that missed a fit on the edge of it (``fits`` false)."""
     notes = []
     if not inequality.holds:
         notes.append(
@@ -311,6 +323,9 @@ def _fit_notes(table, budget, monotone, defier_budget, min_budget, min_defiers,
     elif min_budget > 0:
         notes.append(f"the exclusion restriction alone does not fit the data: the smallest "
                      f"budget that fits is {min_budget:.4g}")
+    if not fits and min_budget is not None and budget >= min_budget:
+        notes.append(f"the solver found no fit at budget {budget:g}, on the edge of the "
+                     f"smallest fitting budget {min_budget:.6g}; raise the budget slightly")
     return notes
 
 

@@ -58,7 +58,8 @@ def solve(problem, *, solver: str = LP_SOLVER, what: str = "programme") -> Solut
 
     ``optimal`` → the optimum; ``optimal_inaccurate`` → the optimum with an
     :class:`InaccurateSolveWarning`; ``infeasible`` / ``unbounded`` (and their inaccurate forms)
-    → a :class:`Solution` saying so (a finding, not an error); anything else → :class:`SolverError`.
+    → a :class:`Solution` saying so (a finding, not an error); anything else →
+    :class:`SolverError`.
     Variables are never read after a failed solve.
     """
     import cvxpy as cp

@@ -932,7 +932,7 @@ def summary_items(*results) -> list[SummaryItem]:
     from sensiv.sensitivity.bounds import SweepResult
     from sensiv.sensitivity.calibrate import Calibration
     from sensiv.estimation.iv import IVFit
-    from sensiv.partial_id.correlation import CorrelationBounds
+    from sensiv.partial_id.correlation_results import CorrelationBounds
     from sensiv.partial_id.discrete_results import DiscreteBounds
     from sensiv.sensitivity.prior import PriorResult
     from sensiv.sensitivity.published import PublishedResult

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from sensiv.core.results import Interval, format_number
 from sensiv.estimation import iv
-from sensiv.partial_id import correlation, discrete_results
+from sensiv.partial_id import correlation_results, discrete_results
 from sensiv.present.tables import NONE_TEXT, TableRow, end_text
 from sensiv.sensitivity import bounds, calibrate
 
@@ -92,7 +92,7 @@ def corrbound_rows(res) -> list[TableRow]:
         cov = "no bootstrap"
     return [TableRow(f"correlation bounds: {res.treatment}", words, None, None,
                      _pieces(res.pieces), (res.ci,) if res.ci is not None else None,
-                     res.confidence_level, k, text, res.n, cov, correlation.CAUTION)]
+                     res.confidence_level, k, text, res.n, cov, correlation_results.CAUTION)]
 
 
 def discrete_rows(res) -> list[TableRow]:

@@ -27,6 +27,12 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import _design  # noqa: E402
 
+from sensiv.partial_id.correlation import correlation_bounds  # noqa: E402
+from sensiv.partial_id.correlation_bootstrap import replicate_moments, resample_rows  # noqa: E402
+from sensiv.partial_id.correlation_moments import eliminate, partial_correlations  # noqa: E402
+from sensiv.partial_id.correlation_programme import (Programmes,  # noqa: E402
+                                                     compiled_programmes)
+
 DEFAULT_N = 100_000
 DEFAULT_POINTS = 51
 DEFAULT_REPS = 999
@@ -67,31 +73,30 @@ def main(argv: list[str] | None = None) -> int:
 
     from sensiv.data import from_frame
     from sensiv.estimation.moments import accumulate
-    from sensiv.partial_id import correlation as cb
 
     spec = _design.spec()
     frame = _design.frame(args.n)
     source = from_frame(frame, spec)
     layout = source.layout
     chunks = list(source.chunks())
-    pc = cb.partial_correlations(accumulate(chunks, layout.columns), layout)
+    pc = partial_correlations(accumulate(chunks, layout.columns), layout)
     ratios = np.linspace(0.0, 1.0, args.points)
 
-    built = cb._programmes(1)
+    built = compiled_programmes(1)
     sweep(lambda r: built, pc, ratios[:2])  # warm-up: compile once
     t_sweep, swept = best_time(lambda: sweep(lambda r: built, pc, ratios), args.repeats)
-    t_rebuild, rebuilt = best_time(lambda: sweep(lambda r: cb._Programmes(1), pc, ratios), 1)
+    t_rebuild, rebuilt = best_time(lambda: sweep(lambda r: Programmes(1), pc, ratios), 1)
     same = all(
         (a is None and b is None) or (a is not None and b is not None
                                       and np.allclose(a, b, rtol=AGREEMENT, atol=0))
         for pa, pb in zip(swept, rebuilt) for a, b in zip(pa, pb))
 
-    rows = cb._rows(chunks, None)
-    replicates = list(cb._replicate_moments(*rows, layout.columns, REPLICATE_SAMPLE, 7))
-    pcs = [cb.partial_correlations(m, layout) for m in replicates]
+    rows = resample_rows(chunks, None)
+    replicates = list(replicate_moments(*rows, layout.columns, REPLICATE_SAMPLE, 7))
+    pcs = [partial_correlations(m, layout) for m in replicates]
 
     def by_elimination():
-        return [[cb.eliminate(p, s, 0.5) for s in (1, -1)] for p in pcs]
+        return [[eliminate(p, s, 0.5) for s in (1, -1)] for p in pcs]
 
     def by_programme():
         out = []
@@ -112,8 +117,8 @@ def main(argv: list[str] | None = None) -> int:
                     if np.isfinite(u) or np.isfinite(v):
                         worst = max(worst, abs(u - v) / max(1.0, abs(u)))
     start = time.perf_counter()
-    cb.correlation_bounds(source, points=args.points, reps=args.reps, seed=1, max_ratio=0.3,
-                          progress=False)
+    correlation_bounds(source, points=args.points, reps=args.reps, seed=1, max_ratio=0.3,
+                       progress=False)
     t_total = time.perf_counter() - start
 
     solves = 4 * args.points
