@@ -44,7 +44,8 @@ import numpy as np
 
 from sensiv.estimation import linalg
 from sensiv.core.errors import InaccurateSolveWarning, InputError, SolverError
-from sensiv.estimation.iv import build_design, prepare
+from sensiv.estimation.design import build_design
+from sensiv.estimation.iv import prepare
 from sensiv.estimation.moments import Moments, accumulate, chunk_moments
 from sensiv.core.results import Interval, describe, format_number, json_number
 
@@ -825,7 +826,7 @@ def correlation_bounds(data, spec=None, *, max_ratio: float = DEFAULT_MAX_RATIO,
     if hasattr(data, "chunks"):
         source = data
     else:
-        from sensiv.data import source as data_layer
+        from sensiv.data import readers as data_layer
 
         source = data_layer.load(data, spec, chunk_rows=chunk_rows)
     spec = source.spec
