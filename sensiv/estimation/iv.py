@@ -4,12 +4,12 @@ estimation layer.
 Model: ``y = X β + W κ + u`` with endogenous ``X`` (``k_x`` columns), excluded instruments ``Z``
 (``k_z ≥ k_x``) and exogenous controls ``W`` (with a constant unless switched off).
 
-Every quantity is computed from :class:`sensiv.estimation.moments.Moments` (pass 1) and, for robust and
-cluster covariances, from one pass of score sums (pass 2); nothing is refitted on rows.  The
-pieces live one concern to a module: design maps and their checks (``design``), the solve
-(``least_squares``), covariances (``covariance``), the first stage (``first_stage``) and the
-Anderson–Rubin set and overidentification test (``diagnostics``); this module assembles them
-into an :class:`IVFit`.
+Every quantity is computed from :class:`sensiv.estimation.moments.Moments` (pass 1) and, for
+robust and cluster covariances, from one pass of score sums (pass 2); nothing is refitted on
+rows.  The pieces live one concern to a module: design maps and their checks (``design``),
+the solve (``least_squares``), covariances (``covariance``), the first stage
+(``first_stage``), and the Anderson–Rubin set and overidentification test (``diagnostics``);
+this module assembles them into an :class:`IVFit`.
 
 Conventions (the same as the usual textbook and reference-library ones):
 
