@@ -18,9 +18,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import sensiv.data.source as data_module
-from sensiv.data.source import (
-    DEFAULT_CHUNK_ROWS,
+import sensiv.data.readers as data_module
+from sensiv.data import (
     Chunk,
     Layout,
     Spec,
@@ -30,6 +29,7 @@ from sensiv.data.source import (
     load,
     read_table,
 )
+from sensiv.data.readers import DEFAULT_CHUNK_ROWS
 from sensiv.core.errors import InputError
 
 N_ROWS = 61
@@ -533,7 +533,7 @@ def _run(code: str, *args: str) -> str:
 def test_import_is_light():
     out = _run("""
         import sys
-        import sensiv.data.source
+        import sensiv.data
         print(sorted(m for m in ("pandas", "pyarrow", "scipy") if m in sys.modules))
     """)
     assert out.strip() == "[]"
@@ -545,8 +545,9 @@ def test_parquet_streaming_memory_does_not_grow_with_rows(tmp_path):
     out = _run("""
         import sys
         import numpy as np, pandas as pd, pyarrow as pa
-        import sensiv.data.source as data
-        data.TYPE_SAMPLE_ROWS = 1000
+        import sensiv.data as data
+        import sensiv.data.readers as readers
+        readers.TYPE_SAMPLE_ROWS = 1000
         n, groups = 200_000, 40
         rng = np.random.default_rng(0)
         frame = pd.DataFrame({c: rng.normal(size=n) for c in "yxzw"})

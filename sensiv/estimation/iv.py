@@ -1,13 +1,15 @@
-r"""Two-stage least squares and its diagnostics, computed from moments.
+r"""Two-stage least squares and its diagnostics, computed from moments: the API of the
+estimation layer.
 
 Model: ``y = X β + W κ + u`` with endogenous ``X`` (``k_x`` columns), excluded instruments ``Z``
 (``k_z ≥ k_x``) and exogenous controls ``W`` (with a constant unless switched off).
 
-Every quantity is computed from :class:`sensiv.estimation.moments.Moments` (pass 1) and, for robust and
-cluster covariances, from one pass of score sums (pass 2); nothing is refitted on rows.  Linear
-maps act on the augmented centred row ``d̃ = [1, d − μ]``.  With a constant, slopes are solved
-in centred coordinates and the intercept recovered by an exact reparameterisation
-``θ = T θ*``, so a column whose mean dwarfs its spread does not spoil the solve.
+Every quantity is computed from :class:`sensiv.estimation.moments.Moments` (pass 1) and, for
+robust and cluster covariances, from one pass of score sums (pass 2); nothing is refitted on
+rows.  The pieces live one concern to a module: design maps and their checks (``design``),
+the solve (``least_squares``), covariances (``covariance``), the first stage
+(``first_stage``), and the Anderson–Rubin set and overidentification test (``diagnostics``);
+this module assembles them into an :class:`IVFit`.
 
 Conventions (the same as the usual textbook and reference-library ones):
 
@@ -19,212 +21,32 @@ Conventions (the same as the usual textbook and reference-library ones):
 
 from __future__ import annotations
 
-import math
 import warnings
-from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
 
+from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.core.results import Interval, describe, format_number, intervals_to_lists, json_number
+from sensiv.data.readers import load
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
-from sensiv.core.errors import InputError, WeakInstrumentWarning
-from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums, accumulate, check_rows, score_sums
-from sensiv.core.results import Interval, describe, format_number, intervals_to_lists, json_number
+from sensiv.estimation.covariance import (check_clusters, coefficient_covariance,
+                                          normalise_weights, score_blocks)
+from sensiv.estimation.design import CONSTANT, Design, build_design, check_design
+from sensiv.estimation.diagnostics import OverId, anderson_rubin_set, overid_test
+from sensiv.estimation.first_stage import FirstStage, first_stage_covariance, first_stages
+from sensiv.estimation.least_squares import LinearFit, solve_linear
+from sensiv.estimation.moments import Moments, ScoreSums, accumulate, check_rows, score_sums
 
 SEType = Literal["classic", "robust", "cluster"]
 SE_TYPES: tuple[str, ...] = ("classic", "robust", "cluster")
-CONSTANT = "const"
-# A column whose standard deviation is below this fraction of its root mean square is constant
-# up to rounding (a mean of 1e6 with unit spread is still well within double precision).
-CONSTANT_RELATIVE_SD = 1e-12
 # Rule-of-thumb first-stage F below which Wald inference is unreliable (Staiger & Stock 1997).
 WEAK_F = 10.0
 CAUTION = ("Caution: these estimates assume the exclusion restriction holds exactly. "
            "Sensitivity bounds hold only under the assumed ranges of direct effects, and no "
            "analysis here proves an instrument valid.")
-
-
-# ----------------------------------------------------------------------------- design maps
-@dataclass(frozen=True, slots=True)
-class Design:
-    """Linear maps from the augmented centred row ``[1, d − μ]`` to each column group.
-
-    ``controls`` holds the exogenous regressors in solving order: the constant first (when
-    present), then the named controls.  ``transform`` maps parameters solved in centred
-    coordinates to the raw parameters, ordered ``[controls..., treatments...]``.
-    """
-
-    outcome: str
-    treatments: tuple[str, ...]
-    instruments: tuple[str, ...]
-    control_names: tuple[str, ...]
-    y: np.ndarray
-    x: np.ndarray
-    z: np.ndarray
-    w: np.ndarray
-    transform: np.ndarray
-
-    @property
-    def regressors(self) -> np.ndarray:
-        return np.hstack([self.w, self.x])
-
-    @property
-    def instrument_set(self) -> np.ndarray:
-        return np.hstack([self.w, self.z])
-
-    @property
-    def regressor_names(self) -> tuple[str, ...]:
-        return (*self.control_names, *self.treatments)
-
-
-def build_design(moments: Moments, outcome: str, treatments: Sequence[str],
-                 instruments: Sequence[str], controls: Sequence[str], constant: bool) -> Design:
-    """Selection maps for the roles, with the intercept reparameterisation when ``constant``."""
-    p = len(moments.columns)
-    index = {name: j for j, name in enumerate(moments.columns)}
-
-    def raw(name: str) -> np.ndarray:
-        col = np.zeros(p + 1)
-        col[0] = moments.mean[index[name]]
-        col[1 + index[name]] = 1.0
-        return col
-
-    def centred(name: str) -> np.ndarray:
-        col = np.zeros(p + 1)
-        col[1 + index[name]] = 1.0
-        return col
-
-    pick = centred if constant else raw
-    w_cols = [pick(c) for c in controls]
-    names = list(controls)
-    if constant:
-        one = np.zeros(p + 1)
-        one[0] = 1.0
-        w_cols.insert(0, one)
-        names.insert(0, CONSTANT)
-    k_w = len(w_cols)
-    w = np.column_stack(w_cols) if w_cols else np.zeros((p + 1, 0))
-    x = np.column_stack([pick(t) for t in treatments])
-    z = np.column_stack([pick(i) for i in instruments])
-    k = k_w + len(treatments)
-    transform = np.eye(k)
-    if constant:
-        means = np.array([moments.mean[index[n]] for n in (*controls, *treatments)])
-        transform[0, 1:] = -means
-    return Design(outcome, tuple(treatments), tuple(instruments), tuple(names), raw(outcome),
-                  x, z, w, transform)
-
-
-def _constant_columns(moments: Moments) -> set[str]:
-    """Columns whose spread is negligible next to their level (or exactly zero)."""
-    var = np.diag(moments.comoment) / moments.weight_sum
-    level = var + moments.mean**2
-    return {name for name, v, m in zip(moments.columns, var, level)
-            if not v > CONSTANT_RELATIVE_SD**2 * m}
-
-
-def check_design(design: Design, weighted_gram: np.ndarray, moments: Moments) -> None:
-    """Raise :class:`InputError` for constant or collinear outcome, regressors or instruments."""
-    constant = _constant_columns(moments)
-    roles = [(design.outcome, "outcome"), *((t, "treatment") for t in design.treatments),
-             *((i, "instrument") for i in design.instruments),
-             *((c, "control") for c in design.control_names if c != CONSTANT)]
-    for name, role in roles:
-        if name in constant:
-            raise InputError(f"{role} '{name}' is constant in the {moments.n} rows used; "
-                             f"choose a {role} that varies")
-    n_w = len(design.control_names)
-    for maps, names, role in (
-        (design.instrument_set, (*design.control_names, *design.instruments), "instrument"),
-        (design.regressors, (*design.control_names, *design.treatments), "treatment"),
-    ):
-        gram = maps.T @ weighted_gram @ maps
-        found = linalg.first_dependent_column(gram)
-        if found is None:
-            continue
-        j, share = found
-        name = names[j]
-        if j < n_w:
-            raise InputError(f"control '{name}' is collinear with the constant and the controls "
-                             "listed before it; drop it (or pass --no-constant if it completes "
-                             "a full set of indicators)")
-        raise InputError(
-            f"{role} '{name}' is collinear with the controls (and the {role}s before it): only "
-            f"a share {share:.1e} of its variation is left after partialling them out; drop it "
-            f"or choose another {role}")
-
-
-# ----------------------------------------------------------------------------- solving
-@dataclass(frozen=True, slots=True)
-class LinearFit:
-    """A 2SLS (or OLS, when instruments = regressors) solve in augmented coordinates.
-
-    ``params`` are in solving coordinates; ``bread = (X̂'X̂)⁻¹``; ``fitted`` maps rows to
-    ``X̂``; ``residual`` maps rows to ``û``.
-    """
-
-    params: np.ndarray
-    bread: np.ndarray
-    fitted: np.ndarray
-    residual: np.ndarray
-    instrument_chol: linalg.ScaledCholesky
-
-
-def solve_linear(gram: np.ndarray, y: np.ndarray, regressors: np.ndarray,
-                 instruments: np.ndarray) -> LinearFit:
-    r"""2SLS from the weighted Gram matrix ``M`` of the augmented rows.
-
-    .. math::
-
-        \hat θ = (R'P_Q R)^{-1} R'P_Q y, \qquad P_Q = Q(Q'Q)^{-1}Q'
-
-    computed as a least-squares problem ``L⁻¹Q'R θ ≈ L⁻¹Q'y`` (``Q'Q = LL'``) by QR, with
-    columns scaled to unit length; no explicit inverse of a cross-product matrix.
-    """
-    from scipy.linalg import solve_triangular
-
-    qq = instruments.T @ gram @ instruments
-    chol = linalg.scaled_cholesky(qq)
-    c = chol.whiten(instruments.T @ gram @ regressors)
-    h = chol.whiten(instruments.T @ gram @ y)
-    r_scale = np.sqrt(np.sum(c * c, axis=0))
-    if np.any(r_scale == 0):
-        raise InputError("the instruments are orthogonal to a regressor in these data, so it "
-                         "is not identified; check the instruments")
-    q_fac, r_fac = np.linalg.qr(c / r_scale)
-    if np.min(np.abs(np.diag(r_fac))) < math.sqrt(linalg.COLLINEAR_SHARE):
-        raise InputError("the first stage is rank deficient: the instruments do not move the "
-                         "treatments independently of each other; add or change instruments")
-    params = solve_triangular(r_fac, q_fac.T @ h) / r_scale
-    r_inv = solve_triangular(r_fac, np.eye(r_fac.shape[0]))
-    bread = (r_inv @ r_inv.T) / np.outer(r_scale, r_scale)
-    projection = chol.solve(instruments.T @ gram @ regressors)
-    fitted = instruments @ projection
-    residual = y - regressors @ params
-    return LinearFit(params, 0.5 * (bread + bread.T), fitted, residual, chol)
-
-
-def small_factor(se: str, small: bool, n: int, k: int, n_clusters: int | None) -> float:
-    """Finite-sample factor of a covariance: ``n/(n−k)``, or ``G/(G−1)·(n−1)/(n−k)`` for
-    clusters; 1 without ``small``."""
-    if not small:
-        return 1.0
-    if se == "cluster":
-        return n_clusters / (n_clusters - 1) * (n - 1) / (n - k)
-    return n / (n - k)
-
-
-def sandwich(se: str, bread: np.ndarray, sigma2: float | None, meat: np.ndarray | None,
-             factor: float) -> np.ndarray:
-    """``σ̂² B`` (classic) or ``B Ω B`` (robust, cluster), times the small-sample factor."""
-    if se == "classic":
-        cov = sigma2 * bread
-    else:
-        cov = bread @ meat @ bread
-    cov = factor * cov
-    return 0.5 * (cov + cov.T)
 
 
 # ----------------------------------------------------------------------------- results
@@ -245,42 +67,6 @@ class Coefficients:
 
     def std_error(self, name: str) -> float:
         return float(self.se[self.names.index(name)])
-
-
-@dataclass(frozen=True, slots=True)
-class FirstStage:
-    """First-stage regression of one treatment on the instruments (controls partialled out)."""
-
-    treatment: str
-    coef: dict[str, float]
-    se: dict[str, float]
-    f: float
-    f_df: tuple[int, int | None]
-    f_p_value: float
-    partial_r2: float
-    effective_f: float | None
-
-    def to_dict(self) -> dict:
-        return {"coef": {k: json_number(v) for k, v in self.coef.items()},
-                "se": {k: json_number(v) for k, v in self.se.items()},
-                "f": json_number(self.f), "f_df": list(self.f_df),
-                "f_p_value": json_number(self.f_p_value),
-                "partial_r2": json_number(self.partial_r2),
-                "effective_f": json_number(self.effective_f)}
-
-
-@dataclass(frozen=True, slots=True)
-class OverId:
-    """Test of overidentifying restrictions."""
-
-    name: str
-    stat: float
-    df: int
-    p_value: float
-
-    def to_dict(self) -> dict:
-        return {"name": self.name, "stat": json_number(self.stat), "df": self.df,
-                "p_value": json_number(self.p_value)}
 
 
 @dataclass(frozen=True, slots=True)
@@ -432,32 +218,6 @@ def prepare(moments: Moments, layout) -> Pieces:
     return Pieces(moments, design, gram, tsls, ols, z_partialled, first_residuals)
 
 
-def _overid_maps(pieces: Pieces) -> np.ndarray:
-    """Row maps of the overidentifying instruments purged of ``[X̂, W]`` (Wooldridge's score test)."""
-    d = pieces.design
-    n_over = d.z.shape[1] - d.x.shape[1]
-    q = d.z[:, :n_over]
-    fitted = pieces.tsls.fitted
-    coef = linalg.scaled_cholesky(fitted.T @ pieces.gram @ fitted).solve(
-        fitted.T @ pieces.gram @ q)
-    return q - fitted @ coef
-
-
-def score_blocks(pieces: Pieces, se: str) -> list[ScoreBlock]:
-    """The pass-2 requests a fit needs (none for classic covariances)."""
-    if se == "classic":
-        return []
-    d = pieces.design
-    blocks = [
-        ScoreBlock("tsls", pieces.tsls.fitted, pieces.tsls.residual[:, None]),
-        ScoreBlock("ols", d.regressors, pieces.ols.residual[:, None]),
-        ScoreBlock("first", pieces.z_partialled, pieces.first_residuals),
-    ]
-    if d.z.shape[1] > d.x.shape[1]:
-        blocks.append(ScoreBlock("overid", _overid_maps(pieces), pieces.tsls.residual[:, None]))
-    return blocks
-
-
 def _output_order(design: Design) -> np.ndarray:
     """Permutation from solving order ``[const, controls, treatments]`` to output order."""
     k_w = len(design.control_names)
@@ -476,117 +236,21 @@ def _coefficients(design: Design, fit: LinearFit, cov_star: np.ndarray) -> Coeff
     return Coefficients(names, est, 0.5 * (cov + cov.T))
 
 
-def _covariance(pieces: Pieces, fit: LinearFit, meat: np.ndarray | None, se: str, small: bool,
-                n_clusters: int | None) -> np.ndarray:
-    n = pieces.n
-    k = fit.params.size
-    sigma2 = None
-    if se == "classic":
-        sigma2 = float(fit.residual @ pieces.gram @ fit.residual) / n
-    return sandwich(se, fit.bread, sigma2, meat, small_factor(se, small, n, k, n_clusters))
-
-
-def first_stage_covariance(pieces: Pieces, meat: np.ndarray | None, se: str, small: bool,
-                           n_clusters: int | None) -> np.ndarray:
-    """Joint covariance of the excluded-instrument coefficients of every first-stage equation
-    and of the reduced form, shape ``(k_e, k_z, k_e, k_z)`` with ``k_e = k_x + 1`` (the last
-    equation is the reduced form of the outcome)."""
-    zt = pieces.z_partialled
-    bread = linalg.sym_inv_psd(zt.T @ pieces.gram @ zt)
-    k_z = zt.shape[1]
-    e = pieces.first_residuals
-    k_e = e.shape[1]
-    k_q = pieces.design.instrument_set.shape[1]
-    factor = small_factor(se, small, pieces.n, k_q, n_clusters)
-    if se == "classic":
-        sigma = (e.T @ pieces.gram @ e) / pieces.n
-        cov = np.einsum("ef,ab->eafb", sigma, bread)
-    else:
-        m = meat.reshape(k_z, k_e, k_z, k_e)
-        cov = np.einsum("ab,becf,cd->eafd", bread, m, bread)
-    return factor * cov
-
-
-def _first_stages(pieces: Pieces, joint: np.ndarray, se: str, small: bool) -> tuple[
-        tuple[FirstStage, ...], np.ndarray, np.ndarray]:
-    d = pieces.design
-    zt = pieces.z_partialled
-    zz = zt.T @ pieces.gram @ zt
-    targets = np.column_stack([d.x, d.y])
-    coef = linalg.sym_inv_psd(zz) @ (zt.T @ pieces.gram @ targets)  # (k_z, k_e)
-    k_z = zt.shape[1]
-    k_q = d.instrument_set.shape[1]
-    df2 = pieces.n - k_q if small else None
-    # Treatment variation left after the controls, for the partial R².
-    w = d.w
-    if w.shape[1]:
-        x_t = d.x - w @ linalg.scaled_cholesky(w.T @ pieces.gram @ w).solve(
-            w.T @ pieces.gram @ d.x)
-    else:
-        x_t = d.x
-    out = []
-    for j, name in enumerate(d.treatments):
-        pi = coef[:, j]
-        v = joint[j, :, j, :]
-        f = linalg.wald_statistic(pi, v) / k_z
-        p = dist.f_sf(f, k_z, df2) if small else dist.chi2_sf(f * k_z, k_z)
-        r2 = float(pi @ zz @ pi) / float(x_t[:, j] @ pieces.gram @ x_t[:, j])
-        eff = None
-        if len(d.treatments) == 1:
-            eff = float(pi @ zz @ pi) / float(np.trace(v @ zz))
-        out.append(FirstStage(name, dict(zip(d.instruments, map(float, pi))),
-                              dict(zip(d.instruments, map(float, np.sqrt(np.diag(v))))),
-                              float(f), (k_z, df2), p, r2, eff))
-    return tuple(out), coef, zz
-
-
-def anderson_rubin_set(pieces: Pieces, joint: np.ndarray, coef: np.ndarray, level: float,
-                       small: bool) -> tuple[Interval, ...]:
-    """Anderson–Rubin confidence set for one treatment, by inverting the AR test exactly."""
-    k_z = coef.shape[0]
-    pi, rho = coef[:, 0], coef[:, 1]
-    if small:
-        df2 = pieces.n - pieces.design.instrument_set.shape[1]
-        critical = k_z * dist.f_quantile(level, k_z, df2)
-    else:
-        critical = dist.chi2_quantile(level, k_z)
-    return linalg.quadratic_ratio_set(rho, pi, joint[1, :, 1, :], joint[1, :, 0, :],
-                                      joint[0, :, 0, :], critical)
-
-
-def _overid_test(pieces: Pieces, sums: ScoreSums | None, se: str) -> OverId | None:
-    d = pieces.design
-    df = d.z.shape[1] - d.x.shape[1]
-    if df == 0:
-        return None
-    u = pieces.tsls.residual
-    gram = pieces.gram
-    if se == "classic":
-        explained = pieces.tsls.instrument_chol.whiten(d.instrument_set.T @ gram @ u)
-        stat = pieces.n * float(explained @ explained) / float(u @ gram @ u)
-        name = "Sargan"
-    else:
-        q = _overid_maps(pieces)
-        score = q.T @ gram @ u
-        stat = linalg.wald_statistic(score, sums.meats["overid"])
-        name = ("Wooldridge score (heteroskedasticity-robust)" if se == "robust"
-                else "Wooldridge score (cluster-robust)")
-    return OverId(name, float(stat), df, dist.chi2_sf(stat, df))
-
-
 def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
                      confidence_level: float, small: bool, weighted: bool) -> IVFit:
     """Assemble the fit and its diagnostics from pass-1 pieces and pass-2 sums."""
     n_clusters = sums.n_clusters if sums is not None else None
     meats = sums.meats if sums is not None else {}
     d = pieces.design
+    n, gram = pieces.n, pieces.gram
     tsls = _coefficients(d, pieces.tsls,
-                         _covariance(pieces, pieces.tsls, meats.get("tsls"), se, small,
-                                     n_clusters))
+                         coefficient_covariance(pieces.tsls, gram, n, meats.get("tsls"), se,
+                                                small, n_clusters))
     ols = _coefficients(d, pieces.ols,
-                        _covariance(pieces, pieces.ols, meats.get("ols"), se, small, n_clusters))
+                        coefficient_covariance(pieces.ols, gram, n, meats.get("ols"), se, small,
+                                               n_clusters))
     joint = first_stage_covariance(pieces, meats.get("first"), se, small, n_clusters)
-    stages, coef, _ = _first_stages(pieces, joint, se, small)
+    stages, coef, _ = first_stages(pieces, joint, se, small)
     ar = None
     if len(d.treatments) == 1:
         ar = anderson_rubin_set(pieces, joint, coef, confidence_level, small)
@@ -606,7 +270,7 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         controls=tuple(layout.controls), constant=layout.constant, n=pieces.n,
         n_dropped=pieces.moments.n_dropped, n_clusters=n_clusters, se_type=se, small=small,
         confidence_level=confidence_level, weighted=weighted, tsls=tsls, ols=ols,
-        first_stages=stages, ar_set=ar, overid=_overid_test(pieces, sums, se),
+        first_stages=stages, ar_set=ar, overid=overid_test(pieces, sums, se),
         notes=tuple(notes))
 
 
@@ -623,28 +287,11 @@ def check_options(se: str, cluster: str | None, confidence_level: float) -> None
                          "level such as 0.95")
 
 
-def normalise_weights(sums: ScoreSums, moments: Moments) -> ScoreSums:
-    """Rescale score sums to weights normalised to mean one (no-op without weights)."""
-    factor = (moments.n / moments.weight_sum) ** 2
-    if factor == 1.0:
-        return sums
-    return ScoreSums({k: v * factor for k, v in sums.meats.items()}, sums.n_clusters)
-
-
-def check_clusters(sums: ScoreSums | None, cluster: str | None) -> None:
-    if sums is not None and sums.n_clusters is not None and sums.n_clusters < 2:
-        raise InputError(f"cluster variable '{cluster}' has only {sums.n_clusters} group in the "
-                         "rows used; cluster-robust inference needs many groups: choose --se "
-                         "robust or another cluster variable")
-
-
 def as_source(data, spec=None, *, chunk_rows: int | None = None):
     """A data-layer source from a source, a DataFrame or a path (with ``spec``)."""
     if hasattr(data, "chunks"):
         return data
-    from sensiv.data import source as data_layer
-
-    return data_layer.load(data, spec, chunk_rows=chunk_rows)
+    return load(data, spec, chunk_rows=chunk_rows)
 
 
 def default_se(spec) -> str:

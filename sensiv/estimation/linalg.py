@@ -5,6 +5,7 @@ Inner kernels: they trust their inputs (finite, correctly shaped) and never touc
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -132,38 +133,74 @@ def quadratic_ratio_set(a0: np.ndarray, a1: np.ndarray, v00: np.ndarray, v01: np
     >>> [round(p.low, 3) for p in s], [round(p.high, 3) for p in s]
     ([1.801], [2.201])
     """
-    from scipy.linalg import eigvals
-
     a0 = np.atleast_1d(np.asarray(a0, float))
     a1 = np.atleast_1d(np.asarray(a1, float))
-    k = a0.size
+    center, spread, quad = _standardised(a0, a1, v00, v01, v11)
+
+    def statistic(t: float) -> float:
+        return wald_statistic(quad.a(t), quad.v(t))
+
+    roots = _determinant_roots(quad, critical)
+    if roots.size == 0:
+        accepted = statistic(0.0) <= critical
+        return (Interval(-np.inf, np.inf),) if accepted else ()
+    return tuple(Interval(center + spread * lo if np.isfinite(lo) else lo,
+                          center + spread * hi if np.isfinite(hi) else hi)
+                 for lo, hi in _accepted_pieces(roots, statistic, critical))
+
+
+@dataclass(frozen=True, slots=True)
+class _RatioQuadratic:
+    """``a(t) = α₀ − t α₁`` and ``V(t) = V_c − t W₁ + t² W₂`` in the standardised variable
+    ``t = (b − center) / spread``."""
+
+    alpha0: np.ndarray
+    alpha1: np.ndarray
+    v_c: np.ndarray
+    w1: np.ndarray
+    w2: np.ndarray
+
+    def a(self, t: float) -> np.ndarray:
+        return self.alpha0 - t * self.alpha1
+
+    def v(self, t: float) -> np.ndarray:
+        return self.v_c - t * self.w1 + t * t * self.w2
+
+
+def _standardised(a0: np.ndarray, a1: np.ndarray, v00: np.ndarray, v01: np.ndarray,
+                  v11: np.ndarray) -> tuple[float, float, _RatioQuadratic]:
+    """Centre ``b`` at the least-squares ratio and scale it by the spread there, so the roots
+    are of order one whatever the units of ``a0`` and ``a1``."""
     s01 = v01 + v01.T
     denom = float(a1 @ a1)
     center = float(a1 @ a0) / denom if denom > 0 else 0.0
     v_c = v00 - center * s01 + center**2 * v11
     spread = np.sqrt(max(np.trace(v_c), np.finfo(float).tiny) / denom) if denom > 0 else 1.0
-
     # b = center + spread * t; every coefficient below is in t.
-    alpha0 = a0 - center * a1
-    alpha1 = spread * a1
-    w1 = spread * (s01 - 2.0 * center * v11)
-    w2 = spread**2 * v11
+    quad = _RatioQuadratic(alpha0=a0 - center * a1, alpha1=spread * a1, v_c=v_c,
+                           w1=spread * (s01 - 2.0 * center * v11), w2=spread**2 * v11)
+    return center, spread, quad
 
-    def statistic(t: float) -> float:
-        a = alpha0 - t * alpha1
-        v = v_c - t * w1 + t * t * w2
-        return wald_statistic(a, v)
 
+def _determinant_roots(quad: _RatioQuadratic, critical: float) -> np.ndarray:
+    """Sorted distinct real roots in ``t`` of ``det [[V(t), a(t)], [a(t)', critical]]``.
+
+    The bordered matrix is the quadratic matrix polynomial ``M₀ + t M₁ + t² M₂``; its roots are
+    the finite eigenvalues of the companion pencil ``(A, B)``.
+    """
+    from scipy.linalg import eigvals
+
+    k = quad.alpha0.size
     m = k + 1
     m0 = np.zeros((m, m))
-    m0[:k, :k] = v_c
-    m0[:k, k] = m0[k, :k] = alpha0
+    m0[:k, :k] = quad.v_c
+    m0[:k, k] = m0[k, :k] = quad.alpha0
     m0[k, k] = critical
     m1 = np.zeros((m, m))
-    m1[:k, :k] = -w1
-    m1[:k, k] = m1[k, :k] = -alpha1
+    m1[:k, :k] = -quad.w1
+    m1[:k, k] = m1[k, :k] = -quad.alpha1
     m2 = np.zeros((m, m))
-    m2[:k, :k] = w2
+    m2[:k, :k] = quad.w2
     eye = np.eye(m)
     big_a = np.block([[np.zeros((m, m)), eye], [-m0, -m1]])
     big_b = np.block([[eye, np.zeros((m, m))], [np.zeros((m, m)), m2]])
@@ -171,11 +208,13 @@ def quadratic_ratio_set(a0: np.ndarray, a1: np.ndarray, v00: np.ndarray, v01: np
         eig = eigvals(big_a, big_b)
     finite = eig[np.isfinite(eig)]
     real = finite[np.abs(finite.imag) <= REAL_ROOT_TOL * (1.0 + np.abs(finite.real))].real
-    roots = np.unique(np.round(np.sort(real), 14))
+    return np.unique(np.round(np.sort(real), 14))
 
-    if roots.size == 0:
-        accepted = statistic(0.0) <= critical
-        return (Interval(-np.inf, np.inf),) if accepted else ()
+
+def _accepted_pieces(roots: np.ndarray, statistic: Callable[[float], float],
+                     critical: float) -> list[list[float]]:
+    """The intervals between consecutive roots (and beyond the outer ones) where the statistic
+    is at most ``critical``, read off at one test point each; touching intervals are merged."""
     tests = [roots[0] - 1.0 - abs(roots[0])]
     tests += list(0.5 * (roots[:-1] + roots[1:]))
     tests.append(roots[-1] + 1.0 + abs(roots[-1]))
@@ -190,6 +229,4 @@ def quadratic_ratio_set(a0: np.ndarray, a1: np.ndarray, v00: np.ndarray, v01: np
             pieces[-1][1] = hi
         else:
             pieces.append([lo, hi])
-    return tuple(Interval(center + spread * lo if np.isfinite(lo) else lo,
-                          center + spread * hi if np.isfinite(hi) else hi)
-                 for lo, hi in pieces)
+    return pieces

@@ -23,7 +23,7 @@ import numpy as np
 
 from sensiv.core.results import Interval
 from sensiv.estimation import linalg
-from sensiv.estimation.iv import build_design
+from sensiv.estimation.design import build_design
 from sensiv.estimation.moments import Moments
 
 # Partialled standard deviation below this share of the raw one: the column is explained by
@@ -55,7 +55,7 @@ class PartialCorrelations:
 def partial_correlations(moments: Moments, layout) -> PartialCorrelations | None:
     """Partial correlations of ``[y, X, Z]`` given the controls, from moments only.
 
-    Uses the design maps of :func:`sensiv.estimation.iv.build_design` on the augmented
+    Uses the design maps of :func:`sensiv.estimation.design.build_design` on the augmented
     centred rows, so the constant, numeric and indicator controls are handled exactly as in
     the 2SLS fit.  Returns ``None`` when a partialled standard deviation is zero or not finite
     (a degenerate bootstrap replicate); the boundary checks of

@@ -31,6 +31,8 @@ import numpy as np
 
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import iv, linalg
+from sensiv.estimation.covariance import small_factor
+from sensiv.estimation.first_stage import first_stage_covariance
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.estimation.moments import ScoreBlock, ScoreSums
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
@@ -341,7 +343,7 @@ def build_core(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit, j: i
     k = pieces.tsls.params.size
     se = result.se_type
     n_clusters = sums.n_clusters if sums is not None else None
-    factor = iv.small_factor(se, result.small, n, k, n_clusters)
+    factor = small_factor(se, result.small, n, k, n_clusters)
     row = len(pieces.design.control_names) + j
     if se == "classic":
         quad = pieces.tsls.bread[row, row] * (maps.T @ pieces.gram @ maps) / n
@@ -501,8 +503,8 @@ class ReducedForm:
 def reduced_form(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit) -> ReducedForm:
     meats = sums.meats if sums is not None else {}
     n_clusters = sums.n_clusters if sums is not None else None
-    joint = iv.first_stage_covariance(pieces, meats.get("first"), result.se_type, result.small,
-                                      n_clusters)
+    joint = first_stage_covariance(pieces, meats.get("first"), result.se_type, result.small,
+                                   n_clusters)
     d = pieces.design
     zt = pieces.z_partialled
     coef = linalg.sym_inv_psd(zt.T @ pieces.gram @ zt) @ (

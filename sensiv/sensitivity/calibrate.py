@@ -37,6 +37,9 @@ import numpy as np
 
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import iv, linalg
+from sensiv.estimation.covariance import check_clusters, normalise_weights
+from sensiv.estimation.design import CONSTANT, Design, build_design
+from sensiv.estimation.first_stage import first_stage_covariance
 from sensiv.sensitivity.bounds import Scale
 from sensiv.core.errors import InputError
 from sensiv.estimation.moments import Moments, ScoreBlock, accumulate, score_sums
@@ -104,7 +107,7 @@ def _partialled(maps: np.ndarray, w: np.ndarray, gram: np.ndarray) -> np.ndarray
     return maps - w @ coef
 
 
-def instrument_coefficients(moments: Moments, design: iv.Design) -> np.ndarray:
+def instrument_coefficients(moments: Moments, design: Design) -> np.ndarray:
     r"""Coefficients of the instruments in the regressions of each treatment and of the outcome
     on ``[constant, controls, instruments]``, from moments only.
 
@@ -132,9 +135,9 @@ def scale_from_moments(moments: Moments, outcome: str, instruments: Sequence[str
                  np.array([math.sqrt(moments.variance(z)) for z in instruments]))
 
 
-def _design(moments: Moments, layout, controls: Sequence[str]) -> iv.Design:
-    return iv.build_design(moments, layout.outcome, layout.treatments, layout.instruments,
-                           controls, layout.constant)
+def _design(moments: Moments, layout, controls: Sequence[str]) -> Design:
+    return build_design(moments, layout.outcome, layout.treatments, layout.instruments,
+                        controls, layout.constant)
 
 
 # ============================================================================ benchmarks
@@ -448,8 +451,8 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
             break
         j = found[0]
         n_w = len(design.control_names)
-        if j >= n_w or design.control_names[j] == iv.CONSTANT:
-            name = design.instruments[j - n_w] if j >= n_w else iv.CONSTANT
+        if j >= n_w or design.control_names[j] == CONSTANT:
+            name = design.instruments[j - n_w] if j >= n_w else CONSTANT
             raise InputError(
                 f"instrument {name!r} is constant in {where} (or collinear with the controls "
                 "there), so its reduced-form coefficient cannot be estimated in the subgroup; "
@@ -463,19 +466,19 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
     residuals = targets - q @ q_chol.solve(q.T @ gram @ targets)
     sums = None
     if se != "classic":
-        sums = iv.normalise_weights(
+        sums = normalise_weights(
             score_sums(source.chunks(), moments.mean, [ScoreBlock("first", zt, residuals)],
                        cluster=(se == "cluster")), moments)
         try:
-            iv.check_clusters(sums, spec.cluster)
+            check_clusters(sums, spec.cluster)
         except InputError as exc:
             raise InputError(f"in {where}: {exc}") from exc
     # Only the first-stage fields of Pieces are read by first_stage_covariance; the
     # subgroup's 2SLS (tsls, ols) is deliberately not formed.
     pieces = iv.Pieces(moments, design, gram, None, None, zt, residuals)
     n_clusters = sums.n_clusters if sums is not None else None
-    joint = iv.first_stage_covariance(pieces, sums.meats["first"] if sums else None, se,
-                                      small, n_clusters)
+    joint = first_stage_covariance(pieces, sums.meats["first"] if sums else None, se,
+                                   small, n_clusters)
     coef = linalg.scaled_cholesky(zt.T @ gram @ zt).solve(zt.T @ gram @ targets)
     k_x = len(layout.treatments)
     df2 = moments.n - q.shape[1] if small else None

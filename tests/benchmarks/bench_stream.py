@@ -122,7 +122,7 @@ def child_baseline() -> dict:
     import pyarrow.parquet  # noqa: F401
 
     import sensiv  # noqa: F401
-    import sensiv.data.source  # noqa: F401
+    import sensiv.data  # noqa: F401
     import sensiv.estimation.iv  # noqa: F401
     import sensiv.estimation.moments  # noqa: F401
 

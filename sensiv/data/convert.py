@@ -1,0 +1,180 @@
+"""Column-level conversion of a pandas frame to clean numbers: dtype kinds, numeric columns as
+``float64`` with NaN for missing, missing-value masks, the levels of text controls, and the
+row tallies whose checks need a whole pass over the data.
+
+In text columns an empty string counts as missing, as it does in Stata.  Every message names
+the column, its role, the data set and a data row (1-based, header not counted).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator, Sequence
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from sensiv.core.errors import InputError
+from sensiv.data.spec import MAX_SUGGESTIONS, Spec, roles, used_columns
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+
+def dtype_kind(dtype: Any) -> str:
+    """``"numeric"`` (incl. bool), ``"text"`` (object, string, category) or ``"other"``."""
+    import pandas as pd
+
+    api = pd.api.types
+    if api.is_bool_dtype(dtype) or (
+            api.is_numeric_dtype(dtype) and not api.is_complex_dtype(dtype)):
+        return "numeric"
+    if isinstance(dtype, pd.CategoricalDtype) or api.is_string_dtype(dtype):
+        return "text"
+    return "other"
+
+
+def text_controls(spec: Spec, samples: Sequence[pd.DataFrame], description: str) -> list[str]:
+    """Check that numeric roles are numeric and return the controls to treat as text."""
+    numeric_roles = [(role, name) for role, name in roles(spec)
+                     if role not in ("control", "cluster")]
+    for sample in samples:
+        for role, name in numeric_roles:
+            if dtype_kind(sample[name].dtype) != "numeric":
+                as_float(sample[name], role, name, description, 0)  # raises with an example
+    text = []
+    for name in spec.controls:
+        kinds = {dtype_kind(sample[name].dtype) for sample in samples}
+        if "other" in kinds:
+            dtype = next(s[name].dtype for s in samples if dtype_kind(s[name].dtype) == "other")
+            raise InputError(
+                f"control {name!r} in {description} has dtype {dtype}, which is neither "
+                "numeric nor text; convert it to numbers (e.g. a year or a day count) or to "
+                "strings to use it as a categorical control"
+            )
+        if "text" in kinds:
+            text.append(name)
+    return text
+
+
+def data_row(first_row: int, position: int) -> int:
+    """1-based data row number (header not counted) for messages."""
+    return first_row + position + 1
+
+
+def as_float(series: pd.Series, role: str, name: str, description: str,
+             first_row: int) -> np.ndarray:
+    """Numeric column as float64 with NaN for missing; InputError with an example if not."""
+    import pandas as pd
+
+    kind = dtype_kind(series.dtype)
+    if kind == "numeric":
+        return series.to_numpy(dtype=np.float64, na_value=np.nan)
+    what = f"{role} {name!r} in {description}"
+    if kind == "other":
+        raise InputError(
+            f"{what} has dtype {series.dtype}, not numbers; convert it to numbers "
+            "(e.g. a year or a day count) before the analysis"
+        )
+    raw = series.astype(object)
+    if not raw.notna().any():  # e.g. an all-null column: missing, reported as NaN-only later
+        return np.full(len(raw), np.nan)
+    bad = (pd.to_numeric(raw, errors="coerce").isna() & raw.notna()).to_numpy()
+    if bad.any():
+        position = int(np.argmax(bad))
+        raise InputError(
+            f"{what} is not numeric: data row {data_row(first_row, position)} holds "
+            f"{raw.iloc[position]!r} ({int(bad.sum())} such value(s) in rows "
+            f"{data_row(first_row, 0)}-{data_row(first_row, len(raw) - 1)}); recode them as "
+            "numbers or leave missing values empty"
+            + ("; text categories can only be controls" if role != "weight" else "")
+        )
+    example = raw[raw.notna()].iloc[0] if raw.notna().any() else None
+    raise InputError(
+        f"{what} holds numbers stored as text (e.g. {example!r}, dtype {series.dtype}); "
+        "convert it with pandas.to_numeric before the analysis"
+    )
+
+
+def missing_mask(series: pd.Series) -> np.ndarray:
+    """Missing mask; in text columns the empty string also counts as missing."""
+    mask = np.array(series.isna(), dtype=bool)  # a writable copy
+    if dtype_kind(series.dtype) == "text":
+        mask |= (series == "").to_numpy(dtype=bool, na_value=False)
+    return mask
+
+
+def level_strings(series: pd.Series) -> np.ndarray:
+    """The labels of a text control as Python strings (the form its levels are kept in)."""
+    return series.astype(str).to_numpy(dtype=object)
+
+
+def level_index(levels: tuple[str, ...]) -> pd.Index:
+    """An index over the kept levels, to turn labels into level codes in one call."""
+    import pandas as pd
+
+    return pd.Index(levels, dtype=object)
+
+
+class Tally:
+    """Row and missing-value counts over one pass, with the checks that need the whole pass."""
+
+    def __init__(self, spec: Spec, description: str) -> None:
+        self.roles = dict((name, role) for role, name in roles(spec))
+        self.description = description
+        self.rows = 0
+        self.kept = 0
+        self.missing = dict.fromkeys(self.roles, 0)
+
+    def add(self, rows: int, kept: int, missing: dict[str, int]) -> None:
+        self.rows += rows
+        self.kept += kept
+        for name, count in missing.items():
+            self.missing[name] += count
+
+    def finish(self) -> None:
+        where = self.description
+        if self.rows == 0:
+            raise InputError(f"{where} has no data rows; supply a data set with at least one row")
+        empty = [name for name, count in self.missing.items() if count == self.rows]
+        if empty:
+            listed = ", ".join(f"{self.roles[name]} {name!r}" for name in empty)
+            raise InputError(
+                f"{listed} in {where} has no non-missing values (NaN-only in all "
+                f"{self.rows} rows); check the column name and the file's missing-value "
+                "coding, or remove the column from the model"
+            )
+        if self.kept == 0:
+            worst = sorted(self.missing.items(), key=lambda item: -item[1])[:MAX_SUGGESTIONS]
+            listed = ", ".join(f"{name!r} ({count} missing)" for name, count in worst)
+            raise InputError(
+                f"no rows left in {where} after dropping all {self.rows} rows for a missing "
+                f"value in a used column; most missing: {listed}; drop or impute the columns "
+                "with the most missing values"
+            )
+
+
+def scan_levels(frames: Callable[[], Iterator[pd.DataFrame]], spec: Spec, text: list[str],
+                description: str) -> dict[str, tuple[str, ...]]:
+    """One cheap pass: levels of each text control among rows kept by listwise deletion."""
+    used = used_columns(spec)
+    found: dict[str, set[str]] = {name: set() for name in text}
+    tally = Tally(spec, description)
+    for frame in frames():
+        masks = {name: missing_mask(frame[name]) for name in used}
+        drop = np.logical_or.reduce(list(masks.values()))
+        tally.add(len(frame), int((~drop).sum()),
+                  {name: int(mask.sum()) for name, mask in masks.items()})
+        for name in text:
+            found[name].update(level_strings(frame[name][~drop]))
+    tally.finish()
+    levels = {}
+    for name in text:
+        levels[name] = tuple(sorted(found[name]))
+        if len(levels[name]) < 2:
+            raise InputError(
+                f"control {name!r} in {description} takes the single value "
+                f"{levels[name][0]!r} in the {tally.kept} rows kept after dropping "
+                f"{tally.rows - tally.kept} rows with missing values; a constant control "
+                "carries no information: remove it from the controls"
+            )
+    return levels

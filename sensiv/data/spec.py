@@ -1,0 +1,170 @@
+"""The validated :class:`Spec` of an IV model's column roles, and the checks of those roles
+against the columns a data set actually has.
+
+A :class:`Spec` is checked when it is built (names, counts, repeats); :func:`check_columns`
+checks it against a data set's column names and suggests close matches for a typo.
+
+Examples
+--------
+>>> spec = Spec("y", ["x"], ["z"], weight="w")
+>>> roles(spec)
+[('outcome', 'y'), ('treatment', 'x'), ('instrument', 'z'), ('weight', 'w')]
+>>> used_columns(spec)
+['y', 'x', 'z', 'w']
+"""
+
+from __future__ import annotations
+
+import difflib
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from sensiv.core.errors import InputError
+
+MAX_LISTED_COLUMNS = 25
+"""Available columns listed in an unknown-column message before the list is cut."""
+
+MAX_SUGGESTIONS = 3
+SUGGESTION_CUTOFF = 0.6  # difflib similarity below which a name is not suggested
+
+
+def _names(value: Any, role: str) -> tuple[str, ...]:
+    if isinstance(value, str):
+        value = (value,)
+    try:
+        names = tuple(value)
+    except TypeError as exc:
+        raise InputError(
+            f"{role} columns must be a list of names; got {value!r}: pass e.g. ['{role}_a']"
+        ) from exc
+    for name in names:
+        _check_name(name, role)
+    return names
+
+
+def _check_name(name: Any, role: str) -> None:
+    if not isinstance(name, str) or not name:
+        raise InputError(f"{role} column name must be a non-empty string; got {name!r}")
+
+
+@dataclass(frozen=True, slots=True)
+class Spec:
+    """Column roles of an IV model.
+
+    Parameters
+    ----------
+    outcome : str
+        Outcome column ``y``.
+    treatments : sequence of str
+        Endogenous treatment columns ``X`` (at least one).
+    instruments : sequence of str
+        Excluded instruments ``Z`` (at least as many as treatments).
+    controls : sequence of str, default ()
+        Exogenous controls ``W``; text columns become indicator columns.
+    cluster : str or None
+        Column of cluster labels for cluster-robust inference.
+    weight : str or None
+        Column of positive analytic weights.
+    constant : bool, default True
+        Whether the model has an intercept (added analytically, never as a column).
+
+    Raises
+    ------
+    InputError
+        No treatment or instrument, fewer instruments than treatments, or a column named
+        more than once.
+    """
+
+    outcome: str
+    treatments: tuple[str, ...]
+    instruments: tuple[str, ...]
+    controls: tuple[str, ...] = ()
+    cluster: str | None = None
+    weight: str | None = None
+    constant: bool = True
+
+    def __post_init__(self) -> None:
+        _check_name(self.outcome, "outcome")
+        for role in ("treatments", "instruments", "controls"):
+            object.__setattr__(self, role, _names(getattr(self, role), role[:-1]))
+        for role in ("cluster", "weight"):
+            if getattr(self, role) is not None:
+                _check_name(getattr(self, role), role)
+        if not isinstance(self.constant, (bool, np.bool_)):
+            raise InputError(f"constant must be True or False; got {self.constant!r}")
+        object.__setattr__(self, "constant", bool(self.constant))
+        if not self.treatments:
+            raise InputError("no treatment given: name at least one treatment column")
+        if not self.instruments:
+            raise InputError("no instrument given: name at least one instrument column")
+        k_x, k_z = len(self.treatments), len(self.instruments)
+        if k_z < k_x:
+            raise InputError(
+                f"{k_x} treatments need at least {k_x} instruments; got {k_z}: "
+                "add an instrument or drop a treatment"
+            )
+        seen: dict[str, str] = {}
+        for role, name in roles(self):
+            if name in seen:
+                where = f"twice as {role}" if seen[name] == role else (
+                    f"both as {seen[name]} and as {role}")
+                raise InputError(
+                    f"column {name!r} is named {where}; a column can play only one role "
+                    "and be listed once: remove the repeat"
+                )
+            seen[name] = role
+
+
+def roles(spec: Spec) -> list[tuple[str, str]]:
+    """``(role, column)`` pairs for every used column, in a fixed order."""
+    pairs = [("outcome", spec.outcome)]
+    pairs += [("treatment", name) for name in spec.treatments]
+    pairs += [("instrument", name) for name in spec.instruments]
+    pairs += [("control", name) for name in spec.controls]
+    pairs += [(role, getattr(spec, role)) for role in ("cluster", "weight")
+              if getattr(spec, role) is not None]
+    return pairs
+
+
+def used_columns(spec: Spec) -> list[str]:
+    """Every column the model reads, in the order of :func:`roles`."""
+    return [name for _, name in roles(spec)]
+
+
+def check_columns(spec: Spec, available: Sequence[Any], description: str) -> None:
+    """Raise :class:`InputError` unless every role's column appears exactly once in ``available``.
+
+    A missing column is reported with up to :data:`MAX_SUGGESTIONS` close names and the list
+    of available columns (cut after :data:`MAX_LISTED_COLUMNS`).
+    """
+    labels = [str(name) for name in available]
+    problems = []
+    for role, name in roles(spec):
+        count = sum(1 for label in available if label == name)
+        if count > 1:
+            raise InputError(
+                f"{role} column {name!r} appears {count} times in {description}; "
+                "rename the duplicates so that each column name is unique"
+            )
+        if count == 0:
+            problems.append((role, name, _suggest(name, labels)))
+    if not problems:
+        return
+    listed = ", ".join(repr(name) for name in labels[:MAX_LISTED_COLUMNS])
+    if len(labels) > MAX_LISTED_COLUMNS:
+        listed += f", ... ({len(labels) - MAX_LISTED_COLUMNS} more)"
+    parts = []
+    for role, name, close in problems:
+        hint = f"; did you mean {' or '.join(map(repr, close))}?" if close else ""
+        parts.append(f"{role} column {name!r} not found in {description}{hint}")
+    message = "; ".join(parts)
+    raise InputError(message + (" " if message.endswith("?") else "; ") + f"available: {listed}")
+
+
+def _suggest(name: str, labels: list[str]) -> list[str]:
+    same_case = [label for label in labels if label.lower() == name.lower()]
+    close = difflib.get_close_matches(name, labels, n=MAX_SUGGESTIONS, cutoff=SUGGESTION_CUTOFF)
+    return list(dict.fromkeys(same_case + close))[:MAX_SUGGESTIONS]
