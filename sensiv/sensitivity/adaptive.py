@@ -93,7 +93,6 @@ CAUTION = ("Caution: the falsification adaptive set holds only under the stated 
            "instrument valid, and it reflects no sampling uncertainty.")
 
 
-
 # ============================================================================ results
 @dataclass(frozen=True, slots=True)
 class SingleInstrument:
@@ -186,7 +185,6 @@ class AdaptiveResult:
 
     def __str__(self) -> str:
         return describe(self)
-
 
 
 # ============================================================================ public API

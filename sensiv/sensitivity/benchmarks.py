@@ -197,4 +197,3 @@ def covariate_benchmarks(moments: Moments, layout, groups, full: np.ndarray,
                 first_stage_shift=dict(zip(layout.treatments, map(float, shift[k, :k_x]))),
                 implied_direct_net=implied - float(shift[k, :k_x] @ beta)))
     return tuple(out)
-

@@ -88,7 +88,6 @@ class Curve:
                                               self.id_upper)]
 
 
-
 @dataclass(frozen=True, slots=True)
 class SweepResult:
     """Direct-effect sensitivity of the focus coefficient over a set Γ and its scalings."""
@@ -179,7 +178,6 @@ class SweepResult:
 
     def __str__(self) -> str:
         return describe(self)
-
 
 
 # ============================================================================ the sweep

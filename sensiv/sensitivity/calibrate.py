@@ -51,8 +51,6 @@ CAUTION = ("Caution: these calibrations are reference magnitudes, not estimates 
            "and nothing here proves that an instrument is valid.")
 
 
-
-
 # ============================================================================ options
 def parse_group(text: str) -> tuple[str, tuple[str, ...]]:
     """Parse ``NAME=COL1,COL2`` (a named group of controls for a joint benchmark).
@@ -169,7 +167,6 @@ class Calibration:
 
     def __str__(self) -> str:
         return describe(self)
-
 
 
 # ============================================================================ entry point

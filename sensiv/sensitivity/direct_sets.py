@@ -234,7 +234,6 @@ def read_polytope(path, instruments: Sequence[str]) -> DirectSet:
                         values["bound"].to_numpy(float))
 
 
-
 def scale_from_moments(moments: Moments, outcome: str, instruments: Sequence[str],
                        reduced_form: np.ndarray) -> Scale:
     """The units of :class:`Scale` (weighted SDs with divisor ``Σw``).

@@ -107,7 +107,6 @@ def build_core(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit, j: i
                 0.5 * (quad + quad.T), result.critical_value())
 
 
-
 def first_stage_is_uninformative(result: iv.IVFit, j: int) -> bool:
     """True when the focus treatment's first stage is not significant at the confidence level.
 

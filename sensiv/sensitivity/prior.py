@@ -330,4 +330,3 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
         estimate=core.estimate, se=core.se, interval=interval, center=center, method=method,
         mc_error=mc_error, priors=texts, draws=used_draws, seed=used_seed, fit=result,
         notes=result.notes, prior_map=pmap)
-

@@ -153,7 +153,6 @@ def consistency_notes(rep: Reported) -> list[str]:
     return notes
 
 
-
 def one_value(value, what: str):
     """The single range or prior law of a one-instrument stress test: ``value`` itself, or the
     only element of a sequence (InputError for any other count)."""
