@@ -2,8 +2,9 @@
 
 Sources beside each check:
 * Masten & Poirier (2021), definition of the falsification frontier and adaptive set (from
-  memory); the closed form [min_k β_k, max_k β_k] is derived in ``sensiv/adaptive.py`` and
-  checked here against the linear programmes and against a brute-force search of the frontier;
+  memory); the closed form [min_k β_k, max_k β_k] is derived in
+  ``sensiv/sensitivity/adaptive.py`` and checked here against the linear programmes and
+  against a brute-force search of the frontier;
 * reference library: linearmodels ``IV2SLS`` (single-instrument estimates with the other
   instruments as controls; the 2SLS point with one instrument);
 * common practice, no source: simulations of valid and invalid instruments, invariances.
@@ -19,11 +20,11 @@ import pandas as pd
 import pytest
 from linearmodels.iv import IV2SLS
 
-from sensiv.sensitivity import bounds
 from sensiv.estimation import iv
-from sensiv.sensitivity.adaptive import (adaptive_from_data, adaptive_set, closed_form,
-                             closed_form_relaxed_set, relaxed_set)
-from sensiv.sensitivity.bounds import ReducedForm, Scale
+from sensiv.sensitivity.adaptive import adaptive_from_data, adaptive_set, relaxed_set
+from sensiv.sensitivity.adaptive_programmes import closed_form, closed_form_relaxed_set
+from sensiv.sensitivity.direct_sets import Scale
+from sensiv.sensitivity.robust_set import ReducedForm, reduced_form
 from sensiv.data import Spec, from_frame
 from sensiv.core.errors import InaccurateSolveWarning, InputError, WeakInstrumentWarning
 
@@ -80,7 +81,8 @@ def close(a, b, size):
 @pytest.mark.parametrize("units", ["effect", "sd"])
 @pytest.mark.parametrize("seed", range(12))
 def test_programmes_equal_closed_forms(units, seed):
-    # derivation in sensiv/adaptive.py (closed forms), against the linear programmes, 1e-7
+    # derivation in sensiv/sensitivity/adaptive.py (closed forms), against the linear
+    # programmes, 1e-7
     k = 2 + seed % 4
     rf, scale = random_rf(seed, k)
     with warnings.catch_warnings():
@@ -113,8 +115,8 @@ def test_programmes_equal_closed_forms(units, seed):
 
 
 def test_effect_units_closed_form_is_half_the_spread():
-    # derivation in sensiv/adaptive.py: with |γ_k| ≤ δ|π_k|, δ* = (max β_k − min β_k)/2 and
-    # B(δ*) is the midpoint
+    # derivation in sensiv/sensitivity/adaptive.py: with |γ_k| ≤ δ|π_k|,
+    # δ* = (max β_k − min β_k)/2 and B(δ*) is the midpoint
     rf = ReducedForm(np.array([1.0, -2.0, 4.5]), np.array([0.5, -1.0, 1.5]), np.eye(3),
                      np.zeros((3, 3)), np.eye(3) * 1e-4, 7.8)
     res = adaptive_set(rf)
@@ -258,7 +260,7 @@ def test_relaxed_sets_widen_and_nest():
     source = from_frame(overidentified(gamma=(0.0, 0.1, -0.05)), spec_for(3))
     result, pieces, sums = iv.fit_with_pieces(source, se="robust", confidence_level=0.95,
                                               small=False)
-    rf = bounds.reduced_form(pieces, sums, result)
+    rf = reduced_form(pieces, sums, result)
     res = adaptive_set(rf)
     previous = None
     for factor in (1.01, 1.5, 2.0, 4.0):
@@ -291,7 +293,7 @@ def test_wiring_for_sweep_uses_the_sweeps_reduced_form():
     source = from_frame(frame, spec_for(3))
     result, pieces, sums = iv.fit_with_pieces(source, se="robust", confidence_level=0.9,
                                               small=False)
-    rf = bounds.reduced_form(pieces, sums, result)
+    rf = reduced_form(pieces, sums, result)
     wired = adaptive_set(rf, instruments=pieces.design.instruments,
                          confidence_level=result.confidence_level)
     direct = run(frame, 3, confidence_level=0.9)

@@ -18,6 +18,10 @@ import pandas as pd
 import pytest
 
 from sensiv.sensitivity import bounds, prior
+from sensiv.sensitivity.direct_sets import box_set
+from sensiv.sensitivity.linear_core import build_core, focus_block
+from sensiv.sensitivity.prior_laws import parse_prior
+from sensiv.sensitivity.union import union_interval
 from sensiv.data import Spec, from_frame
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 
@@ -72,8 +76,8 @@ def core_of(frame, k_z, se, cluster=None):
     source = from_frame(frame, spec_for(k_z, cluster))
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se, confidence_level=0.95, small=False,
-        extra_blocks=lambda p: [] if se == "classic" else [bounds.focus_block(p, 0)])
-    return bounds.build_core(pieces, sums, result, 0)
+        extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, 0)])
+    return build_core(pieces, sums, result, 0)
 
 
 @pytest.mark.parametrize("se", ["classic", "robust", "cluster"])
@@ -148,9 +152,9 @@ def test_breakdown_scale_touches_the_threshold(se):
     assert min(gaps) < 1e-8
     # just below t* the union interval is clear of the threshold; just above, it is not
     core = core_of(frame, 2, se, cluster)
-    verts = bounds.box_set(("z1", "z2"), [(-0.05, 0.05), (-0.05, 0.05)]).vertices
-    below = bounds.union_interval(core, verts, t * (1 - 1e-6))
-    above = bounds.union_interval(core, verts, t * (1 + 1e-6))
+    verts = box_set(("z1", "z2"), [(-0.05, 0.05), (-0.05, 0.05)]).vertices
+    below = union_interval(core, verts, t * (1 - 1e-6))
+    above = union_interval(core, verts, t * (1 + 1e-6))
     assert not below.contains(0.2) and above.contains(0.2)
 
 
@@ -392,7 +396,7 @@ def test_quadrature_agrees_with_simulation():
                                 priors=["uniform:-0.05:0.1"])
     assert quad.method == "quadrature"
     core = core_of(frame, 1, "robust")
-    lo_hi = prior.simulated_interval(core, [prior.parse_prior("uniform:-0.05:0.1")], 0.95,
+    lo_hi = prior.simulated_interval(core, [parse_prior("uniform:-0.05:0.1")], 0.95,
                                      400_000, seed=1)
     interval, _, err = lo_hi
     assert abs(interval.low - quad.interval.low) < 5 * err
@@ -425,9 +429,9 @@ def test_prior_file_and_bad_priors(tmp_path):
     with pytest.raises(InputError, match="positive semidefinite"):
         prior.prior_analysis(from_frame(frame, spec_for(2)), prior_file=str(bad))
     with pytest.raises(InputError, match="SD must be positive"):
-        prior.parse_prior("normal:0:0")
+        parse_prior("normal:0:0")
     with pytest.raises(InputError, match="unknown law"):
-        prior.parse_prior("cauchy:0:1")
+        parse_prior("cauchy:0:1")
 
 
 # ------------------------------------------------------------------ coverage (simulation)

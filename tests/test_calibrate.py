@@ -25,10 +25,11 @@ from linearmodels.iv import IV2SLS
 
 from sensiv.sensitivity import bounds
 from sensiv.sensitivity.calibrate import calibrate, parse_group
+from sensiv.sensitivity.direct_sets import parse_range
 from sensiv.cli.app import app
 from sensiv.data import Spec, from_file, from_frame
 from sensiv.core.errors import InputError, WeakInstrumentWarning
-from sensiv.sensitivity.prior import parse_prior
+from sensiv.sensitivity.prior_laws import parse_prior
 
 LM_VERSION = linearmodels.__version__
 REL = 1e-8  # agreement with the reference library (issue contract)
@@ -127,7 +128,7 @@ def test_benchmarks_match_reference_refits(weight, k_z):
 
 
 def test_benchmark_units_follow_the_sweep_scale():
-    # common practice, no source: the scale is the sweep's (bounds.Scale), and a benchmark in
+    # common practice, no source: the scale is the sweep's (direct_sets.Scale), and a benchmark in
     # rf / sd units is the outcome-unit value divided by ρ / times SD(z)/SD(y)
     frame = simulated(k_z=2)
     spec = spec_for(2)
@@ -150,7 +151,7 @@ def test_sweep_range_contains_the_benchmark_and_parses():
     # valid --direct range
     res = calibrate(simulated(), spec_for())
     for b in res.benchmarks:
-        spec = bounds.parse_range(b.sweep_option.removeprefix("--direct="))
+        spec = parse_range(b.sweep_option.removeprefix("--direct="))
         assert spec.unit == ""
         assert spec.low == -spec.high
         assert spec.high >= abs(b.implied_direct)
@@ -267,7 +268,7 @@ def test_zero_first_stage_offers_prior_and_range():
         assert law.kind == "normal"
         assert law.params[0] == pytest.approx(zfs.direct[k], rel=1e-3)
         assert zfs.se[k] <= law.params[1] <= zfs.se[k] * (1 + 1e-3)
-        r = bounds.parse_range(rng_text.removeprefix("--direct="))
+        r = parse_range(rng_text.removeprefix("--direct="))
         assert r.low <= zfs.direct[k] - z95 * zfs.se[k]
         assert r.high >= zfs.direct[k] + z95 * zfs.se[k]
         assert r.high - r.low <= 2 * z95 * zfs.se[k] * (1 + 1e-2)

@@ -22,6 +22,9 @@ import pandas as pd
 import pytest
 
 from sensiv.sensitivity import bounds, prior
+from sensiv.sensitivity.frontier import FRONTIER_POINTS, breakdown_frontier
+from sensiv.sensitivity.linear_core import Core
+from sensiv.sensitivity.union import union_interval
 from sensiv.present import plots
 from sensiv.data import Spec
 from sensiv.core.errors import InputError
@@ -288,7 +291,7 @@ def test_frontier_agrees_with_the_breakdown_of_the_sweep(results, name):
     sweep = results[name]
     f = sweep.frontier
     doc = sweep.to_dict()["frontier"]
-    assert len(doc) == f.threshold.size >= bounds.FRONTIER_POINTS
+    assert len(doc) == f.threshold.size >= FRONTIER_POINTS
     i = int(np.flatnonzero(f.threshold == sweep.breakdown.threshold)[0])
     expected = sweep.breakdown.scale
     assert f.scale[i] == (math.inf if expected is None else expected)
@@ -303,21 +306,21 @@ def test_frontier_agrees_with_the_breakdown_of_the_sweep(results, name):
 def test_frontier_is_the_inverse_of_the_union_curve():
     # union lower end at scale t*(θ) equals θ (common practice, no source)
     quad = np.array([[0.04, 0.01], [0.01, 0.2]])
-    core = bounds.Core("x", ("z",), 1.0, np.array([0.8]), quad, 1.96)
+    core = Core("x", ("z",), 1.0, np.array([0.8]), quad, 1.96)
     vertices = np.array([[-0.5], [0.5]])
     thetas = np.array([-1.0, 0.0, 0.5, 1.0, 1.5, 2.0, 3.0])
-    f = bounds.breakdown_frontier(core, vertices, thetas)
+    f = breakdown_frontier(core, vertices, thetas)
     for theta, t, side in zip(thetas, f.scale, f.side):
         if side == 0:
             assert t == 0.0
             continue
         if math.isinf(t):
             continue
-        u = bounds.union_interval(core, vertices, t)
+        u = union_interval(core, vertices, t)
         end = u.low if side > 0 else u.high
         assert end == pytest.approx(theta, rel=1e-9, abs=1e-12)
         # just inside the breakdown the conclusion still holds
-        inner = bounds.union_interval(core, vertices, 0.999 * t)
+        inner = union_interval(core, vertices, 0.999 * t)
         assert (inner.low > theta) if side > 0 else (inner.high < theta)
 
 
@@ -339,7 +342,7 @@ def test_extended_curve_reaches_the_threshold(results):
 def test_prior_map_matches_the_closed_form_interval():
     # each cell equals sensiv.sensitivity.prior.normal_interval at that prior (Conley, Hansen & Rossi
     # 2012 closed form)
-    core = bounds.Core("x", ("z",), 0.7, np.array([-2.0]), np.diag([0.01, 0.0]), 1.96)
+    core = Core("x", ("z",), 0.7, np.array([-2.0]), np.diag([0.01, 0.0]), 1.96)
     pm = prior.prior_map(core, np.array([0.05]), np.array([[0.03**2]]), 0.2, points=9)
     assert pm.given == (0.05, pytest.approx(0.03))
     assert pm.mean[0] < 0.05 < pm.mean[-1] and pm.sd[0] == 0.0

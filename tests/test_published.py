@@ -47,8 +47,11 @@ from sensiv.sensitivity import prior as prior_layer
 from sensiv.cli.app import app
 from sensiv.data import Spec, from_frame
 from sensiv.core.errors import InputError, WeakInstrumentWarning
-from sensiv.sensitivity.published import (METHOD_BACKED_OUT, METHOD_CLIPPED, METHOD_WORST,
-                              InconsistentInputWarning, published_analysis)
+from sensiv.sensitivity.linear_core import focus_block
+from sensiv.sensitivity.published import InconsistentInputWarning, published_analysis
+from sensiv.sensitivity.published_covariance import (METHOD_BACKED_OUT, METHOD_CLIPPED,
+                                                     METHOD_WORST)
+from sensiv.sensitivity.robust_set import reduced_form
 
 from linearmodels.iv import IV2SLS  # noqa: E402  (reference library, test extra)
 
@@ -184,13 +187,13 @@ def test_published_reproduces_the_data_sweep(case):
 
 
 def test_backed_out_covariance_is_the_true_one(case):
-    # data route: the joint covariance of (ρ̂, π̂) that bounds.reduced_form computes from the
+    # data route: the joint covariance of (ρ̂, π̂) that robust_set.reduced_form computes from the
     # rows; the back-out from S recovers it to floating point (relative 1e-11·κ of SR·SP)
     frame, spec, se, nums = case["frame"], case["spec"], case["se"], case["nums"]
     result, pieces, sums = iv.fit_with_pieces(
         from_frame(frame, spec), se=se, confidence_level=0.95, small=False,
-        extra_blocks=lambda p: [] if se == "classic" else [bounds.focus_block(p, 0)])
-    truth = bounds.reduced_form(pieces, sums, result)
+        extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, 0)])
+    truth = reduced_form(pieces, sums, result)
     res = run(nums, direct="0:0")
     got = res.covariance.to_dict()["rf_fs_covariance"]
     sr_sp = nums["reduced_form_se"] * nums["first_stage_se"]
@@ -219,8 +222,8 @@ def test_backed_out_covariance_from_printed_digits(case):
     frame, spec, se, nums = case["frame"], case["spec"], case["se"], case["nums"]
     result, pieces, sums = iv.fit_with_pieces(
         from_frame(frame, spec), se=se, confidence_level=0.95, small=False,
-        extra_blocks=lambda p: [] if se == "classic" else [bounds.focus_block(p, 0)])
-    truth = float(bounds.reduced_form(pieces, sums, result).v_rp[0, 0])
+        extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, 0)])
+    truth = float(reduced_form(pieces, sums, result).v_rp[0, 0])
     rounded = {k: _round(v) for k, v in nums.items()}
     res = run(rounded, direct="0:0")
     assert res.covariance.method == METHOD_BACKED_OUT

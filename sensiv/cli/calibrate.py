@@ -43,6 +43,7 @@ def calibrate(
 ) -> None:
     """How large a direct effect is plausible: reduced-form scale, covariate benchmarks and a
     zero-first-stage estimate, each turned into options for sweep and prior."""
+    from sensiv.present.text_calibrate import calibration_markdown
     from sensiv.sensitivity import calibrate as calibration
     from sensiv.estimation import iv
     from sensiv.present.writer import to_json
@@ -58,5 +59,5 @@ def calibrate(
     document = result.to_dict()
     if out is not None:
         write_outputs(out, result, {"calibrate.json": to_json(document),
-                           "calibrate.md": calibration.calibration_markdown(result)}, chosen)
+                           "calibrate.md": calibration_markdown(result)}, chosen)
     emit(document, str(result), as_json)

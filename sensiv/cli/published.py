@@ -44,8 +44,9 @@ def published(
 ) -> None:
     """Stress test from a paper's printed numbers: identified set, union of intervals,
     breakdown, weak-IV-robust set and prior interval (one instrument, no data)."""
-    from sensiv.sensitivity.published import published_analysis, published_markdown
+    from sensiv.present.text_published import published_markdown
     from sensiv.present.writer import to_json
+    from sensiv.sensitivity.published import published_analysis
 
     chosen = figure_formats(formats)
 

@@ -384,7 +384,7 @@ def _direct_view(result) -> _DirectView:
                            "this sweep result has no breakdown frontier (it was built without "
                            "sensiv.sensitivity.bounds.analyse); recompute it with sensiv.sensitivity.bounds.sweep")
     if isinstance(result, PublishedResult):
-        from sensiv.sensitivity.published import INSTRUMENT
+        from sensiv.sensitivity.published_covariance import INSTRUMENT
 
         rf = (result.direct_set_rf,) if result.direct_set_rf is not None else None
         return _DirectView((INSTRUMENT,), (result.direct_set,), rf, result.confidence_level,
@@ -398,7 +398,7 @@ def _direct_view(result) -> _DirectView:
 
 
 def _covariance_words(method: str) -> str:
-    from sensiv.sensitivity import published
+    from sensiv.sensitivity import published_covariance as published
 
     return {published.METHOD_BACKED_OUT: "covariance of reduced form and first stage backed "
                                          "out of the printed se (delta method)",

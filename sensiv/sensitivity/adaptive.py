@@ -62,26 +62,28 @@ FAS.
 
 Computation: ``δ*``, the frontier points where one instrument is held exactly valid (which
 give the FAS's ends) and ``B(δ)`` are linear programmes, compiled once with cvxpy Parameters
-and solved with HiGHS; the closed forms above are checked against them.
+and solved with HiGHS (:mod:`sensiv.sensitivity.adaptive_programmes`); the closed forms above
+are checked against them.
 """
 
 from __future__ import annotations
 
-import functools
 import math
 import warnings
 from dataclasses import dataclass, field, replace
-from typing import Literal
 
 import numpy as np
 
-from sensiv.estimation import distributions as dist
-from sensiv.sensitivity.bounds import ReducedForm, Scale
-from sensiv.core.errors import InaccurateSolveWarning, InputError, SolverError
+from sensiv.core.errors import InaccurateSolveWarning, InputError
 from sensiv.core.results import Interval, describe, format_number, json_number
+from sensiv.estimation import distributions as dist
+from sensiv.estimation import iv
+from sensiv.sensitivity.adaptive_programmes import (UNITS, Units, check_reduced_form,
+                                                    closed_form, programmes, scaled_problem,
+                                                    solve_range, solve_relax)
+from sensiv.sensitivity.direct_sets import Scale, scale_from_moments
+from sensiv.sensitivity.robust_set import ReducedForm, reduced_form
 
-Units = Literal["effect", "sd"]
-UNITS: tuple[str, ...] = ("effect", "sd")
 # Relative disagreement between a programme and its closed form above which a warning is given.
 CHECK_TOL = 1e-6
 METHOD = "linear programmes (cvxpy, HiGHS), checked against the closed form"
@@ -185,177 +187,6 @@ class AdaptiveResult:
         return describe(self)
 
 
-# ============================================================================ the programmes
-@dataclass(frozen=True, slots=True)
-class _Programmes:
-    """The linear programmes for ``K`` instruments, in scaled coordinates ``(b, d)``."""
-
-    b: object
-    d: object
-    a: object
-    g: object
-    weights: object
-    radius: object
-    sense: object
-    relax: object
-    relaxed_set: object
-
-
-@functools.lru_cache(maxsize=16)
-def _programmes(k: int) -> _Programmes:
-    import cvxpy as cp
-
-    # Scaled coordinates: β = β₀ + s·b, δ = m·d, and |ρ_k − βπ_k| ≤ δ c_k becomes
-    # |a_k − g_k b| ≤ d with every |a_k|, |g_k| ≤ 1 (see _Scaled).
-    b = cp.Variable()
-    d = cp.Variable()
-    a = cp.Parameter(k)
-    g = cp.Parameter(k)
-    weights = cp.Parameter(k, nonneg=True)
-    radius = cp.Parameter(nonneg=True)
-    sense = cp.Parameter()
-    gap = a - cp.multiply(g, b)
-    # Relaxation programme (frontier along the direction w):
-    #   minimise d   over (b, d)
-    #   subject to   −d·w_k ≤ a_k − g_k b ≤ d·w_k  (every k),   d ≥ 0.
-    # w = 1 gives δ*; w = 1 − e_j holds instrument j exactly valid.
-    relax = cp.Problem(cp.Minimize(d), [gap <= cp.multiply(weights, d),
-                                        -gap <= cp.multiply(weights, d), d >= 0])
-    # Identified-set programme at a common relaxation r:
-    #   maximise σ·b   over b   subject to   −r ≤ a_k − g_k b ≤ r  (every k);  σ = ±1.
-    relaxed_set = cp.Problem(cp.Maximize(sense * b), [gap <= radius, -gap <= radius])
-    assert relax.is_dcp(dpp=True) and relaxed_set.is_dcp(dpp=True)
-    return _Programmes(b, d, a, g, weights, radius, sense, relax, relaxed_set)
-
-
-@dataclass(frozen=True, slots=True)
-class _Scaled:
-    """The problem data in scaled coordinates (all coefficients of order one)."""
-
-    beta0: float
-    s: float
-    m: float
-    a: np.ndarray
-    g: np.ndarray
-
-    def beta(self, b: float) -> float:
-        return self.beta0 + self.s * b
-
-
-def _scales(rf: ReducedForm, units: str, scale: Scale | None) -> np.ndarray:
-    """``c_k`` of the relaxation ``|γ_k| ≤ δ c_k``."""
-    if units == "effect":
-        return np.abs(rf.pi)
-    return scale.outcome_sd / np.asarray(scale.instrument_sd, float)
-
-
-def _scaled(rf: ReducedForm, c: np.ndarray) -> _Scaled:
-    rho, pi = np.asarray(rf.rho, float), np.asarray(rf.pi, float)
-    t = pi / c
-    beta0 = float(np.median(rho / pi))
-    raw = (rho - beta0 * pi) / c
-    m = float(np.max(np.abs(raw)))
-    m = m if m > 0 else 1.0
-    s = m / float(np.max(np.abs(t)))
-    return _Scaled(beta0, s, m, raw / m, t / float(np.max(np.abs(t))))
-
-
-def _solve_relax(progs: _Programmes, weights: np.ndarray) -> tuple[float, float]:
-    """``(d, b)`` at the optimum of the relaxation programme along ``weights``."""
-    from sensiv.partial_id.solver import solve
-
-    progs.weights.value = weights
-    sol = solve(progs.relax, what="least-relaxation programme")
-    if sol.outcome != "optimal":
-        # Always feasible and bounded for the weights used here (at most one zero weight).
-        raise SolverError(f"the least-relaxation programme was reported {sol.outcome}")
-    return max(float(progs.d.value), 0.0) + 0.0, float(progs.b.value)  # + 0.0: no "-0.0"
-
-
-def _solve_range(progs: _Programmes, radius: float) -> tuple[float, float] | None:
-    """Ends of ``{b : |a − g b| ≤ radius}`` in scaled units, or ``None`` when it is empty."""
-    from sensiv.partial_id.solver import solve
-
-    progs.radius.value = radius
-    ends = []
-    for sense in (-1.0, 1.0):
-        progs.sense.value = sense
-        sol = solve(progs.relaxed_set, what="identified-set programme")
-        if sol.outcome == "infeasible":
-            return None
-        if sol.outcome == "unbounded":  # impossible with every π_k ≠ 0; kept for honesty
-            ends.append(sense * math.inf)
-            continue
-        ends.append(float(progs.b.value))
-    return ends[0], ends[1]
-
-
-# ============================================================================ validation
-def _check(rf: ReducedForm, units: str, scale: Scale | None,
-           instruments) -> tuple[tuple[str, ...], np.ndarray]:
-    if units not in UNITS:
-        raise InputError(f"units '{units}' is not a relaxation unit; choose one of "
-                         f"{', '.join(UNITS)}")
-    rho, pi = np.atleast_1d(np.asarray(rf.rho, float)), np.atleast_1d(np.asarray(rf.pi, float))
-    k = rho.size
-    if pi.size != k or k == 0:
-        raise InputError(f"the reduced form has {rho.size} coefficient(s) but the first stage "
-                         f"{pi.size}; give one of each per instrument")
-    if units == "sd":
-        if scale is None or len(scale.instrument_sd) != k:
-            raise InputError("units 'sd' need the outcome and instrument SDs: pass scale= "
-                             "(a sensiv.sensitivity.bounds.Scale for the same instruments)")
-    if instruments is None:
-        instruments = scale.instruments if scale is not None else tuple(
-            f"z{j + 1}" for j in range(k))
-    instruments = tuple(instruments)
-    if len(instruments) != k:
-        raise InputError(f"{len(instruments)} instrument name(s) for {k} coefficient(s)")
-    if not (np.all(np.isfinite(rho)) and np.all(np.isfinite(pi))):
-        raise InputError("the reduced-form and first-stage coefficients must be finite")
-    zero = [name for name, p in zip(instruments, pi) if p == 0.0]
-    if zero:
-        raise InputError(f"instrument(s) {', '.join(map(repr, zero))} have a first-stage "
-                         "coefficient of exactly zero given the other instruments, so they "
-                         "say nothing about the effect; drop them")
-    c = _scales(rf, units, scale)
-    if not np.all(np.isfinite(c) & (c > 0)):
-        raise InputError("the relaxation scales must be positive and finite; check that the "
-                         "outcome and every instrument vary")
-    return instruments, c
-
-
-# ============================================================================ closed forms
-def closed_form(rf: ReducedForm, *, units: Units = "effect",
-                scale: Scale | None = None) -> tuple[Interval, float]:
-    r"""``(FAS, δ*)`` from the closed forms in the module docstring.
-
-    Examples
-    --------
-    >>> from sensiv.sensitivity.bounds import ReducedForm
-    >>> rf = ReducedForm(np.array([1.0, 3.0]), np.array([1.0, 1.0]), np.eye(2), np.zeros((2, 2)),
-    ...                  np.eye(2), 5.99)
-    >>> fas, delta = closed_form(rf)
-    >>> fas.to_list(), delta
-    ([1.0, 3.0], 1.0)
-    """
-    _, c = _check(rf, units, scale, None)
-    single = np.asarray(rf.rho, float) / np.asarray(rf.pi, float)
-    h = c / np.abs(np.asarray(rf.pi, float))
-    gaps = (single[:, None] - single[None, :]) / (h[:, None] + h[None, :])
-    return Interval(single.min(), single.max()), float(max(gaps.max(), 0.0))
-
-
-def closed_form_relaxed_set(rf: ReducedForm, relaxation: float, *, units: Units = "effect",
-                            scale: Scale | None = None) -> Interval | None:
-    """``B(δ·1) = [max_k (β_k − δh_k), min_k (β_k + δh_k)]``, or ``None`` when empty."""
-    _, c = _check(rf, units, scale, None)
-    single = np.asarray(rf.rho, float) / np.asarray(rf.pi, float)
-    h = c / np.abs(np.asarray(rf.pi, float))
-    low, high = float(np.max(single - relaxation * h)), float(np.min(single + relaxation * h))
-    return Interval(low, high) if low <= high else None
-
-
 # ============================================================================ public API
 def relaxed_set(rf: ReducedForm, relaxation: float, *, units: Units = "effect",
                 scale: Scale | None = None) -> Interval | None:
@@ -367,11 +198,11 @@ def relaxed_set(rf: ReducedForm, relaxation: float, *, units: Units = "effect",
     if not (isinstance(relaxation, (int, float)) and math.isfinite(relaxation)
             and relaxation >= 0):
         raise InputError(f"relaxation {relaxation!r} must be a finite number ≥ 0")
-    _, c = _check(rf, units, scale, None)
-    sc = _scaled(rf, c)
-    progs = _programmes(len(c))
+    _, c = check_reduced_form(rf, units, scale, None)
+    sc = scaled_problem(rf, c)
+    progs = programmes(len(c))
     progs.a.value, progs.g.value = sc.a, sc.g
-    ends = _solve_range(progs, relaxation / sc.m)
+    ends = solve_range(progs, relaxation / sc.m)
     if ends is None:
         return None
     return Interval(sc.beta(ends[0]), sc.beta(ends[1]))
@@ -384,14 +215,14 @@ def adaptive_set(rf: ReducedForm, *, instruments=None, units: Units = "effect",
 
     Parameters
     ----------
-    rf : sensiv.sensitivity.bounds.ReducedForm
+    rf : sensiv.sensitivity.robust_set.ReducedForm
         ``rho`` and ``pi`` (one treatment) with their joint covariance, e.g.
-        ``bounds.reduced_form(pieces, sums, result)``.
+        ``robust_set.reduced_form(pieces, sums, result)``.
     instruments : sequence of str, optional
         Names for the output (default: ``scale.instruments`` or ``z1..zK``).
     units : {"effect", "sd"}
         Scale of the relaxation (module docstring); ``"sd"`` needs ``scale``.
-    scale : sensiv.sensitivity.bounds.Scale, optional
+    scale : sensiv.sensitivity.direct_sets.Scale, optional
     confidence_level : float, optional
         Adds the Bonferroni outer confidence set of :class:`AdaptiveResult`.
 
@@ -401,27 +232,27 @@ def adaptive_set(rf: ReducedForm, *, instruments=None, units: Units = "effect",
 
     Examples
     --------
-    >>> from sensiv.sensitivity.bounds import ReducedForm
+    >>> from sensiv.sensitivity.robust_set import ReducedForm
     >>> rf = ReducedForm(np.array([1.0, 3.0]), np.array([1.0, 1.0]), np.eye(2),
     ...                  np.zeros((2, 2)), np.eye(2) * 0.01, 5.99)
     >>> res = adaptive_set(rf)
     >>> res.adaptive_set.to_list(), round(res.min_relaxation, 9)
     ([1.0, 3.0], 1.0)
     """
-    names, c = _check(rf, units, scale, instruments)
+    names, c = check_reduced_form(rf, units, scale, instruments)
     if confidence_level is not None and not 0.0 < confidence_level < 1.0:
         raise InputError(f"confidence level {confidence_level} is outside (0, 1)")
     k = len(c)
-    sc = _scaled(rf, c)
-    progs = _programmes(k)
+    sc = scaled_problem(rf, c)
+    progs = programmes(k)
     progs.a.value, progs.g.value = sc.a, sc.g
 
-    d_star, b_star = _solve_relax(progs, np.ones(k))  # b_star: the one point of B(δ*·1)
+    d_star, b_star = solve_relax(progs, np.ones(k))  # b_star: the one point of B(δ*·1)
     frontier = []
     for j in range(k):
         w = np.ones(k)
         w[j] = 0.0
-        d_j, b_j = _solve_relax(progs, w)
+        d_j, b_j = solve_relax(progs, w)
         frontier.append((sc.beta(b_j), sc.m * d_j))
     ends = [b for b, _ in frontier]
     fas = Interval(min(ends), max(ends))
@@ -436,28 +267,10 @@ def adaptive_set(rf: ReducedForm, *, instruments=None, units: Units = "effect",
                    f"{cf_fas}, smallest relaxation {delta:.10g} vs {cf_delta:.10g}")
         notes.append(message)
         warnings.warn(message, InaccurateSolveWarning, stacklevel=2)
-
-    rho, pi = np.asarray(rf.rho, float), np.asarray(rf.pi, float)
-    single = rho / pi
-    var = (np.diag(rf.v_rr) - 2.0 * single * np.diag(rf.v_rp)
-           + single**2 * np.diag(rf.v_pp)) / pi**2
-    se = np.sqrt(np.maximum(var, 0.0))
-    pi_se = np.sqrt(np.maximum(np.diag(rf.v_pp), 0.0))
-    singles = tuple(SingleInstrument(n, float(single[j]), float(se[j]), float(pi[j]),
-                                     float(pi_se[j]), frontier[j][1])
-                    for j, n in enumerate(names))
-    conf = None
-    if confidence_level is not None:
-        z = dist.normal_quantile(1.0 - (1.0 - confidence_level) / (2.0 * k))
-        weak = [n for n, p, ps in zip(names, pi, pi_se) if not abs(p) > z * ps]
-        if weak:
-            conf = Interval(-math.inf, math.inf)
-            notes.append(
-                f"the own first stage of {', '.join(weak)} (given the other instruments) is "
-                f"not significant at the Bonferroni level, so its single-instrument estimate "
-                "is unreliable and the confidence set for the adaptive set is unbounded")
-        else:
-            conf = Interval(float(np.min(single - z * se)), float(np.max(single + z * se)))
+    singles, conf, weak_note = single_instruments(rf, names, [r for _, r in frontier],
+                                                  confidence_level)
+    if weak_note is not None:
+        notes.append(weak_note)
     if k == 1:
         notes.append("one instrument: nothing can be falsified, so the adaptive set is the "
                      "2SLS point and the smallest relaxation is 0")
@@ -466,6 +279,40 @@ def adaptive_set(rf: ReducedForm, *, instruments=None, units: Units = "effect",
         least_relaxed_point=sc.beta(b_star), units=units,
         instruments=names, singles=singles, confidence_set=conf,
         confidence_level=confidence_level, notes=tuple(notes))
+
+
+def single_instruments(rf: ReducedForm, names: tuple[str, ...], relaxations: list[float],
+                       confidence_level: float | None
+                       ) -> tuple[tuple[SingleInstrument, ...], Interval | None, str | None]:
+    r"""Each instrument's own estimand with its delta-method se, and the Bonferroni outer set.
+
+    ``relaxations[k]`` is the frontier relaxation with instrument ``k`` held exactly valid.  The
+    outer set is ``[min_k (β̂_k − z se_k), max_k (β̂_k + z se_k)]`` with
+    ``z = Φ⁻¹(1 − α/(2K))`` (``None`` without a level).  The third element is a note saying
+    why the set is unbounded when some own first stage is not significant (else ``None``).
+    """
+    k = len(names)
+    rho, pi = np.asarray(rf.rho, float), np.asarray(rf.pi, float)
+    single = rho / pi
+    var = (np.diag(rf.v_rr) - 2.0 * single * np.diag(rf.v_rp)
+           + single**2 * np.diag(rf.v_pp)) / pi**2
+    se = np.sqrt(np.maximum(var, 0.0))
+    pi_se = np.sqrt(np.maximum(np.diag(rf.v_pp), 0.0))
+    singles = tuple(SingleInstrument(n, float(single[j]), float(se[j]), float(pi[j]),
+                                     float(pi_se[j]), relaxations[j])
+                    for j, n in enumerate(names))
+    conf, note = None, None
+    if confidence_level is not None:
+        z = dist.normal_quantile(1.0 - (1.0 - confidence_level) / (2.0 * k))
+        weak = [n for n, p, ps in zip(names, pi, pi_se) if not abs(p) > z * ps]
+        if weak:
+            conf = Interval(-math.inf, math.inf)
+            note = (f"the own first stage of {', '.join(weak)} (given the other instruments) is "
+                    f"not significant at the Bonferroni level, so its single-instrument estimate "
+                    "is unreliable and the confidence set for the adaptive set is unbounded")
+        else:
+            conf = Interval(float(np.min(single - z * se)), float(np.max(single + z * se)))
+    return singles, conf, note
 
 
 def adaptive_from_data(data, spec=None, *, units: Units = "effect", se: str | None = None,
@@ -483,10 +330,6 @@ def adaptive_from_data(data, spec=None, *, units: Units = "effect", se: str | No
     -------
     AdaptiveResult
     """
-    from sensiv.sensitivity import bounds
-    from sensiv.estimation import iv
-    from sensiv.sensitivity.calibrate import scale_from_moments
-
     source = iv.as_source(data, spec, chunk_rows=chunk_rows)
     treatments = source.layout.treatments
     if len(treatments) != 1:
@@ -498,7 +341,7 @@ def adaptive_from_data(data, spec=None, *, units: Units = "effect", se: str | No
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se or iv.default_se(source.spec), confidence_level=confidence_level,
         small=small)
-    rf = bounds.reduced_form(pieces, sums, result)
+    rf = reduced_form(pieces, sums, result)
     scale = scale_from_moments(pieces.moments, pieces.design.outcome,
                                pieces.design.instruments, rf.rho)
     out = adaptive_set(rf, instruments=pieces.design.instruments, units=units, scale=scale,
@@ -509,30 +352,3 @@ def adaptive_from_data(data, spec=None, *, units: Units = "effect", se: str | No
             f"the 2SLS estimate {format_number(estimate)} lies outside the adaptive set: with "
             "correlated instruments 2SLS can weight a single-instrument estimate negatively",))
     return out
-
-
-# ============================================================================ text
-def adaptive_text(res: AdaptiveResult) -> str:
-    """Plain-text summary (formatting only)."""
-    unit = "effect units" if res.units == "effect" else "SD units"
-    lines = [
-        f"Falsification adaptive set (Masten & Poirier 2021): {res.adaptive_set}",
-        f"Smallest common relaxation that reconciles the instruments: "
-        f"{format_number(res.min_relaxation)} ({unit}); the only effect consistent with it: "
-        f"{format_number(res.least_relaxed_point)}",
-        f"Relaxation: {res.relaxation}",
-    ]
-    if res.confidence_set is not None:
-        lines.append(f"{100 * res.confidence_level:g}% Bonferroni confidence set for the "
-                     f"adaptive set: {res.confidence_set}")
-    lines.append("Single-instrument estimates (the other instruments as controls):")
-    for s in res.singles:
-        lines.append(f"  {s.instrument}: {format_number(s.estimate)} (se {format_number(s.se)}"
-                     f"), first stage {format_number(s.first_stage)}; if it alone is valid "
-                     f"the others need a relaxation of {format_number(s.relaxation_if_valid)}")
-    lines.append(f"Method: {res.method}")
-    for note in res.notes:
-        lines += ["", "Note: " + note]
-    lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
-    lines += ["", CAUTION]
-    return "\n".join(lines)

@@ -16,25 +16,23 @@ The interval is ``[β̂ − q_S(1 − α/2), β̂ − q_S(α/2)]``.
 
 from __future__ import annotations
 
-import json
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 
-from sensiv.estimation import iv
-from sensiv.sensitivity.bounds import CAUTION, Core, build_core, focus_block, focus_index
 from sensiv.core.errors import InputError
-from sensiv.estimation.inference import Progress
 from sensiv.core.results import Interval, describe, json_number
+from sensiv.estimation import iv
+from sensiv.estimation.inference import Progress
+from sensiv.sensitivity.bounds import CAUTION
+from sensiv.sensitivity.linear_core import Core, build_core, focus_block, focus_index
+from sensiv.sensitivity.prior_laws import Prior, parse_prior, read_prior_file
 
-PRIOR_KINDS = ("normal", "uniform", "triangular")
 MC_DRAWS = 200_000
 MC_BATCHES = 20
 QUANTILE_SPAN = 12.0     # search quantiles within this many SDs of the mean
-PSD_TOL = 1e-12          # relative tolerance for negative eigenvalues of a prior covariance
 # The prior map: a PRIOR_MAP_POINTS × PRIOR_MAP_POINTS grid of normal priors.  Means span the
 # given prior mean, zero and the mean that centres the interval on the threshold, widened by
 # PRIOR_MAP_MARGIN of that span (at least PRIOR_MAP_SPREAD prior SDs) on each side; SDs run
@@ -44,120 +42,6 @@ PRIOR_MAP_POINTS = 41
 PRIOR_MAP_MARGIN = 0.5
 PRIOR_MAP_SPREAD = 2.0
 PRIOR_MAP_SD_REACH = 1.5
-
-
-@dataclass(frozen=True, slots=True)
-class Prior:
-    """Prior law of one instrument's direct effect (outcome units)."""
-
-    kind: str
-    params: tuple[float, ...]
-
-    def mean(self) -> float:
-        if self.kind == "normal":
-            return self.params[0]
-        return sum(self.params) / len(self.params)
-
-    def variance(self) -> float:
-        if self.kind == "normal":
-            return self.params[1] ** 2
-        if self.kind == "uniform":
-            lo, hi = self.params
-            return (hi - lo) ** 2 / 12.0
-        a, c, b = self.params
-        return (a * a + b * b + c * c - a * b - a * c - b * c) / 18.0
-
-    def sample(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        if self.kind == "normal":
-            return rng.normal(self.params[0], self.params[1], size)
-        if self.kind == "uniform":
-            return rng.uniform(self.params[0], self.params[1], size)
-        a, c, b = self.params
-        return rng.triangular(a, c, b, size)
-
-    def density(self, g: np.ndarray | float) -> np.ndarray:
-        g = np.asarray(g, float)
-        if self.kind == "uniform":
-            lo, hi = self.params
-            return np.where((g >= lo) & (g <= hi), 1.0 / (hi - lo), 0.0)
-        a, c, b = self.params
-        up = np.where(c > a, 2 * (g - a) / ((b - a) * max(c - a, 1e-300)), 0.0)
-        down = np.where(b > c, 2 * (b - g) / ((b - a) * max(b - c, 1e-300)), 0.0)
-        return np.where((g >= a) & (g <= b), np.where(g <= c, up, down), 0.0)
-
-    def text(self) -> str:
-        return f"{self.kind}:" + ":".join(f"{p:g}" for p in self.params)
-
-
-def parse_prior(text: str) -> Prior:
-    """Parse ``normal:MEAN:SD``, ``uniform:LOW:HIGH`` or ``triangular:LOW:MODE:HIGH``.
-
-    Examples
-    --------
-    >>> parse_prior("normal:0:0.01")
-    Prior(kind='normal', params=(0.0, 0.01))
-    """
-    kind, _, rest = text.strip().partition(":")
-    if kind not in PRIOR_KINDS:
-        raise InputError(f"--prior '{text}': unknown law '{kind}'; use normal:MEAN:SD, "
-                         "uniform:LOW:HIGH or triangular:LOW:MODE:HIGH")
-    try:
-        params = tuple(float(p) for p in rest.split(":")) if rest else ()
-    except ValueError as exc:
-        raise InputError(f"--prior '{text}': parameters must be numbers") from exc
-    expected = {"normal": 2, "uniform": 2, "triangular": 3}[kind]
-    if len(params) != expected or not all(math.isfinite(p) for p in params):
-        raise InputError(f"--prior '{text}': {kind} takes {expected} finite numbers")
-    if kind == "normal" and not params[1] > 0:
-        raise InputError(f"--prior '{text}': the SD must be positive (got {params[1]:g}); for a "
-                         "known direct effect use --direct VALUE:VALUE with `sensiv sweep`")
-    if kind == "uniform" and not params[0] < params[1]:
-        raise InputError(f"--prior '{text}': LOW must be below HIGH")
-    if kind == "triangular" and not (params[0] <= params[1] <= params[2]
-                                     and params[0] < params[2]):
-        raise InputError(f"--prior '{text}': need LOW <= MODE <= HIGH with LOW < HIGH")
-    return Prior(kind, params)
-
-
-def read_prior_file(path, instruments: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
-    """Mean vector and covariance of a multivariate normal prior from TOML or JSON.
-
-    The file holds ``mean`` (one number per instrument) and ``cov`` (a square matrix), e.g. in
-    TOML: ``mean = [0.0, 0.0]`` and ``cov = [[1e-4, 0.0], [0.0, 4e-4]]``.
-    """
-    p = Path(path)
-    if not p.is_file():
-        raise InputError(f"prior file '{path}' does not exist; check the path")
-    try:
-        if p.suffix.lower() == ".toml":
-            import tomllib
-
-            content = tomllib.loads(p.read_text(encoding="utf-8"))
-        else:
-            content = json.loads(p.read_text(encoding="utf-8"))
-    except (ValueError, UnicodeDecodeError) as exc:
-        raise InputError(f"prior file '{path}' could not be parsed: {exc}") from exc
-    if not isinstance(content, dict) or "mean" not in content or "cov" not in content:
-        raise InputError(f"prior file '{path}' needs keys 'mean' (one value per instrument) and "
-                         "'cov' (a square matrix)")
-    k = len(instruments)
-    try:
-        mean = np.asarray(content["mean"], float).ravel()
-        cov = np.atleast_2d(np.asarray(content["cov"], float))
-    except (TypeError, ValueError) as exc:
-        raise InputError(f"prior file '{path}': 'mean' and 'cov' must be numbers") from exc
-    if mean.size != k or cov.shape != (k, k):
-        raise InputError(f"prior file '{path}': need a mean of length {k} and a {k}x{k} "
-                         f"covariance for instruments {', '.join(instruments)}")
-    if not (np.all(np.isfinite(mean)) and np.all(np.isfinite(cov))):
-        raise InputError(f"prior file '{path}': values must be finite")
-    if not np.allclose(cov, cov.T, rtol=1e-10, atol=0):
-        raise InputError(f"prior file '{path}': the covariance is not symmetric")
-    eig = np.linalg.eigvalsh(cov)
-    if eig.min() < -PSD_TOL * max(1.0, abs(eig).max()):
-        raise InputError(f"prior file '{path}': the covariance is not positive semidefinite "
-                         f"(smallest eigenvalue {eig.min():.3g})")
-    return mean, cov
 
 
 @dataclass(frozen=True, slots=True)
@@ -446,4 +330,3 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
         estimate=core.estimate, se=core.se, interval=interval, center=center, method=method,
         mc_error=mc_error, priors=texts, draws=used_draws, seed=used_seed, fit=result,
         notes=result.notes, prior_map=pmap)
-

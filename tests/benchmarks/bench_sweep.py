@@ -73,6 +73,8 @@ def main(argv=None) -> int:
     from linearmodels.iv import IV2SLS
 
     from sensiv.sensitivity import bounds
+    from sensiv.sensitivity.direct_sets import parse_range
+    from sensiv.sensitivity.linear_core import build_core, focus_block
     from sensiv.estimation import iv
     from sensiv.data import from_frame
 
@@ -109,8 +111,8 @@ def main(argv=None) -> int:
     src = from_frame(frame, spec)
     fitted, pieces, sums = quiet(lambda: iv.fit_with_pieces(
         src, se="robust", confidence_level=0.95, small=False,
-        extra_blocks=lambda p: [bounds.focus_block(p, 0)]))
-    core = bounds.build_core(pieces, sums, fitted, 0)
+        extra_blocks=lambda p: [focus_block(p, 0)]))
+    core = build_core(pieces, sums, fitted, 0)
     for g, ref in zip(REFIT_GAMMAS, refits):
         b = float(core.beta(np.array([g]))[0])
         s = float(np.sqrt(core.variance(np.array([g]))[0]))
@@ -120,7 +122,7 @@ def main(argv=None) -> int:
 
     def closed_forms(points):
         return quiet(lambda: bounds.analyse(fitted, pieces, sums, 0,
-                                            ranges=[bounds.parse_range(DIRECT)], points=points))
+                                            ranges=[parse_range(DIRECT)], points=points))
 
     t_few, _ = best_time(lambda: closed_forms(CURVE_POINTS), args.repeats + 2)
     t_lots, _ = best_time(lambda: closed_forms(MANY_POINTS), args.repeats + 2)

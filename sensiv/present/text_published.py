@@ -1,0 +1,117 @@
+"""Plain-text and Markdown summaries of a published-numbers stress test (formatting only)."""
+
+from __future__ import annotations
+
+from sensiv.core.results import format_number
+from sensiv.present.tables import markdown_table
+from sensiv.sensitivity.bounds import CAUTION
+from sensiv.sensitivity.published import PublishedResult
+from sensiv.sensitivity.published_inputs import Reported
+
+
+def reported_line(rep: Reported) -> str:
+    """The printed numbers in one line: estimate, first stage, reduced form, n."""
+    parts = [f"estimate {format_number(rep.estimate)} (se {format_number(rep.se)})"]
+    fs = f"first stage {format_number(rep.first_stage)}"
+    extra = []
+    if rep.first_stage_se is not None:
+        extra.append(f"se {format_number(rep.first_stage_se)}")
+    if rep.first_stage_f is not None:
+        extra.append(f"F {format_number(rep.first_stage_f)}")
+    parts.append(fs + f" ({', '.join(extra)})")
+    if rep.reduced_form is not None or rep.reduced_form_se is not None:
+        rf = "n/a" if rep.reduced_form is None else format_number(rep.reduced_form)
+        rse = "" if rep.reduced_form_se is None else f" (se {format_number(rep.reduced_form_se)})"
+        parts.append(f"reduced form {rf}{rse}")
+    if rep.n is not None:
+        parts.append(f"n = {rep.n}")
+    return "; ".join(parts)
+
+
+def breakdown_words(res: PublishedResult) -> list[str]:
+    """The breakdown scale and the breakdown direct effects in words."""
+    b = res.breakdown
+    lines = ["Breakdown: " + (
+        "the conclusion holds for every scaling of the range up to 1000x" if b.scale is None
+        else "no conclusion to break" if b.scale == 0 else
+        f"the conclusion holds until the range is scaled by {format_number(b.scale)}"
+        + (" (it survives the assumed range)" if b.scale > 1 else
+           " (it does NOT survive the assumed range)"))]
+    lo, hi = b.direct_lower[0], b.direct_upper[0]
+    lo_t = "none" if lo is None else format_number(lo)
+    hi_t = "none" if hi is None else format_number(hi)
+    lines.append(f"  the interval reaches {b.threshold:g} at a direct effect of {lo_t} (below "
+                 f"zero) or {hi_t} (above zero)")
+    return lines
+
+
+def ar_text(res: PublishedResult) -> str:
+    """The weak-IV-robust set as a union of intervals (``empty`` when it is)."""
+    return " U ".join(str(p) for p in res.ar_set) if res.ar_set else "empty"
+
+
+def summary_lines(res: PublishedResult) -> list[str]:
+    """The plain-text summary, line by line (what ``str(result)`` prints)."""
+    pct = f"{100 * res.confidence_level:g}%"
+    rf = f" | {res.direct_set_rf} (share of reduced form)" if res.direct_set_rf else ""
+    lines = [
+        "Direct-effect stress test from reported numbers only (one instrument, no data)",
+        "Reported: " + reported_line(res.reported),
+        f"Covariance of reduced form and first stage: {res.covariance.method}",
+        "",
+        f"Assumed direct effect of the instrument on the outcome: {res.direct_set} (outcome "
+        f"units){rf}",
+        "",
+        f"Identified set (no sampling error):    {res.identified_set}",
+        f"Union of {pct} intervals over the set: {res.union_ci}",
+        f"Weak-instrument-robust {pct} set:      {ar_text(res)} ({res.ar_method})",
+        "",
+        f"Conclusion examined: {res.breakdown.conclusion}",
+        *breakdown_words(res),
+    ]
+    if res.prior is not None:
+        pr = res.prior
+        lines += ["", f"{pct} prior interval (direct effect ~ {pr.law}): {pr.interval}  "
+                      f"(center {format_number(pr.center)}, method: {pr.method})"]
+    for note in res.notes:
+        lines += ["", "Warning: " + note]
+    lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
+    lines += ["", CAUTION]
+    return lines
+
+
+def published_text(res: PublishedResult) -> str:
+    """The plain-text report of a stress test from printed numbers (``str(result)``)."""
+    return "\n".join(summary_lines(res))
+
+
+def published_markdown(res: PublishedResult) -> str:
+    """Markdown report of a published stress test."""
+    pct = f"{100 * res.confidence_level:g}%"
+    b = res.breakdown
+    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale, 6)
+    rows = [
+        ["reported estimate", f"{format_number(res.estimate, 6)} (se "
+                              f"{format_number(res.se, 6)})"],
+        ["assumed direct effect (outcome units)", str(res.direct_set)],
+        ["assumed direct effect (share of reduced form)",
+         str(res.direct_set_rf) if res.direct_set_rf else "n/a"],
+        ["identified set", str(res.identified_set)],
+        [f"union of {pct} intervals", str(res.union_ci)],
+        [f"weak-IV-robust {pct} set", ar_text(res)],
+        ["conclusion examined", b.conclusion],
+        ["breakdown scale of the range", scale],
+        ["breakdown direct effect (below / above zero)",
+         f"{'none' if b.direct_lower[0] is None else format_number(b.direct_lower[0], 6)} / "
+         f"{'none' if b.direct_upper[0] is None else format_number(b.direct_upper[0], 6)}"],
+    ]
+    if res.prior is not None:
+        rows.append([f"{pct} prior interval ({res.prior.law}, {res.prior.method})",
+                     str(res.prior.interval)])
+    notes = "".join(f"\n**Warning:** {n}\n" for n in res.notes)
+    return ("# Direct-effect stress test from reported numbers\n\n"
+            f"Reported: {reported_line(res.reported)}.\n\n"
+            f"**Approximation:** {res.approximation}.\n\n"
+            f"{markdown_table(['quantity', 'value'], rows)}{notes}\n"
+            "## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
+            + f"\n\n> {CAUTION}\n")

@@ -1,0 +1,188 @@
+r"""The weak-instrument-robust sensitivity set: Anderson–Rubin inversion under a direct effect.
+
+.. math::
+
+    \{β_0 : \min_{γ∈Γ} (ρ - β_0π - γ)' V(β_0)^{-1} (ρ - β_0π - γ) \le χ^2\},
+
+with ``ρ``, ``π`` the reduced-form and first-stage coefficients on the instruments
+(:class:`ReducedForm`).  The set may be unbounded or a union of intervals, and is reported as
+such: exactly with one instrument, by a grid refined with root finding with several.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from sensiv.core.results import Interval
+from sensiv.estimation import distributions as dist
+from sensiv.estimation import first_stage, iv, linalg
+from sensiv.estimation.moments import ScoreSums
+from sensiv.partial_id.solver import solve
+from sensiv.sensitivity.direct_sets import DirectSet
+from sensiv.sensitivity.union import merge_intervals
+
+# Grids that locate the weak-IV-robust set with several instruments (then refined by roots):
+AR_GRID = 401               # box: bounded least squares per point
+AR_GRID_POLYTOPE = 101      # polytope: one quadratic programme per point
+
+
+@dataclass(frozen=True, slots=True)
+class ReducedForm:
+    """Reduced-form and first-stage coefficients on the instruments and their joint covariance
+    (one treatment): ``rho`` for the outcome, ``pi`` for the treatment."""
+
+    rho: np.ndarray
+    pi: np.ndarray
+    v_rr: np.ndarray
+    v_rp: np.ndarray
+    v_pp: np.ndarray
+    critical: float
+
+
+def reduced_form(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit) -> ReducedForm:
+    """Reduced form and first stage of one treatment on the instruments, with their joint
+    covariance (the fit's kind) and the Anderson–Rubin critical value at the fit's level."""
+    meats = sums.meats if sums is not None else {}
+    n_clusters = sums.n_clusters if sums is not None else None
+    joint = first_stage.first_stage_covariance(pieces, meats.get("first"), result.se_type, result.small,
+                                      n_clusters)
+    d = pieces.design
+    zt = pieces.z_partialled
+    coef = linalg.sym_inv_psd(zt.T @ pieces.gram @ zt) @ (
+        zt.T @ pieces.gram @ np.column_stack([d.x, d.y]))
+    k_z = zt.shape[1]
+    level = result.confidence_level
+    if result.small:
+        critical = k_z * dist.f_quantile(level, k_z, pieces.n - d.instrument_set.shape[1])
+    else:
+        critical = dist.chi2_quantile(level, k_z)
+    e = coef.shape[1] - 1  # index of the outcome equation
+    return ReducedForm(coef[:, e], coef[:, 0], joint[e, :, e, :], joint[e, :, 0, :],
+                       joint[0, :, 0, :], critical)
+
+
+def _ar_minimiser(rf: ReducedForm, dset: DirectSet):
+    """``β₀ ↦ min_{γ∈Γ} (ρ − β₀π − γ)' V(β₀)⁻¹ (ρ − β₀π − γ)``.
+
+    A box uses bounded least squares (BVLS, exact); a general polytope a quadratic programme
+    built once with cvxpy Parameters and re-solved for each ``β₀``.
+    """
+    k = len(rf.rho)
+
+    def whitened(beta0: float) -> tuple[np.ndarray, np.ndarray]:
+        a = rf.rho - beta0 * rf.pi
+        v = rf.v_rr - beta0 * (rf.v_rp + rf.v_rp.T) + beta0**2 * rf.v_pp
+        whiten = linalg.scaled_cholesky(v).whiten(np.eye(k))
+        return whiten, whiten @ a
+
+    if dset.box is not None:
+        from scipy.optimize import lsq_linear
+
+        lows = np.array([b.low for b in dset.box])
+        highs = np.array([b.high for b in dset.box])
+        free = lows < highs
+
+        def box_min(beta0: float) -> float:
+            whiten, target = whitened(beta0)
+            r0 = target - whiten[:, ~free] @ lows[~free]
+            if not free.any():
+                return float(r0 @ r0)
+            res = lsq_linear(whiten[:, free], r0, bounds=(lows[free], highs[free]),
+                             method="bvls", tol=1e-14)
+            r = r0 - whiten[:, free] @ res.x
+            return float(r @ r)
+
+        return box_min
+
+    import cvxpy as cp
+
+    # Programme: minimise ‖t − P γ‖² over γ subject to A γ ≤ b, with P (whitening of V(β₀))
+    # and t (whitened ρ − β₀π) as parameters, so the problem is compiled once.
+    gamma = cp.Variable(k)
+    p_par = cp.Parameter((k, k))
+    t_par = cp.Parameter(k)
+    problem = cp.Problem(cp.Minimize(cp.sum_squares(t_par - p_par @ gamma)),
+                         [dset.constraints @ gamma <= dset.rhs])
+    assert problem.is_dcp(dpp=True)
+
+    def polytope_min(beta0: float) -> float:
+        p_par.value, t_par.value = whitened(beta0)
+        return solve(problem, solver="CLARABEL", what="weak-IV-robust programme").value
+
+    return polytope_min
+
+
+def robust_set(rf: ReducedForm, dset: DirectSet) -> tuple[tuple[Interval, ...], str]:
+    """``{β₀ : min_{γ∈Γ} AR(β₀, γ) ≤ χ²}`` for one treatment; returns pieces and the method.
+
+    One instrument, Γ = [l, h]: the set is exactly the union of the AR sets at ``γ = l`` and
+    ``γ = h`` and of ``{β₀ : l ≤ ρ − β₀π ≤ h}`` (the minimum over γ is the squared distance of
+    ``ρ − β₀π`` to ``[l, h]``).  Several instruments: the minimum over Γ is a small quadratic
+    programme per ``β₀``; the set's boundary is located on a grid and refined by root finding.
+    """
+    if len(rf.rho) == 1:
+        lo = float(dset.vertices.min())
+        hi = float(dset.vertices.max())
+        pieces = []
+        for g in (lo, hi):
+            pieces.extend(linalg.quadratic_ratio_set(rf.rho - g, rf.pi, rf.v_rr, rf.v_rp,
+                                                     rf.v_pp, rf.critical))
+        pi, rho = float(rf.pi[0]), float(rf.rho[0])
+        if pi != 0.0:
+            ends = sorted(((rho - hi) / pi, (rho - lo) / pi))
+            pieces.append(Interval(ends[0], ends[1]))
+        elif lo <= rho <= hi:
+            pieces.append(Interval(-math.inf, math.inf))
+        return merge_intervals(pieces), "exact"
+    return _robust_set_numeric(rf, dset), "grid with root refinement"
+
+
+def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...]:
+    from scipy.optimize import brentq
+
+    minimum = _ar_minimiser(rf, dset)
+
+    def g(b: float) -> float:
+        return minimum(b) - rf.critical
+
+    # Exact pieces at the vertices locate the region; the set is unbounded exactly when the
+    # first-stage Wald statistic π'V_ππ⁻¹π is at most the critical value.
+    vertex_pieces = []
+    for v in dset.vertices:
+        vertex_pieces.extend(linalg.quadratic_ratio_set(rf.rho - v, rf.pi, rf.v_rr, rf.v_rp,
+                                                        rf.v_pp, rf.critical))
+    unbounded = linalg.wald_statistic(rf.pi, rf.v_pp) <= rf.critical
+    finite = [e for p in vertex_pieces for e in (p.low, p.high) if math.isfinite(e)]
+    center = float(rf.rho @ rf.pi / (rf.pi @ rf.pi))
+    finite.append(center)
+    lo, hi = min(finite), max(finite)
+    width = max(hi - lo, 1e-8 * max(1.0, abs(center)))
+    lo, hi = lo - 2 * width, hi + 2 * width
+    while not unbounded and (g(lo) <= 0 or g(hi) <= 0):
+        lo, hi = lo - 2 * (hi - lo), hi + 2 * (hi - lo)
+    grid = np.linspace(lo, hi, AR_GRID if dset.box is not None else AR_GRID_POLYTOPE)
+    values = np.array([g(b) for b in grid])
+    inside = values <= 0
+    edges = []
+    for i in range(len(grid) - 1):
+        if inside[i] != inside[i + 1]:
+            edges.append(brentq(g, grid[i], grid[i + 1], xtol=1e-14 * max(1.0, abs(grid[i]))))
+    pieces = []
+    start = -math.inf if (inside[0] and unbounded) else None
+    if inside[0] and not unbounded:
+        start = grid[0]
+    it = iter(edges)
+    for i in range(len(grid) - 1):
+        if inside[i] != inside[i + 1]:
+            e = next(it)
+            if inside[i + 1]:
+                start = e
+            else:
+                pieces.append(Interval(start, e))
+                start = None
+    if start is not None:
+        pieces.append(Interval(start, math.inf if unbounded else grid[-1]))
+    return merge_intervals(pieces)
