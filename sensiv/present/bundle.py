@@ -59,9 +59,13 @@ def _figure_files(results: Sequence, formats: Sequence[str], note: str | None
 
 def _summary_figure(results: Sequence, formats: Sequence[str], note: str | None
                     ) -> dict[str, bytes]:
-    from sensiv.present import plots
+    from sensiv.analyses.summary_rows import summary_rows, summary_threshold, summary_xlabel
+    from sensiv.present import figures
 
-    return plots.save_figure(plots.summary_intervals(list(results), note=note), formats)
+    results = list(results)
+    return figures.save_figure(figures.summary_intervals(
+        summary_rows(results), threshold=summary_threshold(results),
+        xlabel=summary_xlabel(results), note=note), formats)
 
 
 def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None

@@ -711,30 +711,33 @@ def table_files(results, stem: str | None = None) -> dict[str, str]:
 
 # ----------------------------------------------------------------------------- figure files
 def _figures(result, note):
-    from sensiv.present import plots
+    from sensiv.analyses.summary_rows import summary_rows, summary_threshold, summary_xlabel
+    from sensiv.present import figures
 
     kind = _kind(result)
     if kind == "fit":
-        return {"summary": plots.summary_intervals([result], note=note)}
+        return {"summary": figures.summary_intervals(
+            summary_rows([result]), threshold=summary_threshold([result]),
+            xlabel=summary_xlabel([result]), note=note)}
     if kind == "sweep":
-        out = {"curve": plots.sensitivity_curve(result, note=note)}
+        out = {"curve": figures.sensitivity_curve(result, note=note)}
         if result.frontier is not None:
-            out["frontier"] = plots.breakdown_frontier(result, note=note)
+            out["frontier"] = figures.breakdown_frontier(result, note=note)
         return out
     if kind == "prior":
-        return ({"map": plots.prior_map(result, note=note)}
+        return ({"map": figures.prior_map(result, note=note)}
                 if result.prior_map is not None else {})
     if kind == "corrbound":
-        return {"curve": plots.correlation_curve(result, note=note)}
+        return {"curve": figures.correlation_curve(result, note=note)}
     if kind == "published":
-        out = {"curve": plots.sensitivity_curve(result, note=note)}
+        out = {"curve": figures.sensitivity_curve(result, note=note)}
         if result.frontier is not None:
-            out["frontier"] = plots.breakdown_frontier(result, note=note)
+            out["frontier"] = figures.breakdown_frontier(result, note=note)
         return out
     if kind == "calibrate":
-        return ({"benchmarks": plots.calibration_benchmarks(result, note=note)}
+        return ({"benchmarks": figures.calibration_benchmarks(result, note=note)}
                 if result.benchmarks or result.zero_first_stage is not None else {})
-    return {"curve": plots.discrete_curve(result, note=note)}
+    return {"curve": figures.discrete_curve(result, note=note)}
 
 
 def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[str, bytes]:
@@ -748,7 +751,8 @@ def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[
     ``note`` is added to every caption (e.g. "Invented demo data").  The same results give
     the same bytes.
     """
-    from sensiv.present import plots
+    from sensiv.analyses.summary_rows import summary_rows, summary_threshold, summary_xlabel
+    from sensiv.present import figures
 
     items = _as_list(results)
     files: dict[str, bytes] = {}
@@ -758,11 +762,13 @@ def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[
         seen[kind] = seen.get(kind, 0) + 1
         stem = kind if seen[kind] == 1 else f"{kind}{seen[kind]}"
         for name, fig in _figures(res, note).items():
-            for fmt, data in plots.save_figure(fig, formats).items():
+            for fmt, data in figures.save_figure(fig, formats).items():
                 files[f"{stem}-{name}.{fmt}"] = data
     effects = [res for res in items if _kind(res) != "calibrate"]
     if len(items) > 1 and effects:
-        fig = plots.summary_intervals(effects, note=note)
-        for fmt, data in plots.save_figure(fig, formats).items():
+        fig = figures.summary_intervals(summary_rows(effects),
+                                        threshold=summary_threshold(effects),
+                                        xlabel=summary_xlabel(effects), note=note)
+        for fmt, data in figures.save_figure(fig, formats).items():
             files[f"summary-intervals.{fmt}"] = data
     return files
