@@ -25,7 +25,9 @@ from sensiv.sensitivity import bounds, prior
 from sensiv.sensitivity.frontier import FRONTIER_POINTS, breakdown_frontier
 from sensiv.sensitivity.linear_core import Core
 from sensiv.sensitivity.union import union_interval
-from sensiv.present import plots
+from sensiv.analyses.outputs import summary_rows, summary_threshold, summary_xlabel
+from sensiv.present import figures
+from sensiv.present.figures import style
 from sensiv.data import Spec
 from sensiv.core.errors import InputError
 from sensiv.partial_id.correlation import correlation_bounds
@@ -83,11 +85,11 @@ def results():
 
 
 SWEEPS = ["within", "beyond", "zero", "negative", "two", "weak"]
-FIGURES = [(plots.sensitivity_curve, s) for s in SWEEPS] + \
-          [(plots.breakdown_frontier, s) for s in SWEEPS] + \
-          [(plots.prior_map, "prior"), (plots.prior_map, "prior_two"),
-           (plots.correlation_curve, "corr"), (plots.discrete_curve, "discrete"),
-           (plots.discrete_curve, "no_fit")]
+FIGURES = [(figures.sensitivity_curve, s) for s in SWEEPS] + \
+          [(figures.breakdown_frontier, s) for s in SWEEPS] + \
+          [(figures.prior_map, "prior"), (figures.prior_map, "prior_two"),
+           (figures.correlation_curve, "corr"), (figures.discrete_curve, "discrete"),
+           (figures.discrete_curve, "no_fit")]
 
 
 def snapshot(result) -> str:
@@ -117,7 +119,7 @@ def test_figure_renders_without_touching_its_input(results, draw, name):
     fig = draw(res, note="Invented test data.")
     assert isinstance(fig, Figure)
     assert snapshot(res) == before
-    assert fig.get_size_inches()[0] == pytest.approx(plots.WIDTH_IN)
+    assert fig.get_size_inches()[0] == pytest.approx(style.WIDTH_IN)
     fig.canvas.draw()
     for text in fig.findobj(Text):
         if text.get_visible() and text.get_text().strip():
@@ -139,13 +141,14 @@ def test_figure_draws_into_given_axes(results):
     fig = Figure(figsize=(7, 3))
     FigureCanvasAgg(fig)
     left, right = fig.subplots(1, 2)
-    assert plots.sensitivity_curve(results["within"], ax=left) is fig
-    assert plots.correlation_curve(results["corr"], ax=right) is fig
+    assert figures.sensitivity_curve(results["within"], ax=left) is fig
+    assert figures.correlation_curve(results["corr"], ax=right) is fig
     assert left.get_legend() is not None and len(fig.axes) >= 2
 
 
-def test_importing_plots_does_not_import_matplotlib():
-    code = "import sys, sensiv.present.figures, sensiv.present.tables, sensiv.analyses.outputs; print('matplotlib' in sys.modules)"
+def test_importing_figures_does_not_import_matplotlib():
+    code = ("import sys, sensiv.present.figures, sensiv.present.tables, "
+            "sensiv.analyses.outputs; print('matplotlib' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)
     assert out.stdout.strip() == "False"
@@ -155,7 +158,7 @@ def test_importing_plots_does_not_import_matplotlib():
 @pytest.mark.parametrize("name", ["within", "beyond", "negative", "two", "zero"])
 def test_curve_marks_breakdown_at_result_value(results, name):
     sweep = results[name]
-    fig = plots.sensitivity_curve(sweep)
+    fig = figures.sensitivity_curve(sweep)
     (marker,) = gid_lines(fig, "breakdown")
     x, y = marker.get_xdata()[0], marker.get_ydata()[0]
     assert x == pytest.approx(sweep.breakdown.scale * extent(sweep), rel=REL, abs=0)
@@ -167,7 +170,7 @@ def test_curve_marks_breakdown_at_result_value(results, name):
 def test_curve_runs_on_to_a_breakdown_beyond_the_stated_set(results):
     sweep = results["beyond"]
     assert sweep.breakdown.scale > 1.0 and sweep.curve_extended is not None
-    fig = plots.sensitivity_curve(sweep)
+    fig = figures.sensitivity_curve(sweep)
     assert max(fig.axes[0].get_xlim()) == pytest.approx(
         sweep.curve_extended.scale[-1] * extent(sweep))
     assert any(t.get_text() == "stated range" for t in fig.legends[0].get_texts())
@@ -176,7 +179,7 @@ def test_curve_runs_on_to_a_breakdown_beyond_the_stated_set(results):
 def test_unbounded_union_is_drawn_clipped_with_a_note(results):
     sweep = results["weak"]
     assert not sweep.union_ci.bounded
-    fig = plots.sensitivity_curve(sweep)
+    fig = figures.sensitivity_curve(sweep)
     ax = fig.axes[0]
     low, high = ax.get_ylim()
     assert all(math.isfinite(v) for v in (low, high))
@@ -189,7 +192,7 @@ def test_unbounded_union_is_drawn_clipped_with_a_note(results):
 
 def test_frontier_marks_breakdown_and_names_regions(results):
     sweep = results["within"]
-    fig = plots.breakdown_frontier(sweep)
+    fig = figures.breakdown_frontier(sweep)
     (marker,) = gid_lines(fig, "breakdown")
     assert marker.get_xdata()[0] == pytest.approx(sweep.breakdown.scale * extent(sweep))
     assert marker.get_ydata()[0] == sweep.breakdown.threshold
@@ -203,7 +206,7 @@ def test_frontier_marks_breakdown_and_names_regions(results):
                                         ("corr", "breakdown_ratio")])
 def test_bound_curves_mark_breakdown(results, name, attr):
     res = results[name]
-    draw = plots.discrete_curve if name == "discrete" else plots.correlation_curve
+    draw = figures.discrete_curve if name == "discrete" else figures.correlation_curve
     fig = draw(res)
     (marker,) = gid_lines(fig, "breakdown")
     assert getattr(res, attr) is not None
@@ -214,7 +217,7 @@ def test_bound_curves_mark_breakdown(results, name, attr):
 def test_discrete_no_fit_budgets_are_hatched(results):
     res = results["no_fit"]
     assert res.bounds is None and res.min_budget > 0
-    fig = plots.discrete_curve(res)
+    fig = figures.discrete_curve(res)
     (region,) = gid_lines(fig, "empty")
     assert region.get_hatch()
     assert any("does not fit" in t.get_text() for t in fig.texts)
@@ -222,7 +225,7 @@ def test_discrete_no_fit_budgets_are_hatched(results):
 
 def test_prior_map_marks_the_given_prior_and_draws_the_boundary(results):
     res = results["prior"]
-    fig = plots.prior_map(res)
+    fig = figures.prior_map(res)
     (given,) = gid_lines(fig, "given")
     assert (given.get_xdata()[0], given.get_ydata()[0]) == res.prior_map.given
     assert gid_lines(fig, "boundary")
@@ -232,12 +235,13 @@ def test_prior_map_marks_the_given_prior_and_draws_the_boundary(results):
 def test_summary_intervals_draws_every_analysis(results):
     items = [results["within"], results["prior"], results["corr"]]
     before = [snapshot(r) for r in items]
-    rows = plots.summary_items(*items)
+    rows = summary_rows(items)
     labels = [r.label for r in rows]
     assert labels[:2] == ["2SLS, 95% CI", "Anderson–Rubin 95% set"]
     assert {"identified set", "union of 95% intervals", "95% prior interval",
             "correlation bounds"} <= set(labels)
-    fig = plots.summary_intervals(items)
+    fig = figures.summary_intervals(rows, threshold=summary_threshold(items),
+                                    xlabel=summary_xlabel(items))
     assert [snapshot(r) for r in items] == before
     xlo, xhi = fig.axes[0].get_xlim()
     for row in rows:
@@ -249,26 +253,28 @@ def test_summary_intervals_draws_every_analysis(results):
 
 
 def test_summary_items_rows_and_unbounded_pieces():
-    rows = [plots.SummaryItem("a", (Interval(-math.inf, 1.0), Interval(2.0, math.inf)),
-                              "anything"),
-            plots.SummaryItem("b", (), "no fit", "partial identification", "set")]
-    fig = plots.summary_intervals(rows, threshold=0.0, xlabel="effect")
+    rows = [figures.SummaryItem("a", (Interval(-math.inf, 1.0), Interval(2.0, math.inf)),
+                                "anything"),
+            figures.SummaryItem("b", (), "no fit", "partial identification", "set")]
+    fig = figures.summary_intervals(rows, threshold=0.0, xlabel="effect")
     assert len(gid_lines(fig, "row:a")) == 2
     with pytest.raises(InputError, match="cannot draw"):
-        plots.summary_intervals([object()])
+        figures.summary_intervals([object()])
+    with pytest.raises(InputError, match="cannot draw"):
+        summary_rows([object()])
 
 
 # ----------------------------------------------------------------------------- files
 def test_saved_files_parse_and_are_byte_identical(results):
     sweep = results["within"]
-    first = plots.save_figure(plots.sensitivity_curve(sweep), plots.FORMATS)
-    second = plots.save_figure(plots.sensitivity_curve(sweep), plots.FORMATS)
+    first = figures.save_figure(figures.sensitivity_curve(sweep), figures.FORMATS)
+    second = figures.save_figure(figures.sensitivity_curve(sweep), figures.FORMATS)
     assert first == second
     png, pdf, svg = first["png"], first["pdf"], first["svg"]
     assert png.startswith(b"\x89PNG\r\n\x1a\n")
     assert b"tIME" not in png and b"Software" not in png
     width = int.from_bytes(png[16:20], "big")
-    assert width == round(plots.WIDTH_IN * plots.DPI)
+    assert width == round(style.WIDTH_IN * style.DPI)
     assert pdf.startswith(b"%PDF-")
     assert len(re.findall(rb"/Type\s*/Page(?![a-zA-Z])", pdf)) == 1     # one page
     assert b"CreationDate" not in pdf
@@ -280,9 +286,9 @@ def test_saved_files_parse_and_are_byte_identical(results):
 
 
 def test_save_figure_rejects_unknown_format(results):
-    fig = plots.prior_map(results["prior"])
+    fig = figures.prior_map(results["prior"])
     with pytest.raises(InputError, match="'eps'"):
-        plots.save_figure(fig, ("png", "eps"))
+        figures.save_figure(fig, ("png", "eps"))
 
 
 # ----------------------------------------------------------------------------- data read by figures
@@ -435,9 +441,9 @@ def caption_words(fig) -> str:
     return " ".join(" ".join(t.get_text() for t in fig.texts).split())
 
 CALIBRATIONS = ["calibrate", "calibrate_zfs", "calibrate_two"]
-NEW_FIGURES = [(plots.sensitivity_curve, p) for p in PUBLISHED] + \
-              [(plots.breakdown_frontier, p) for p in PUBLISHED] + \
-              [(plots.calibration_benchmarks, c) for c in CALIBRATIONS]
+NEW_FIGURES = [(figures.sensitivity_curve, p) for p in PUBLISHED] + \
+              [(figures.breakdown_frontier, p) for p in PUBLISHED] + \
+              [(figures.calibration_benchmarks, c) for c in CALIBRATIONS]
 
 
 @pytest.mark.parametrize("draw, name", NEW_FIGURES,
@@ -449,7 +455,7 @@ def test_new_figure_renders_without_touching_its_input(extra, draw, name):
 def test_published_curve_draws_the_result(extra):
     res = extra["published"]
     assert res.breakdown.scale > 1.0 and res.curve_extended is not None
-    fig = plots.sensitivity_curve(res)
+    fig = figures.sensitivity_curve(res)
     ax = fig.axes[0]
     e = res.direct_set.high              # symmetric range: the x unit is its upper end
     (marker,) = gid_lines(fig, "breakdown")
@@ -467,7 +473,7 @@ def test_published_curve_draws_the_result(extra):
 
 def test_published_worst_case_curve_and_weak_first_stage(extra):
     worst = extra["published_worst"]
-    fig = plots.sensitivity_curve(worst)
+    fig = figures.sensitivity_curve(worst)
     (marker,) = gid_lines(fig, "breakdown")
     assert marker.get_xdata()[0] == pytest.approx(worst.breakdown.scale * worst.direct_set.low,
                                                   rel=REL)
@@ -475,7 +481,7 @@ def test_published_worst_case_curve_and_weak_first_stage(extra):
     assert "worst case" in caption and "n not printed" in caption
     weak = extra["published_weak"]
     assert not weak.union_ci.bounded and weak.breakdown.scale == 0.0
-    fig = plots.sensitivity_curve(weak)
+    fig = figures.sensitivity_curve(weak)
     (band,) = gid_lines(fig, "union")
     assert band.get_hatch()
     assert all(math.isfinite(v) for v in fig.axes[0].get_ylim())
@@ -484,7 +490,7 @@ def test_published_worst_case_curve_and_weak_first_stage(extra):
 @pytest.mark.parametrize("name", ["published", "published_worst"])
 def test_published_frontier_draws_the_result(extra, name):
     res = extra[name]
-    fig = plots.breakdown_frontier(res)
+    fig = figures.breakdown_frontier(res)
     (line,) = gid_lines(fig, "frontier")
     np.testing.assert_allclose(line.get_ydata(), res.frontier.threshold)
     (marker,) = gid_lines(fig, "breakdown")
@@ -512,7 +518,7 @@ def test_published_frontier_agrees_with_its_breakdown(extra, name):
 
 def test_published_frontier_without_a_conclusion_names_no_region(extra):
     # first stage not significant: the conclusion holds at no direct effect, so no lobe
-    fig = plots.breakdown_frontier(extra["published_weak"])
+    fig = figures.breakdown_frontier(extra["published_weak"])
     words = " ".join(t.get_text() for t in fig.axes[0].texts)
     assert "holds" not in words and "fails" in words
 
@@ -530,12 +536,13 @@ def test_published_extended_curve_reaches_the_threshold(extra):
 
 def test_direct_effect_figures_refuse_other_results(extra):
     with pytest.raises(InputError, match="sweep or a published"):
-        plots.sensitivity_curve(extra["calibrate"])
+        figures.sensitivity_curve(extra["calibrate"])
 
 
 def test_summary_intervals_take_published_rows(extra, results):
     pub = extra["published"]
-    rows = plots.summary_items(pub)
+    rows = summary_rows([pub])
+    assert rows == figures.published_items(pub)
     assert [r.label for r in rows] == ["identified set", "union of 95% intervals",
                                        "weak-IV-robust 95% set", "95% prior interval"]
     assert all(r.assumption.startswith("from printed numbers") for r in rows)
@@ -544,18 +551,19 @@ def test_summary_intervals_take_published_rows(extra, results):
     assert rows[-1].point == pub.prior.center
     items = [results["within"], pub, extra["calibrate"]]
     before = [snapshot(r) for r in items]
-    fig = plots.summary_intervals(items)
+    fig = figures.summary_intervals(summary_rows(items), threshold=summary_threshold(items),
+                                    xlabel=summary_xlabel(items))
     assert [snapshot(r) for r in items] == before
     xlo, xhi = fig.axes[0].get_xlim()
     lines = gid_lines(fig, "row:weak-IV-robust 95% set")
     assert [list(line.get_xdata()) for line in lines][-1] == pytest.approx(
         [max(pub.ar_set[-1].low, xlo), min(pub.ar_set[-1].high, xhi)])
-    assert plots.summary_items(extra["calibrate"]) == []     # no effect of the treatment
+    assert summary_rows([extra["calibrate"]]) == []     # no effect of the treatment
 
 
 def test_calibration_figure_draws_benchmarks_and_zero_first_stage(extra):
     cal = extra["calibrate_zfs"]
-    fig = plots.calibration_benchmarks(cal)
+    fig = figures.calibration_benchmarks(cal)
     for b in cal.benchmarks:
         (bar,) = gid_lines(fig, f"benchmark:{b.name}:{b.instrument}")
         assert bar.get_width() == b.implied_direct and bar.get_x() == 0.0
@@ -575,7 +583,7 @@ def test_calibration_figure_draws_benchmarks_and_zero_first_stage(extra):
 
 def test_calibration_figure_with_several_instruments_uses_shares(extra):
     cal = extra["calibrate_two"]
-    fig = plots.calibration_benchmarks(cal)
+    fig = figures.calibration_benchmarks(cal)
     for b in cal.benchmarks:
         (bar,) = gid_lines(fig, f"benchmark:{b.name}:{b.instrument}")
         assert bar.get_width() == b.implied_direct_rf
@@ -592,7 +600,7 @@ def test_calibration_figure_needs_something_to_draw(extra):
     bare = calibrate(EXAMPLE, Spec("maize_yield", ["irrigation_hours"], ["height_m"]))
     assert not bare.benchmarks and bare.zero_first_stage is None
     with pytest.raises(InputError, match="nothing to draw"):
-        plots.calibration_benchmarks(bare)
+        figures.calibration_benchmarks(bare)
 
 
 def test_zero_first_stage_interval_in_result_and_json(extra):
@@ -617,15 +625,15 @@ def test_new_figures_draw_into_given_axes(extra):
     fig = Figure(figsize=(7, 3))
     FigureCanvasAgg(fig)
     left, right = fig.subplots(1, 2)
-    assert plots.sensitivity_curve(extra["published"], ax=left) is fig
-    assert plots.calibration_benchmarks(extra["calibrate_zfs"], ax=right) is fig
+    assert figures.sensitivity_curve(extra["published"], ax=left) is fig
+    assert figures.calibration_benchmarks(extra["calibrate_zfs"], ax=right) is fig
     assert right.get_legend() is not None
 
 
-@pytest.mark.parametrize("draw, name", [(plots.breakdown_frontier, "published"),
-                                        (plots.calibration_benchmarks, "calibrate_zfs")])
+@pytest.mark.parametrize("draw, name", [(figures.breakdown_frontier, "published"),
+                                        (figures.calibration_benchmarks, "calibrate_zfs")])
 def test_new_figures_save_to_identical_bytes(extra, draw, name):
-    first = plots.save_figure(draw(extra[name]), plots.FORMATS)
-    second = plots.save_figure(draw(extra[name]), plots.FORMATS)
+    first = figures.save_figure(draw(extra[name]), figures.FORMATS)
+    second = figures.save_figure(draw(extra[name]), figures.FORMATS)
     assert first == second
     assert first["png"].startswith(b"\x89PNG") and first["pdf"].startswith(b"%PDF-")

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from sensiv.analyses.registry import entry_for
+from sensiv.analyses.registry import entry_for, is_tabled
 from sensiv.core.errors import InputError
 from sensiv.present import figures
 from sensiv.present.tables import Table, table_csv, table_json, table_latex, table_markdown
@@ -48,17 +48,21 @@ def table_files(results, stem: str | None = None) -> dict[str, str]:
 
 def summary_rows(results: Sequence) -> list:
     """Rows of a study's summary figure, in the order given: for each result the 2SLS and
-    Anderson–Rubin rows of the fit it carries (if any), then its own rows (a kind that bounds
-    no effect of the treatment adds none).  The figure drops repeated rows."""
+    Anderson–Rubin rows of the fit it carries (if any), then its own rows; a row equal to an
+    earlier one is left out, and a kind that bounds no effect of the treatment adds none."""
     items: list = []
     for res in results:
+        if not is_tabled(res):
+            raise InputError(f"the summary figure cannot draw a {type(res).__name__}; give "
+                             "fit, sweep, prior, correlation-bounds, discrete-bounds, "
+                             "published or calibration results")
         kind = entry_for(res)
         carried = kind.fit_of(res)
         if carried is not None:
             items += figures.fit_items(*carried)
         if kind.summary_rows is not None:
             items += kind.summary_rows(res)
-    return items
+    return list(dict.fromkeys(items))
 
 
 def threshold_of(result) -> float | None:
@@ -83,15 +87,22 @@ def focus_name(result) -> str | None:
     return treatments[0] if treatments else None
 
 
+def summary_threshold(results: Sequence) -> float | None:
+    """The threshold of the first result that examines one, for the summary figure's line."""
+    return next((t for t in map(threshold_of, results) if t is not None), None)
+
+
+def summary_xlabel(results: Sequence) -> str:
+    """``"effect of FOCUS"`` from the first result that names its focus, else ``"effect"``."""
+    return next((f"effect of {name}" for name in map(focus_name, results) if name), "effect")
+
+
 def summary_figure(results: Sequence, note: str | None = None):
     """A study's summary figure: every result as one interval (or several) under its own
     assumption, with the threshold of the first result that examines one and the effect of
     the first treatment named as the axis."""
-    threshold = next((threshold_of(r) for r in results if threshold_of(r) is not None), None)
-    xlabel = next((f"effect of {name}" for name in (focus_name(r) for r in results) if name),
-                  "effect")
-    return figures.summary_intervals(summary_rows(results), threshold=threshold, xlabel=xlabel,
-                                     note=note)
+    return figures.summary_intervals(summary_rows(results), threshold=summary_threshold(results),
+                                     xlabel=summary_xlabel(results), note=note)
 
 
 def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[str, bytes]:

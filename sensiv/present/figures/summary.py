@@ -1,0 +1,236 @@
+"""The summary figure: every analysis of a run as one horizontal interval each, labelled with
+its assumption, and the rows it draws.
+
+A row is a :class:`SummaryItem`.  One builder per kind of result turns that result into its
+rows (:func:`fit_items`, :func:`sweep_items`, :func:`prior_items`, :func:`published_items`,
+:func:`correlation_items`, :func:`discrete_items`); which results of a run contribute which
+rows, and in what order, is decided by the caller (see
+:func:`sensiv.analyses.outputs.summary_rows`), so nothing here switches on result classes.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from sensiv.core.errors import InputError
+from sensiv.core.results import Interval, format_number
+from sensiv.present.figures.marks import row_texts
+from sensiv.present.figures.style import (BLUE, GREY, INK, ORANGE, SMALL_PT, SUMMARY_LEFT_IN,
+                                          SUMMARY_ROW_IN, WHITE, ends, finish, limits,
+                                          make_canvas, minus, pct, style_context)
+
+
+@dataclass(frozen=True, slots=True)
+class SummaryItem:
+    """One row of :func:`summary_intervals`.
+
+    Attributes
+    ----------
+    label : str
+        What the row is, e.g. ``"2SLS, 95% CI"``.
+    pieces : tuple of Interval
+        The interval or set, as disjoint pieces (an end may be infinite; no piece: empty).
+    assumption : str
+        The assumption it rests on, in a few words.
+    family : {"exclusion", "direct effect", "partial identification"}
+        Colours the row: exclusion assumed exactly, direct effect bounded or given a prior,
+        bounds under a weaker restriction.
+    kind : {"interval", "set"}
+        A confidence or prior interval (thin line with caps) or an identified set / bounds
+        (thick bar).
+    point : float, optional
+        A point estimate to mark.
+    """
+
+    label: str
+    pieces: tuple[Interval, ...]
+    assumption: str
+    family: str = "exclusion"
+    kind: str = "interval"
+    point: float | None = None
+
+
+FAMILY_COLOURS = {"exclusion": INK, "direct effect": BLUE, "partial identification": ORANGE}
+FAMILY_WORDS = {"exclusion": "exclusion assumed exact",
+                "direct effect": "direct effect bounded / prior",
+                "partial identification": "weaker restriction (bounds)"}
+
+
+# ----------------------------------------------------------------------------- rows per kind
+def fit_items(fit, focus: str) -> list[SummaryItem]:
+    """The 2SLS interval of ``focus`` and, when the fit has one, its Anderson–Rubin set
+    (from a :class:`~sensiv.estimation.iv.IVFit`)."""
+    level = pct(fit.confidence_level)
+    out = [SummaryItem(f"2SLS, {level} CI", (fit.conf_int(focus),), "exclusion holds exactly",
+                       "exclusion", "interval", fit.tsls.value(focus))]
+    if fit.ar_set is not None:
+        out.append(SummaryItem(f"Anderson–Rubin {level} set", tuple(fit.ar_set),
+                               "exclusion holds exactly; robust to a weak first stage",
+                               "exclusion", "interval"))
+    return out
+
+
+def sweep_items(sweep) -> list[SummaryItem]:
+    """Identified set, union interval and weak-IV-robust set of a
+    :class:`~sensiv.sensitivity.bounds.SweepResult` (its fit's rows not included)."""
+    level = pct(sweep.confidence_level)
+    ranges = ", ".join(f"{z} in [{format_number(b.low)}, {format_number(b.high)}]"
+                       for z, b in zip(sweep.instruments, sweep.direct_set))
+    words = minus(f"direct effect {ranges}")
+    out = [SummaryItem("identified set", (sweep.identified_set,), words, "direct effect",
+                       "set"),
+           SummaryItem(f"union of {level} intervals", (sweep.union_ci,), words,
+                       "direct effect", "interval")]
+    if sweep.ar_set is not None:
+        out.append(SummaryItem(f"weak-IV-robust {level} set", tuple(sweep.ar_set), words,
+                               "direct effect", "interval"))
+    return out
+
+
+def prior_items(prior) -> list[SummaryItem]:
+    """The prior interval of a :class:`~sensiv.sensitivity.prior.PriorResult` (its fit's rows
+    not included)."""
+    level = pct(prior.confidence_level)
+    laws = "; ".join(f"{z} ~ {p}" for z, p in zip(prior.instruments, prior.priors))
+    return [SummaryItem(f"{level} prior interval", (prior.interval,), f"direct effect {laws}",
+                        "direct effect", "interval", prior.center)]
+
+
+def published_items(published) -> list[SummaryItem]:
+    """The rows of a :class:`~sensiv.sensitivity.published.PublishedResult`, their assumption
+    led by "from printed numbers"."""
+    # "from printed numbers" leads the grey line rather than the label: the label shares its
+    # line with the numbers and would run into them
+    res = published
+    level = pct(res.confidence_level)
+    b = res.direct_set
+    words = minus(f"from printed numbers: direct effect in [{format_number(b.low)}, "
+                  f"{format_number(b.high)}]")
+    out = [SummaryItem("identified set", (res.identified_set,), words, "direct effect", "set"),
+           SummaryItem(f"union of {level} intervals", (res.union_ci,), words, "direct effect",
+                       "interval"),
+           SummaryItem(f"weak-IV-robust {level} set", tuple(res.ar_set), words,
+                       "direct effect", "interval")]
+    if res.prior is not None:
+        out.append(SummaryItem(f"{level} prior interval", (res.prior.interval,),
+                               f"from printed numbers: direct effect ~ {res.prior.law}",
+                               "direct effect", "interval", res.prior.center))
+    return out
+
+
+def correlation_items(bounds) -> list[SummaryItem]:
+    """The identified set and, when bootstrapped, its interval from correlation bounds
+    (:class:`~sensiv.partial_id.correlation.CorrelationBounds`)."""
+    level = pct(bounds.confidence_level)
+    words = f"|corr(Z, u)| ≤ {format_number(bounds.max_ratio)}·|corr(X, u)|, same sign"
+    out = [SummaryItem("correlation bounds", tuple(bounds.pieces), words,
+                       "partial identification", "set")]
+    if bounds.ci is not None:
+        out.append(SummaryItem(f"correlation bounds, {level} CI", (bounds.ci,), words,
+                               "partial identification", "interval"))
+    return out
+
+
+def discrete_items(bounds) -> list[SummaryItem]:
+    """The bounds (empty when the model does not fit) and, when bootstrapped, their interval
+    from discrete bounds (:class:`~sensiv.partial_id.discrete_results.DiscreteBounds`)."""
+    level = pct(bounds.confidence_level)
+    words = (f"{bounds.table.instrument} acts directly on at most "
+             f"{format_number(bounds.budget)} of units"
+             + ("; monotone" if bounds.monotone else ""))
+    pieces = (bounds.bounds,) if bounds.bounds is not None else ()
+    out = [SummaryItem("discrete bounds", pieces, words, "partial identification", "set")]
+    if bounds.ci is not None:
+        out.append(SummaryItem(f"discrete bounds, {level} CI", (bounds.ci,), words,
+                               "partial identification", "interval"))
+    return out
+
+
+# ----------------------------------------------------------------------------- the figure
+def summary_intervals(items: Sequence[SummaryItem], ax=None, *, threshold: float | None = None,
+                      xlabel: str | None = None, note: str | None = None):
+    """Every analysis of a run as one horizontal interval each, labelled with its assumption.
+
+    Parameters
+    ----------
+    items : sequence of SummaryItem
+        The rows, top to bottom (a repeated row is drawn once); build them with the per-kind
+        builders (:func:`fit_items`, :func:`sweep_items`, ...) or, for a run of results,
+        :func:`sensiv.analyses.outputs.summary_rows`.
+    threshold : float, optional
+        Drawn as a vertical line.
+    xlabel : str, optional
+        By default "effect".
+    note : str, optional
+        A last caption line (e.g. that the data are invented).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    items = list(items)
+    wrong = next((item for item in items if not isinstance(item, SummaryItem)), None)
+    if wrong is not None:
+        raise InputError(f"summary_intervals cannot draw a {type(wrong).__name__}; give "
+                         "SummaryItem rows (build them with fit_items, sweep_items, "
+                         "prior_items, published_items, correlation_items or discrete_items)")
+    rows = list(dict.fromkeys(items))
+    if not rows:
+        raise InputError("summary_intervals needs at least one SummaryItem")
+    with style_context():
+        canvas = make_canvas(ax)
+        ax = canvas.ax
+        row_ends = [e for row in rows for e in ends(row.pieces)]
+        row_ends += [row.point for row in rows if row.point is not None]
+        xlo, xhi = limits([*row_ends, threshold], pad=0.06)
+        if any(not math.isfinite(e) for e in row_ends):
+            span = xhi - xlo
+            xlo, xhi = xlo - 0.06 * span, xhi + 0.06 * span
+        n = len(rows)
+        for i, row in enumerate(rows):
+            y = n - 1 - i
+            colour = FAMILY_COLOURS.get(row.family, INK)
+            _summary_row(ax, row, y, colour, xlo, xhi)
+        if threshold is not None:
+            ax.axvline(threshold, color=GREY, linestyle=(0, (4, 2)), linewidth=0.8, zorder=0,
+                       label=f"threshold {format_number(threshold)}")
+        ax.set_xlim(xlo, xhi)
+        ax.set_ylim(-0.4, n - 1 + 0.65)
+        ax.set_yticks([])
+        ax.spines["left"].set_visible(False)
+        ax.set_xlabel("effect" if xlabel is None else xlabel)
+        for family, colour in FAMILY_COLOURS.items():
+            if any(r.family == family for r in rows):
+                ax.plot([], [], color=colour, linewidth=2.0, label=FAMILY_WORDS[family])
+        caption = ["Each row holds only under its own assumption (grey text); a bound that "
+                   "excludes the threshold does not prove the instrument valid."]
+        return finish(canvas, caption, note=note, axes_in=SUMMARY_ROW_IN * n,
+                      left_in=SUMMARY_LEFT_IN)
+
+
+def _summary_row(ax, row: SummaryItem, y: float, colour: str, xlo: float, xhi: float) -> None:
+    """One row: the label and the numbers, the assumption under them, then the bar."""
+    numbers = " ∪ ".join(str(p) for p in row.pieces) if row.pieces else "empty"
+    row_texts(ax, y, xlo, xhi, row.label, minus(numbers), row.assumption)
+    width = 3.2 if row.kind == "set" else 1.2
+    if not row.pieces:
+        ax.text(0.5 * (xlo + xhi), y, "empty: the model does not fit the data", ha="center",
+                va="center", fontsize=SMALL_PT, color=colour)
+        return
+    for piece in row.pieces:
+        low, high = max(piece.low, xlo), min(piece.high, xhi)
+        (line,) = ax.plot([low, high], [y, y], color=colour, linewidth=width,
+                          solid_capstyle="butt", zorder=3, clip_on=False)
+        line.set_gid(f"row:{row.label}")
+        for end, edge, marker in ((piece.low, xlo, "<"), (piece.high, xhi, ">")):
+            if math.isinf(end):
+                ax.plot([edge], [y], marker=marker, markersize=4, color=colour,
+                        linestyle="none", zorder=3, clip_on=False)
+            elif row.kind == "interval":
+                ax.plot([end], [y], marker="|", markersize=5, color=colour,
+                        linestyle="none", zorder=3)
+    if row.point is not None:
+        ax.plot([row.point], [y], marker="o", markersize=3.2, color=colour,
+                markeredgecolor=WHITE, markeredgewidth=0.5, linestyle="none", zorder=4)
