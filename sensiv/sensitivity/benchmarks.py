@@ -24,7 +24,8 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.core.results import json_number
-from sensiv.estimation import design, linalg
+from sensiv.estimation import linalg
+from sensiv.estimation.design import Design, build_design
 from sensiv.estimation.moments import Moments
 from sensiv.sensitivity.direct_sets import Scale
 
@@ -67,7 +68,7 @@ def partialled(maps: np.ndarray, w: np.ndarray, gram: np.ndarray) -> np.ndarray:
     return maps - w @ coef
 
 
-def instrument_coefficients(moments: Moments, design: design.Design) -> np.ndarray:
+def instrument_coefficients(moments: Moments, design: Design) -> np.ndarray:
     r"""Coefficients of the instruments in the regressions of each treatment and of the outcome
     on ``[constant, controls, instruments]``, from moments only.
 
@@ -87,9 +88,9 @@ def instrument_coefficients(moments: Moments, design: design.Design) -> np.ndarr
     return linalg.scaled_cholesky(zt.T @ gram @ zt).solve(zt.T @ gram @ targets)
 
 
-def design_for(moments: Moments, layout, controls: Sequence[str]) -> design.Design:
+def design_for(moments: Moments, layout, controls: Sequence[str]) -> Design:
     """The design of ``layout`` on ``moments`` with only ``controls`` as controls."""
-    return design.build_design(moments, layout.outcome, layout.treatments, layout.instruments,
+    return build_design(moments, layout.outcome, layout.treatments, layout.instruments,
                            controls, layout.constant)
 
 

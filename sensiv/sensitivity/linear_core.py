@@ -23,7 +23,8 @@ import numpy as np
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval
 from sensiv.estimation import distributions as dist
-from sensiv.estimation import covariance, iv
+from sensiv.estimation.covariance import small_factor
+from sensiv.estimation import iv
 from sensiv.estimation.moments import ScoreBlock, ScoreSums
 
 
@@ -95,7 +96,7 @@ def build_core(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit, j: i
     k = pieces.tsls.params.size
     se = result.se_type
     n_clusters = sums.n_clusters if sums is not None else None
-    factor = covariance.small_factor(se, result.small, n, k, n_clusters)
+    factor = small_factor(se, result.small, n, k, n_clusters)
     row = len(pieces.design.control_names) + j
     if se == "classic":
         quad = pieces.tsls.bread[row, row] * (maps.T @ pieces.gram @ maps) / n

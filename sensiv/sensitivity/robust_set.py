@@ -18,7 +18,8 @@ import numpy as np
 
 from sensiv.core.results import Interval
 from sensiv.estimation import distributions as dist
-from sensiv.estimation import first_stage, iv, linalg
+from sensiv.estimation.first_stage import first_stage_covariance
+from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import ScoreSums
 from sensiv.partial_id.solver import solve
 from sensiv.sensitivity.direct_sets import DirectSet
@@ -47,7 +48,7 @@ def reduced_form(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit) ->
     covariance (the fit's kind) and the Anderson–Rubin critical value at the fit's level."""
     meats = sums.meats if sums is not None else {}
     n_clusters = sums.n_clusters if sums is not None else None
-    joint = first_stage.first_stage_covariance(pieces, meats.get("first"), result.se_type, result.small,
+    joint = first_stage_covariance(pieces, meats.get("first"), result.se_type, result.small,
                                       n_clusters)
     d = pieces.design
     zt = pieces.z_partialled

@@ -17,7 +17,10 @@ from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, json_number
 from sensiv.data import from_frame
 from sensiv.estimation import distributions as dist
-from sensiv.estimation import covariance, design, first_stage, iv, linalg
+from sensiv.estimation.covariance import check_clusters, normalise_weights
+from sensiv.estimation.design import CONSTANT, Design
+from sensiv.estimation.first_stage import first_stage_covariance
+from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import Moments, ScoreBlock, accumulate, score_sums
 from sensiv.sensitivity.benchmarks import (OPTION_DIGITS, design_for, outward, partialled,
                                            range_option)
@@ -252,7 +255,7 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
 
 
 def _subgroup_design(moments: Moments, layout, gram: np.ndarray,
-                     where: str) -> tuple[design.Design, list[str]]:
+                     where: str) -> tuple[Design, list[str]]:
     """The subgroup's design with collinear controls dropped one at a time (and their names);
     InputError when an instrument itself is constant or collinear there."""
     controls = list(layout.controls)
@@ -265,8 +268,8 @@ def _subgroup_design(moments: Moments, layout, gram: np.ndarray,
             return design, dropped
         j = found[0]
         n_w = len(design.control_names)
-        if j >= n_w or design.control_names[j] == design.CONSTANT:
-            name = design.instruments[j - n_w] if j >= n_w else design.CONSTANT
+        if j >= n_w or design.control_names[j] == CONSTANT:
+            name = design.instruments[j - n_w] if j >= n_w else CONSTANT
             raise InputError(
                 f"instrument {name!r} is constant in {where} (or collinear with the controls "
                 "there), so its reduced-form coefficient cannot be estimated in the subgroup; "
@@ -275,7 +278,7 @@ def _subgroup_design(moments: Moments, layout, gram: np.ndarray,
         controls.remove(design.control_names[j])
 
 
-def _subgroup_covariance(source, spec, moments: Moments, design: design.Design, gram: np.ndarray,
+def _subgroup_covariance(source, spec, moments: Moments, design: Design, gram: np.ndarray,
                          zt: np.ndarray, targets: np.ndarray, *, se: str, small: bool,
                          where: str) -> np.ndarray:
     """Joint covariance of the subgroup's first-stage and reduced-form coefficients (the
@@ -285,22 +288,22 @@ def _subgroup_covariance(source, spec, moments: Moments, design: design.Design, 
     residuals = targets - q @ q_chol.solve(q.T @ gram @ targets)
     sums = None
     if se != "classic":
-        sums = covariance.normalise_weights(
+        sums = normalise_weights(
             score_sums(source.chunks(), moments.mean, [ScoreBlock("first", zt, residuals)],
                        cluster=(se == "cluster")), moments)
         try:
-            covariance.check_clusters(sums, spec.cluster)
+            check_clusters(sums, spec.cluster)
         except InputError as exc:
             raise InputError(f"in {where}: {exc}") from exc
     # Only the first-stage fields of Pieces are read by first_stage_covariance; the
     # subgroup's 2SLS (tsls, ols) is deliberately not formed.
     pieces = iv.Pieces(moments, design, gram, None, None, zt, residuals)
     n_clusters = sums.n_clusters if sums is not None else None
-    return first_stage.first_stage_covariance(pieces, sums.meats["first"] if sums else None, se,
+    return first_stage_covariance(pieces, sums.meats["first"] if sums else None, se,
                                      small, n_clusters)
 
 
-def _first_stage_tests(design: design.Design, layout, gram: np.ndarray, coef: np.ndarray,
+def _first_stage_tests(design: Design, layout, gram: np.ndarray, coef: np.ndarray,
                        joint: np.ndarray, df2: int | None
                        ) -> tuple[dict[str, dict[str, float]], dict[str, float],
                                   dict[str, float]]:

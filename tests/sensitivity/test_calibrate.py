@@ -34,7 +34,7 @@ from sensiv.sensitivity.prior_laws import parse_prior
 LM_VERSION = linearmodels.__version__
 REL = 1e-8  # agreement with the reference library (issue contract)
 COV = {"classic": "unadjusted", "robust": "robust", "cluster": "clustered"}
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 EXAMPLE = ROOT / "examples" / "irrigation.csv"
 runner = CliRunner()
 

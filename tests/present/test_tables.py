@@ -231,7 +231,7 @@ def test_existing_bundles_are_unchanged(results):
 # ============================================================================ published, calibrate
 # Built with the library: an invented published table (not from any paper) and the invented
 # irrigation example data.
-EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "irrigation.csv"
+EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "irrigation.csv"
 
 
 def irrigation_spec():

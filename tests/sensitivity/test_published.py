@@ -1,7 +1,7 @@
 """`sensiv published`: stress tests from a table's printed numbers, against the data route.
 
 Sources beside each check:
-* data route (this package, itself checked against linearmodels in tests/test_bounds.py):
+* data route (this package, itself checked against linearmodels in tests/sensitivity/test_bounds.py):
   ``sensiv.sensitivity.bounds.sweep`` and ``sensiv.sensitivity.prior.prior_analysis`` on the same data;
 * reference library: linearmodels ``IV2SLS`` without endogenous regressors for the reduced form
   (outcome on instrument and controls) and its standard error;
@@ -55,7 +55,7 @@ from sensiv.sensitivity.robust_set import reduced_form
 
 from linearmodels.iv import IV2SLS  # noqa: E402  (reference library, test extra)
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 TABLE = ROOT / "examples" / "published_table.json"   # INVENTED table (sensiv.demo)
 Z95 = 1.959963984540054          # common practice, no source: normal 97.5% quantile
 COV = {"classic": "unadjusted", "robust": "robust", "cluster": "clustered"}

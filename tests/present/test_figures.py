@@ -384,7 +384,7 @@ def test_prior_threshold_is_validated():
 # ============================================================================ published, calibrate
 # Results built with the library: an invented published table (not from any paper) and the
 # invented irrigation example data.
-EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "irrigation.csv"
+EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "irrigation.csv"
 TABLE = dict(estimate=0.75, se=0.25, first_stage=4.2, first_stage_se=0.6)  # invented table
 
 

@@ -27,7 +27,7 @@ from sensiv.partial_id.discrete_data import (counts_from_frame, from_counts, rea
 from sensiv.partial_id.discrete_programme import Programmes, curve
 from sensiv.partial_id.discrete_types import is_defier, x_types
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 NUDGE = ROOT / "examples" / "nudge.csv"
 NUDGE_ROLES = ("--outcome", "bp_controlled", "--treatment", "screened", "--instrument", "sms")
 LP_TOL = 1e-7  # solver accuracy on these small programmes (common practice, no source)

@@ -15,7 +15,7 @@ from typer.testing import CliRunner
 
 from sensiv.cli.app import app
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 runner = CliRunner()
 
 RECIPE = """\

@@ -1,7 +1,7 @@
 """`sensiv sweep` and `sensiv prior` on the command line: contracts and bad input.
 
 Common practice, no source: these check the interface, the numbers are checked in
-tests/test_bounds.py against the reference library.
+tests/sensitivity/test_bounds.py against the reference library.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ from typer.testing import CliRunner
 
 from sensiv.cli.app import app
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 EXAMPLE = ROOT / "examples" / "irrigation.csv"
 ROLES = ("--outcome", "maize_yield", "--treatment", "irrigation_hours", "--instrument",
          "height_m", "--control", "plot_ha", "--control", "soil", "--cluster", "village")

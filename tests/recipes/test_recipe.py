@@ -18,7 +18,7 @@ from sensiv.core.errors import InputError
 from sensiv.recipes.parse import parse_recipe
 from sensiv.recipes.run import run_recipe
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 GOOD = """\
 title = "Irrigation (INVENTED data)"

@@ -15,7 +15,7 @@ from typer.testing import CliRunner
 
 from sensiv.cli.app import app
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 EXAMPLE = ROOT / "examples" / "irrigation.csv"
 runner = CliRunner()
 
@@ -52,7 +52,7 @@ BASE = ("--outcome", "y", "--treatment", "x", "--instrument", "z")
 
 # ------------------------------------------------------------------ README examples
 def test_readme_demo(tmp_path):
-    # the full bundle is checked in tests/test_bundle.py; here what the terminal shows
+    # the full bundle is checked in tests/recipes/test_bundle.py; here what the terminal shows
     out = tmp_path / "demo"
     result = invoke("demo", "--out", out)
     assert result.exit_code == 0, result.stderr

@@ -16,7 +16,7 @@ import pytest
 
 from sensiv import demo
 
-EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
+EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
 
 
 def _wald(y: np.ndarray, x: np.ndarray, z: np.ndarray) -> float:
