@@ -19,7 +19,7 @@ from dataclasses import dataclass
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, format_number
 from sensiv.present.figures.style import GREY, NBSP, SMALL_PT, minus, pct
-from sensiv.sensitivity import published_covariance as published
+from sensiv.sensitivity import published_covariance
 
 X_TICK_BINS = 5           # published figures: at most this many x intervals between ticks
 
@@ -140,7 +140,7 @@ def direct_view(result) -> DirectView:
     """
     if all(hasattr(result, name) for name in PUBLISHED_FIELDS):
         rf = (result.direct_set_rf,) if result.direct_set_rf is not None else None
-        return DirectView((published.INSTRUMENT,), (result.direct_set,), rf,
+        return DirectView((published_covariance.INSTRUMENT,), (result.direct_set,), rf,
                           result.confidence_level, result.focus, result.breakdown,
                           result.curve, result.curve_extended, result.frontier,
                           published_caption(result),
@@ -181,12 +181,13 @@ def sweep_caption(sweep) -> str:
 
 def covariance_words(method: str) -> str:
     """How a published stress test got the covariance of reduced form and first stage."""
-    return {published.METHOD_BACKED_OUT: "covariance of reduced form and first stage backed "
-                                         "out of the printed se (delta method)",
-            published.METHOD_CLIPPED: "covariance of reduced form and first stage backed out "
-                                      "of the printed se, its correlation clipped to [−1, 1]",
-            published.METHOD_WORST: "covariance of reduced form and first stage not printed: "
-                                    "worst case over the admissible correlations"}[method]
+    pc = published_covariance
+    return {pc.METHOD_BACKED_OUT: "covariance of reduced form and first stage backed out of "
+                                  "the printed se (delta method)",
+            pc.METHOD_CLIPPED: "covariance of reduced form and first stage backed out of the "
+                               "printed se, its correlation clipped to [−1, 1]",
+            pc.METHOD_WORST: "covariance of reduced form and first stage not printed: worst "
+                             "case over the admissible correlations"}[method]
 
 
 def published_caption(res) -> str:
