@@ -30,7 +30,9 @@ def prior(
     prior_law: Optional[list[str]] = typer.Option(
         None, "--prior",
         help="Prior of one instrument's direct effect: normal:MEAN:SD, uniform:LOW:HIGH or "
-             "triangular:LOW:MODE:HIGH; one per instrument in order."),
+             "triangular:LOW:MODE:HIGH; one per instrument in order. Suffix 'rf' (share of the "
+             "reduced form) or 'sd' (outcome SDs per instrument SD) as for --direct, e.g. "
+             "normal:0:0.1rf."),
     prior_file: Optional[Path] = typer.Option(
         None, "--prior-file", help="TOML or JSON with 'mean' and 'cov' (multivariate normal)."),
     draws: int = typer.Option(200_000, "--draws", help="Monte Carlo draws (non-normal laws, several instruments)."),

@@ -20,6 +20,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval
+from sensiv.estimation import linalg
 from sensiv.estimation.moments import Moments
 from sensiv.partial_id.solver import solve
 
@@ -250,6 +251,15 @@ def scale_from_moments(moments: Moments, outcome: str, instruments: Sequence[str
     return Scale(tuple(instruments), np.asarray(reduced_form, float),
                  math.sqrt(moments.variance(outcome)),
                  np.array([math.sqrt(moments.variance(z)) for z in instruments]))
+
+
+def scale_of_pieces(pieces) -> Scale:
+    """The :class:`Scale` of a fit's pieces (:class:`sensiv.estimation.iv.Pieces`): the
+    reduced-form coefficients of the instruments (controls partialled out) and the SDs."""
+    d = pieces.design
+    zt = pieces.z_partialled
+    reduced_form = linalg.sym_inv_psd(zt.T @ pieces.gram @ zt) @ (zt.T @ pieces.gram @ d.y)
+    return scale_from_moments(pieces.moments, d.outcome, d.instruments, reduced_form)
 
 
 def resolve_ranges(ranges: Sequence[RangeSpec], scale: Scale) -> DirectSet:

@@ -28,6 +28,7 @@ from sensiv.estimation import iv
 from sensiv.estimation.inference import Progress
 from sensiv.sensitivity.bounds import CAUTION
 from sensiv.sensitivity.linear_core import Core, build_core, focus_block, focus_index
+from sensiv.sensitivity.direct_sets import scale_of_pieces
 from sensiv.sensitivity.prior_laws import Prior, parse_prior, read_prior_file
 
 MC_DRAWS = 200_000
@@ -257,6 +258,19 @@ def simulated_interval(core: Core, priors: Sequence[Prior], level: float, draws:
     return Interval(core.estimate - q_hi, core.estimate - q_lo), center, mc_error
 
 
+def outcome_laws(laws: Sequence[Prior], pieces) -> tuple[list[Prior], tuple[str, ...]]:
+    """The laws in outcome units, and how each reads in the output: as given when it was
+    stated in outcome units, else ``"normal:0:0.00123 (given as normal:0:0.1rf)"``."""
+    if all(law.unit == "outcome" for law in laws):
+        return list(laws), tuple(law.text() for law in laws)
+    scale = scale_of_pieces(pieces)
+    out = [law.in_outcome_units(scale.to_outcome(k, 1.0, law.unit)) for k, law in
+           enumerate(laws)]
+    texts = tuple(law.text() if law is new else f"{new.text()} (given as {law.text()})"
+                  for law, new in zip(laws, out))
+    return out, texts
+
+
 def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = None,
                    prior_file: str | None = None, se: str | None = None,
                    confidence_level: float = 0.95, small: bool = False,
@@ -297,6 +311,7 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
         source, se=se, confidence_level=confidence_level, small=small,
         extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
     core = build_core(pieces, sums, result, j)
+    laws, given = outcome_laws(laws, pieces)
     mc_error, used_draws, used_seed = None, None, None
     if moments_file is not None:
         mean, cov = moments_file
@@ -309,17 +324,17 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
         cov = np.diag([p.params[1] ** 2 for p in laws])
         interval, center = normal_interval(core, mean, cov)
         method = "closed-form"
-        texts = tuple(p.text() for p in laws)
+        texts = given
     elif len(laws) == 1:
         interval, center = quadrature_interval(core, laws[0], confidence_level)
         method = "quadrature"
-        texts = (laws[0].text(),)
+        texts = given
     else:
         interval, center, mc_error = simulated_interval(core, laws, confidence_level, draws,
                                                         seed)
         method = "simulation"
         used_draws, used_seed = draws, seed
-        texts = tuple(p.text() for p in laws)
+        texts = given
     if moments_file is None:
         mean = np.array([p.mean() for p in laws])
         cov = np.diag([p.variance() for p in laws])

@@ -17,15 +17,24 @@ import numpy as np
 from sensiv.core.errors import InputError
 
 PRIOR_KINDS = ("normal", "uniform", "triangular")
+# Units a law may be written in, as for ``--direct``: outcome units (no suffix), a share of the
+# instrument's reduced-form coefficient (``rf``) or outcome SDs per instrument SD (``sd``).
+PRIOR_UNITS = ("rf", "sd")
 PSD_TOL = 1e-12          # relative tolerance for negative eigenvalues of a prior covariance
 
 
 @dataclass(frozen=True, slots=True)
 class Prior:
-    """Prior law of one instrument's direct effect (outcome units)."""
+    """Prior law of one instrument's direct effect.
+
+    ``params`` are in ``unit``: ``"outcome"`` (outcome units), ``"rf"`` (a share of the
+    instrument's reduced-form coefficient) or ``"sd"`` (outcome SDs per instrument SD);
+    :meth:`in_outcome_units` converts a law to outcome units, which every interval uses.
+    """
 
     kind: str
     params: tuple[float, ...]
+    unit: str = "outcome"
 
     def mean(self) -> float:
         if self.kind == "normal":
@@ -60,25 +69,63 @@ class Prior:
         return np.where((g >= a) & (g <= b), np.where(g <= c, up, down), 0.0)
 
     def text(self) -> str:
-        return f"{self.kind}:" + ":".join(f"{p:g}" for p in self.params)
+        suffix = "" if self.unit == "outcome" else self.unit
+        return f"{self.kind}:" + ":".join(f"{p:g}" for p in self.params) + suffix
+
+    def in_outcome_units(self, factor: float) -> Prior:
+        """The same law in outcome units, given the factor of its unit (the reduced-form
+        coefficient for ``rf``, SD(outcome)/SD(instrument) for ``sd``).
+
+        A location-scale change: a normal law's mean is multiplied by ``factor`` and its SD by
+        ``|factor|``; the ends (and mode) of a uniform or triangular law are multiplied by
+        ``factor`` and re-ordered when it is negative.
+
+        Examples
+        --------
+        >>> parse_prior("normal:0.1:0.2rf").in_outcome_units(-2.0)
+        Prior(kind='normal', params=(-0.2, 0.4), unit='outcome')
+        >>> parse_prior("triangular:0:0.1:0.3rf").in_outcome_units(-10.0).params
+        (-3.0, -1.0, 0.0)
+        """
+        if self.unit == "outcome":
+            return self
+        if not (math.isfinite(factor) and factor != 0.0):
+            raise InputError(f"--prior '{self.text()}': the unit '{self.unit}' has no scale here "
+                             f"(its factor is {factor:g}); state the law in outcome units")
+        if self.kind == "normal":
+            params = (self.params[0] * factor + 0.0, self.params[1] * abs(factor))
+        else:
+            scaled = tuple(p * factor + 0.0 for p in self.params)  # + 0.0: no -0
+            params = scaled if factor > 0 else tuple(reversed(scaled))
+        return Prior(self.kind, params)
 
 
 def parse_prior(text: str) -> Prior:
-    """Parse ``normal:MEAN:SD``, ``uniform:LOW:HIGH`` or ``triangular:LOW:MODE:HIGH``.
+    """Parse ``normal:MEAN:SD``, ``uniform:LOW:HIGH`` or ``triangular:LOW:MODE:HIGH``, in
+    outcome units or, with the suffix ``rf`` or ``sd`` as for ``--direct``, as a share of the
+    reduced form or in SD units.
 
     Examples
     --------
     >>> parse_prior("normal:0:0.01")
-    Prior(kind='normal', params=(0.0, 0.01))
+    Prior(kind='normal', params=(0.0, 0.01), unit='outcome')
+    >>> parse_prior("normal:0:0.1rf")
+    Prior(kind='normal', params=(0.0, 0.1), unit='rf')
     """
-    kind, _, rest = text.strip().partition(":")
+    body, unit = text.strip(), "outcome"
+    for suffix in PRIOR_UNITS:
+        if body.lower().endswith(suffix):
+            body, unit = body[:-len(suffix)], suffix
+            break
+    kind, _, rest = body.partition(":")
     if kind not in PRIOR_KINDS:
         raise InputError(f"--prior '{text}': unknown law '{kind}'; use normal:MEAN:SD, "
                          "uniform:LOW:HIGH or triangular:LOW:MODE:HIGH")
     try:
         params = tuple(float(p) for p in rest.split(":")) if rest else ()
     except ValueError as exc:
-        raise InputError(f"--prior '{text}': parameters must be numbers") from exc
+        raise InputError(f"--prior '{text}': parameters must be numbers, with an optional unit "
+                         "suffix rf or sd on the last one (e.g. normal:0:0.1rf)") from exc
     expected = {"normal": 2, "uniform": 2, "triangular": 3}[kind]
     if len(params) != expected or not all(math.isfinite(p) for p in params):
         raise InputError(f"--prior '{text}': {kind} takes {expected} finite numbers")
@@ -90,7 +137,7 @@ def parse_prior(text: str) -> Prior:
     if kind == "triangular" and not (params[0] <= params[1] <= params[2]
                                      and params[0] < params[2]):
         raise InputError(f"--prior '{text}': need LOW <= MODE <= HIGH with LOW < HIGH")
-    return Prior(kind, params)
+    return Prior(kind, params, unit)
 
 
 def read_prior_file(path, instruments: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:

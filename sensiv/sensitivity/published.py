@@ -225,6 +225,8 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
     prior = one_value(prior, "--prior law(s)")
     gamma_set, gamma_rf, range_text = resolve_range(direct, rep)
     law = parse_prior(prior) if isinstance(prior, str) else prior
+    if law is not None:
+        law = PublishedLaw(law.in_outcome_units(_rf_factor(law, rep)), law)
 
     notes = consistency_notes(rep)
     for message in notes:
@@ -241,7 +243,7 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
 
 
 def _stress_test(rep: Reported, sp: float, cov: Covariance, gamma_set: Interval,
-                 gamma_rf: Interval | None, range_text: str, law: Prior | None,
+                 gamma_rf: Interval | None, range_text: str, law: PublishedLaw | None,
                  notes: list[str], *, threshold: float, points: int,
                  confidence_level: float) -> PublishedResult:
     """The analysis proper, once the inputs are checked and the covariance chosen (its
@@ -335,9 +337,36 @@ def _robust_part(rep: Reported, sp: float, cov: Covariance, critical: float, dse
     return ar, method, None, False
 
 
-def _prior_part(law: Prior | str, core: Core, level: float) -> PriorPart:
+@dataclass(frozen=True, slots=True)
+class PublishedLaw:
+    """A prior law in outcome units, and the law as given (``rf``: a share of the printed
+    reduced form)."""
+
+    law: Prior
+    given: Prior
+
+    def text(self) -> str:
+        if self.given.unit == "outcome":
+            return self.law.text()
+        return f"{self.law.text()} (given as {self.given.text()})"
+
+
+def _rf_factor(law: Prior, rep) -> float:
+    """The factor that turns a law's unit into outcome units from printed numbers only."""
+    if law.unit == "sd":
+        raise InputError(f"--prior '{law.text()}': the 'sd' unit needs the standard deviations "
+                         "of the outcome and the instrument, which a published table does not "
+                         "give; state the law in outcome units or as a share of the reduced "
+                         "form ('rf')")
+    if law.unit == "rf":
+        return rep.reduced_form if rep.reduced_form is not None else rep.estimate * \
+            rep.first_stage
+    return 1.0
+
+
+def _prior_part(given: PublishedLaw, core: Core, level: float) -> PriorPart:
     """The prior interval of a stress test: closed form for a normal law, quadrature else."""
-    law = parse_prior(law) if isinstance(law, str) else law
+    law = given.law
     if law.kind == "normal":
         interval, center = normal_interval(core, np.array([law.params[0]]),
                                            np.array([[law.params[1] ** 2]]))
@@ -345,4 +374,4 @@ def _prior_part(law: Prior | str, core: Core, level: float) -> PriorPart:
     else:
         interval, center = quadrature_interval(core, law, level)
         method = "quadrature"
-    return PriorPart(law.text(), interval, center, method, None)
+    return PriorPart(given.text(), interval, center, method, None)
