@@ -43,7 +43,7 @@ CONSTANT = typer.Option(True, "--constant/--no-constant", help="Include a consta
 JSON = typer.Option(False, "--json", help="Print exactly one JSON document on stdout.")
 
 
-FORMAT = typer.Option(None, "--format", help="Figure format: png, pdf or svg; repeat for several [default: png].")
+FORMAT = typer.Option(None, "--format", help="Figure format: png, pdf or svg; repeat for several [default: png; for run, the recipe's formats].")
 
 
 FOCUS = typer.Option(None, "--focus", help="Treatment whose coefficient is examined [default: the first].")

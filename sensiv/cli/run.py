@@ -27,6 +27,8 @@ def run(
 
     chosen = figure_formats(formats)
     parsed = parse_recipe(recipe)
+    if not formats:  # no --format: the recipe's own `formats` (PNG when it names none)
+        chosen = parsed.formats
     result = run_recipe(parsed)
     files = run_files(result, chosen)
     write_bundle(out, files)
