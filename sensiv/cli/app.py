@@ -23,9 +23,23 @@ app = typer.Typer(
 
 
 EXIT_BAD_INPUT = 2
-
-
 EXIT_SOLVER = 1
+
+
+def _show_version(value: bool) -> None:
+    if value:
+        from sensiv.core.version import __version__
+
+        typer.echo(f"sensiv {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(version: bool = typer.Option(False, "--version", callback=_show_version,
+                                       is_eager=True, help="Print the version and exit.")
+          ) -> None:
+    """Sensitivity analysis for instrumental-variable estimates whose instrument may have a
+    direct effect on the outcome."""
 
 
 def _fail(message: str) -> None:
