@@ -40,6 +40,23 @@ def run(
     text = [f"{parsed.title}: {len(result.runs)} analyses in {len(parsed.studies)} "
             f"stud{'y' if len(parsed.studies) == 1 else 'ies'}"]
     text += [f"  {r.study} / {r.analysis.label} ({r.analysis.kind})" for r in result.runs]
+    text += study_tables(parsed, result)
     text.append(f"Written to {out}/: report.md, report.html, tables/, figures/, results/")
     emit(document, "\n".join(text), as_json)
 
+
+
+def study_tables(parsed, result) -> list[str]:
+    """Each study's summary table for the terminal (the analyses that bound the effect), as
+    ``sensiv demo`` prints it."""
+    from sensiv.analyses.outputs import results_table
+    from sensiv.analyses.registry import entry
+    from sensiv.present.text import text_table
+
+    lines = []
+    for study in parsed.studies:
+        shown = [r.result for r in result.runs
+                 if r.study == study.name and entry(r.analysis.kind).in_summary]
+        if shown:
+            lines += ["", f"== {study.name} ==", text_table(results_table(shown))]
+    return lines + [""]

@@ -47,3 +47,12 @@ def test_no_formats_anywhere_gives_png(tmp_path):
     res = CliRunner().invoke(app, ["run", str(_recipe(tmp_path, "")), "--out", str(out)])
     assert res.exit_code == 0, res.output
     assert _figures(out) == {".png"}
+
+
+def test_run_prints_each_study_summary_table(tmp_path):
+    res = CliRunner().invoke(app, ["run", str(_recipe(tmp_path, "")), "--out",
+                                   str(tmp_path / "out")])
+    assert res.exit_code == 0, res.output
+    lines = res.stdout.splitlines()
+    at = lines.index("== study1 ==")
+    assert lines[at + 1].startswith("Analysis") and "2SLS: screened" in lines[at + 3]
