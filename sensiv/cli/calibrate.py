@@ -13,7 +13,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
+from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
                                 OUTCOME, SE, SMALL, TREATMENT, WEIGHT, emit, figure_formats,
                                 spec_from_options, write_outputs)
 
@@ -29,6 +29,8 @@ def calibrate(
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
     control: Optional[list[str]] = CONTROL,
+    categorical: Optional[list[str]] = CATEGORICAL,
+    where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[str] = CLUSTER,
     weight: Optional[str] = WEIGHT,
@@ -50,7 +52,8 @@ def calibrate(
 
     chosen = figure_formats(formats)
 
-    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
+    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
+                             where, categorical)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     groups = calibration.parse_groups(group or [])
     result = calibration.calibrate(data, spec, groups=groups,

@@ -12,7 +12,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
+from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
                                 OUTCOME, TREATMENT, WEIGHT, emit, figure_formats,
                                 spec_from_options, write_outputs)
 
@@ -32,6 +32,8 @@ def corrbound(
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
     control: Optional[list[str]] = CONTROL,
+    categorical: Optional[list[str]] = CATEGORICAL,
+    where: Optional[str] = WHERE,
     cluster: Optional[str] = CLUSTER,
     weight: Optional[str] = WEIGHT,
     max_ratio: float = MAX_RATIO,
@@ -62,7 +64,8 @@ def corrbound(
                          "positive integer such as 999")
     check_options(max_ratio=max_ratio, endogeneity=endogeneity, threshold=threshold,
                   points=points, reps=reps, seed=seed, confidence_level=level)
-    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
+    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
+                             where, categorical)
     check_one_treatment(spec)
     result = correlation_bounds(from_file(data, spec), max_ratio=max_ratio,
                                 endogeneity=endogeneity, threshold=threshold, points=points,

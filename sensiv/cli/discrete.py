@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, emit,
+from sensiv.cli.options import (WHERE, FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, emit,
                                 figure_formats, write_outputs)
 
 EXIT_SOLVER_FAILURE = 1
@@ -31,6 +31,7 @@ def discrete(
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
+    where: Optional[str] = WHERE,
     counts: bool = typer.Option(False, "--counts", help="DATA is a counts table: columns for the "
                                 "instrument, treatment and outcome plus a 'count' column."),
     budget: float = typer.Option(0.1, "--budget", help="Largest share of units whose outcome "
@@ -66,7 +67,12 @@ def discrete(
 
     x, z = _one(treatment, "treatment"), _one(instrument, "instrument")
     if counts:
+        from sensiv.core.errors import InputError
         from sensiv.partial_id.discrete_data import read_counts
+
+        if where is not None:
+            raise InputError("--where filters rows of unit-level data, not a counts table "
+                             "(--counts): filter the counts file itself, or drop --where")
 
         table = read_counts(data, outcome=outcome, treatment=x, instrument=z)
     else:
@@ -74,7 +80,7 @@ def discrete(
         from sensiv.partial_id.discrete_data import tabulate
 
         table = tabulate(from_file(data, Spec(outcome=outcome, treatments=(x,),
-                                              instruments=(z,))))
+                                              instruments=(z,), where=where)))
     try:
         result = discrete_bounds(table, budget, monotone=monotone, defier_budget=defier_budget,
                                  threshold=threshold, reps=reps, seed=seed, points=points,

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
+from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
                                 OUTCOME, SE, SMALL, TREATMENT, WEIGHT, emit, figure_formats,
                                 spec_from_options, write_outputs)
 
@@ -21,6 +21,8 @@ def fit(
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
     control: Optional[list[str]] = CONTROL,
+    categorical: Optional[list[str]] = CATEGORICAL,
+    where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[str] = CLUSTER,
     weight: Optional[str] = WEIGHT,
@@ -38,7 +40,8 @@ def fit(
     from sensiv.present.markdown import fit_markdown
 
     chosen = figure_formats(formats)
-    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant)
+    spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
+                             where, categorical)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
     document = result.to_dict()

@@ -22,6 +22,12 @@ INSTRUMENT = typer.Option(..., "--instrument", help="Excluded instrument column;
 CONTROL = typer.Option(None, "--control", help="Exogenous control column; repeat. Text columns become indicators (first level dropped).")
 
 
+WHERE = typer.Option(None, "--where", help="Keep only the rows matching a filter such as \"age >= 18 and region in ['north', 'east']\" (==, !=, <, <=, >, >=, in [...], is missing, and, or, not, parentheses).")
+
+
+CATEGORICAL = typer.Option(None, "--categorical", help="Integer-coded control to turn into indicators (first level dropped); repeat for several.")
+
+
 SE = typer.Option(None, "--se", help="Covariance: classic, robust or cluster [default: cluster if --cluster is given, else robust].")
 
 
@@ -74,12 +80,13 @@ def write_outputs(out: Optional[Path], result, files: dict, formats: tuple[str, 
     write_bundle(out, {**files, **table_files(result), **figure_files(result, formats)})
 
 
-def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant):
+def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
+                      where=None, categorical=None):
     from sensiv.data import Spec
 
     return Spec(outcome=outcome, treatments=tuple(treatment), instruments=tuple(instrument),
                 controls=tuple(control or ()), cluster=cluster, weight=weight,
-                constant=constant)
+                constant=constant, where=where, categorical=tuple(categorical or ()))
 
 
 def emit(document: dict, text: str, as_json: bool) -> None:
@@ -91,8 +98,9 @@ def emit(document: dict, text: str, as_json: bool) -> None:
         typer.echo(text)
 
 
-def data_source(data, outcome, treatment, instrument, control, cluster, weight, constant):
+def data_source(data, outcome, treatment, instrument, control, cluster, weight, constant,
+                where=None, categorical=None):
     from sensiv.data import from_file
 
     return from_file(data, spec_from_options(outcome, treatment, instrument, control, cluster,
-                                             weight, constant))
+                                             weight, constant, where, categorical))

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT, JSON, LEVEL,
+from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT, JSON, LEVEL,
                                 OUTCOME, SE, SMALL, TREATMENT, WEIGHT, data_source, emit,
                                 figure_formats, write_outputs)
 
@@ -21,6 +21,8 @@ def prior(
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
     control: Optional[list[str]] = CONTROL,
+    categorical: Optional[list[str]] = CATEGORICAL,
+    where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[str] = CLUSTER,
     weight: Optional[str] = WEIGHT,
@@ -51,7 +53,7 @@ def prior(
     chosen = figure_formats(formats)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
-                           constant)
+                         constant, where, categorical)
     result = prior_layer.prior_analysis(
         source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
         se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed,

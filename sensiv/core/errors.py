@@ -20,5 +20,13 @@ class InaccurateSolveWarning(UserWarning):
     """An optimisation solver returned a solution it flags as inaccurate."""
 
 
+class IdentifierWarning(UserWarning):
+    """A numeric control looks like an identifier (integer codes with many distinct values)."""
+
+
+class FewClustersWarning(UserWarning):
+    """Too few clusters for cluster-robust intervals to be trusted at their nominal level."""
+
+
 class SolverError(RuntimeError):
     """An optimisation solver failed; the status is in the message."""

@@ -51,9 +51,38 @@ def text_controls(spec: Spec, samples: Sequence[pd.DataFrame], description: str)
                 "numeric nor text; convert it to numbers (e.g. a year or a day count) or to "
                 "strings to use it as a categorical control"
             )
-        if "text" in kinds:
+        if "text" in kinds or name in spec.categorical:
             text.append(name)
     return text
+
+
+IDENTIFIER_SHARE = 0.05
+IDENTIFIER_LEVELS = 50
+"""An integer control with more distinct values than this share of rows and this count
+looks like an identifier (common practice, no source: thresholds named in the issue)."""
+
+
+def identifier_notes(spec: Spec, samples: Sequence[pd.DataFrame], text: Sequence[str],
+                     description: str) -> list[str]:
+    """Notes for numeric controls that look like identifiers (integer codes with many
+    distinct values), judged on the sampled leading rows."""
+    notes = []
+    for name in spec.controls:
+        if name in text:
+            continue
+        values = np.concatenate([as_float(s[name], "control", name, description, 0)
+                                 for s in samples])
+        values = values[np.isfinite(values)]
+        if values.size == 0 or not np.all(values == np.round(values)):
+            continue
+        distinct = len(np.unique(values))
+        if distinct > IDENTIFIER_LEVELS and distinct > IDENTIFIER_SHARE * values.size:
+            notes.append(
+                f"control {name!r} in {description} holds integer codes with {distinct} "
+                f"distinct values in {values.size} rows, so it looks like an identifier; as a "
+                "control it enters linearly, which is rarely meant: use --absorb or "
+                "--categorical")
+    return notes
 
 
 def data_row(first_row: int, position: int) -> int:
@@ -103,9 +132,32 @@ def missing_mask(series: pd.Series) -> np.ndarray:
     return mask
 
 
-def level_strings(series: pd.Series) -> np.ndarray:
-    """The labels of a text control as Python strings (the form its levels are kept in)."""
-    return series.astype(str).to_numpy(dtype=object)
+def level_strings(series: pd.Series, numeric: bool = False) -> np.ndarray:
+    """The labels of a text control as Python strings (the form its levels are kept in).
+
+    With ``numeric`` (an integer-coded categorical control) numbers are written the same way
+    whether a chunk holds them as integers or floats (``3`` and ``3.0`` are both ``"3"``).
+    """
+    labels = series.astype(str).to_numpy(dtype=object)
+    if numeric:  # numbers read as text ("2.0" from a CSV) get the same label as numbers
+        import pandas as pd
+
+        values = pd.to_numeric(series, errors="coerce").to_numpy(dtype=np.float64,
+                                                                 na_value=np.nan)
+        finite = np.isfinite(values)
+        unique, inverse = np.unique(values[finite], return_inverse=True)
+        labels[finite] = np.array([format(v, ".15g") for v in unique], dtype=object)[inverse]
+    return labels
+
+
+def level_order(labels: set[str], numeric: bool) -> tuple[str, ...]:
+    """Levels sorted as ``str``, or by their numbers for a numeric categorical control."""
+    if numeric:
+        try:
+            return tuple(sorted(labels, key=float))
+        except ValueError:
+            pass
+    return tuple(sorted(labels))
 
 
 def level_index(levels: tuple[str, ...]) -> pd.Index:
@@ -123,9 +175,12 @@ class Tally:
         self.description = description
         self.rows = 0
         self.kept = 0
+        self.filtered = 0
+        self.where = spec.where
         self.missing = dict.fromkeys(self.roles, 0)
 
-    def add(self, rows: int, kept: int, missing: dict[str, int]) -> None:
+    def add(self, rows: int, kept: int, missing: dict[str, int], filtered: int = 0) -> None:
+        self.filtered += filtered
         self.rows += rows
         self.kept += kept
         for name, count in missing.items():
@@ -133,6 +188,10 @@ class Tally:
 
     def finish(self) -> None:
         where = self.description
+        if self.rows == 0 and self.filtered:
+            raise InputError(
+                f"the row filter {self.where!r} keeps none of the {self.filtered} rows of "
+                f"{where}; loosen the filter (check its values and the columns' coding)")
         if self.rows == 0:
             raise InputError(f"{where} has no data rows; supply a data set with at least one row")
         empty = [name for name, count in self.missing.items() if count == self.rows]
@@ -154,22 +213,29 @@ class Tally:
 
 
 def scan_levels(frames: Callable[[], Iterator[pd.DataFrame]], spec: Spec, text: list[str],
-                description: str) -> dict[str, tuple[str, ...]]:
-    """One cheap pass: levels of each text control among rows kept by listwise deletion."""
+                description: str, keep: Callable[[pd.DataFrame], np.ndarray] | None = None
+                ) -> dict[str, tuple[str, ...]]:
+    """One cheap pass: levels of each text control among rows kept by the row filter
+    (``keep`` gives the mask of a frame) and listwise deletion."""
     used = used_columns(spec)
     found: dict[str, set[str]] = {name: set() for name in text}
     tally = Tally(spec, description)
     for frame in frames():
+        filtered = 0
+        if keep is not None:
+            mask = keep(frame)
+            filtered = int((~mask).sum())
+            frame = frame[mask]
         masks = {name: missing_mask(frame[name]) for name in used}
         drop = np.logical_or.reduce(list(masks.values()))
         tally.add(len(frame), int((~drop).sum()),
-                  {name: int(mask.sum()) for name, mask in masks.items()})
+                  {name: int(mask.sum()) for name, mask in masks.items()}, filtered)
         for name in text:
-            found[name].update(level_strings(frame[name][~drop]))
+            found[name].update(level_strings(frame[name][~drop], name in spec.categorical))
     tally.finish()
     levels = {}
     for name in text:
-        levels[name] = tuple(sorted(found[name]))
+        levels[name] = level_order(found[name], name in spec.categorical)
         if len(levels[name]) < 2:
             raise InputError(
                 f"control {name!r} in {description} takes the single value "

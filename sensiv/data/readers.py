@@ -27,7 +27,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.data.source import Source, build_source
-from sensiv.data.spec import Spec, used_columns
+from sensiv.data.spec import Spec, read_columns
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -82,7 +82,7 @@ def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None
     """
     _check_frame(frame, "frame")
     rows = None if chunk_rows is None else _check_chunk_rows(chunk_rows)
-    used = used_columns(spec) if isinstance(spec, Spec) else []
+    used = read_columns(spec) if isinstance(spec, Spec) else []
 
     def make_frames(text: list[str]) -> Callable[[], Iterator[pd.DataFrame]]:
         def frames() -> Iterator[pd.DataFrame]:
@@ -111,7 +111,7 @@ def from_chunks(frames: Sequence[pd.DataFrame], spec: Spec) -> Source:
     description = f"DataFrame chunks ({len(frames)})"
     common = [name for name in frames[0].columns
               if all(name in frame.columns for frame in frames[1:])]
-    used = used_columns(spec) if isinstance(spec, Spec) else []
+    used = read_columns(spec) if isinstance(spec, Spec) else []
 
     def make_frames(text: list[str]) -> Callable[[], Iterator[pd.DataFrame]]:
         return lambda: (frame[used] for frame in frames)
@@ -274,7 +274,7 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
     resolved, fmt = _file(path)
     rows = _check_chunk_rows(chunk_rows)
     available = _header(resolved, fmt)
-    used = used_columns(spec) if isinstance(spec, Spec) else []
+    used = read_columns(spec) if isinstance(spec, Spec) else []
 
     def samples() -> list[pd.DataFrame]:
         first = next(_reader(resolved, fmt, used, TYPE_SAMPLE_ROWS)(), None)

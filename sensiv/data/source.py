@@ -31,12 +31,16 @@ from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
+import warnings
+
 import numpy as np
 
-from sensiv.core.errors import InputError
-from sensiv.data.convert import (Tally, as_float, data_row, level_index, level_strings,
-                                 missing_mask, scan_levels, text_controls)
-from sensiv.data.spec import Spec, check_columns, roles
+from sensiv.core.errors import IdentifierWarning, InputError
+from sensiv.data.convert import (Tally, as_float, data_row, dtype_kind, identifier_notes,
+                                 level_index, level_strings, missing_mask, scan_levels,
+                                 text_controls)
+from sensiv.data.spec import Spec, check_columns, roles, row_filter
+from sensiv.data.where import Node, check_kinds, filter_columns, keep_mask
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -71,7 +75,8 @@ class Chunk:
     (Fortran-contiguous: each column is one contiguous block, as the moments read them), finite.
 
     ``weights`` (all > 0) and ``clusters`` (no missing) are row-aligned with ``values`` or
-    ``None``; ``n_dropped`` counts rows of this chunk dropped for a missing value.  A chunk
+    ``None``; ``n_dropped`` counts rows of this chunk dropped for a missing value and
+    ``n_filtered`` the rows removed before that by the row filter (``Spec.where``).  A chunk
     may have zero rows when all of its rows were dropped.
     """
 
@@ -79,6 +84,7 @@ class Chunk:
     weights: np.ndarray | None
     clusters: np.ndarray | None
     n_dropped: int
+    n_filtered: int = 0
 
 
 @dataclass(frozen=True, slots=True)
@@ -96,6 +102,17 @@ class Source:
     _levels: dict[str, tuple[str, ...]] = field(repr=False, compare=False)
     # In-memory sources keep the chunks they validated, so later passes do not convert again.
     _cache: tuple[Chunk, ...] | None = field(default=None, repr=False, compare=False)
+    # The parsed row filter and the kind ("numeric" / "text") of each column it reads.
+    _filter: tuple[Node, dict[str, str]] | None = field(default=None, repr=False, compare=False)
+    notes: tuple[str, ...] = ()
+    """Conditions found while reading the data that a report should carry (e.g. a control
+    that looks like an identifier)."""
+
+    def keep(self, frame: pd.DataFrame) -> np.ndarray:
+        """Mask of the rows of a raw frame that the row filter keeps (all without one)."""
+        if self._filter is None:
+            return np.ones(len(frame), dtype=bool)
+        return keep_mask(self._filter[0], frame, self._filter[1])
 
     def chunks(self) -> Iterator[Chunk]:
         """Yield clean chunks from the first row on; each call starts again.
@@ -150,13 +167,33 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
     return numeric, missing_counts, drop
 
 
+def _filtered(frame: pd.DataFrame, source: Source) -> tuple[pd.DataFrame, int]:
+    """The rows of ``frame`` kept by the row filter and the number removed."""
+    if source._filter is None:
+        return frame, 0
+    mask = source.keep(frame)
+    removed = int((~mask).sum())
+    return (frame[mask] if removed else frame), removed
+
+
 def _to_chunk(frame: pd.DataFrame, source: Source, tally: Tally) -> Chunk:
+    frame, n_filtered = _filtered(frame, source)
+    try:
+        return _clean_chunk(frame, source, tally, n_filtered)
+    except InputError as exc:
+        if source._filter is None:
+            raise
+        raise InputError(f"{exc} (data rows are counted among the rows kept by the row "
+                         f"filter {source.spec.where!r})") from exc
+
+
+def _clean_chunk(frame: pd.DataFrame, source: Source, tally: Tally, n_filtered: int) -> Chunk:
     spec, layout, where = source.spec, source.layout, source.description
     first_row = tally.rows
     numeric, missing_counts, drop = _numeric_columns(frame, source, first_row)
     keep = ~drop
     n_kept = int(keep.sum())
-    tally.add(len(frame), n_kept, missing_counts)
+    tally.add(len(frame), n_kept, missing_counts, n_filtered)
 
     # Column-major: every column is written (and later read) as one contiguous block.
     values = np.empty((n_kept, len(layout.columns)), dtype=np.float64, order="F")
@@ -168,9 +205,10 @@ def _to_chunk(frame: pd.DataFrame, source: Source, tally: Tally) -> Chunk:
             j += 1
             continue
         levels = source._levels[name]
-        codes = np.asarray(level_index(levels).get_indexer(level_strings(frame[name][keep])))
+        labels = level_strings(frame[name][keep], name in spec.categorical)
+        codes = np.asarray(level_index(levels).get_indexer(labels))
         if (codes < 0).any():
-            unknown = level_strings(frame[name][keep])[int(np.argmax(codes < 0))]
+            unknown = labels[int(np.argmax(codes < 0))]
             raise InputError(
                 f"control {name!r} in {where} has level {unknown!r} in rows "
                 f"{data_row(first_row, 0)}-{data_row(first_row, len(frame) - 1)} that was "
@@ -185,7 +223,24 @@ def _to_chunk(frame: pd.DataFrame, source: Source, tally: Tally) -> Chunk:
         weights = np.ascontiguousarray(numeric[spec.weight][keep], dtype=np.float64)
     if spec.cluster is not None:
         clusters = frame[spec.cluster].to_numpy()[keep]
-    return Chunk(values, weights, clusters, len(frame) - n_kept)
+    return Chunk(values, weights, clusters, len(frame) - n_kept, n_filtered)
+
+
+def _filter_kinds(spec: Spec, samples: Sequence[pd.DataFrame], text: list[str],
+                  description: str) -> tuple[Node, dict[str, str]] | None:
+    """The parsed filter with each of its columns' kind, checked against the comparisons."""
+    tree = row_filter(spec)
+    if tree is None:
+        return None
+    kinds = {}
+    for name in filter_columns(tree):
+        found = {dtype_kind(sample[name].dtype) for sample in samples}
+        if name in text and name not in spec.categorical:
+            found = {"text"}
+        kinds[name] = ("other" if "other" in found else "text" if "text" in found
+                       else "numeric")
+    check_kinds(tree, kinds, spec.where or "", description)
+    return tree, kinds
 
 
 def build_source(spec: Spec, description: str, available: Sequence[Any],
@@ -212,9 +267,20 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
     if not isinstance(spec, Spec):
         raise InputError(f"spec must be a sensiv.data.Spec; got {type(spec).__name__}")
     check_columns(spec, available, description)
-    text = text_controls(spec, samples(), description)
-    frames = make_frames(text)
-    levels = scan_levels(frames, spec, text, description) if text else {}
+    sampled = samples()
+    text = text_controls(spec, sampled, description)
+    row_filter_kinds = _filter_kinds(spec, sampled, text, description)
+    text_filter = [name for name, kind in (row_filter_kinds or (None, {}))[1].items()
+                   if kind == "text" and name not in text]
+    frames = make_frames(text + text_filter)
+    notes = identifier_notes(spec, sampled, text, description)
+    for note in notes:
+        warnings.warn(note, IdentifierWarning, stacklevel=3)
+    keep = None
+    if row_filter_kinds is not None:
+        def keep(frame: pd.DataFrame) -> np.ndarray:
+            return keep_mask(row_filter_kinds[0], frame, row_filter_kinds[1])
+    levels = scan_levels(frames, spec, text, description, keep) if text else {}
     controls: list[str] = []
     for name in spec.controls:
         controls += [f"{name}[{level}]" for level in levels[name][1:]] if name in levels else [name]
@@ -227,7 +293,8 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
             f"indicator column name(s) {sorted(clash)} in {description} clash with other "
             "columns; rename the text control or the clashing column"
         )
-    source = Source(spec, layout, description, frames, levels)
+    source = Source(spec, layout, description, frames, levels, None, row_filter_kinds,
+                    tuple(notes))
     if eager:
         return dataclasses.replace(source, _cache=tuple(source.chunks()))
     return source

@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.data.where import Node, filter_columns, parse_filter
 
 MAX_LISTED_COLUMNS = 25
 """Available columns listed in an unknown-column message before the list is cut."""
@@ -70,6 +71,13 @@ class Spec:
         Column of positive analytic weights.
     constant : bool, default True
         Whether the model has an intercept (added analytically, never as a column).
+    where : str or None
+        Row filter in sensiv's small expression language (see :mod:`sensiv.data.where`),
+        e.g. ``"age >= 18 and region in ['north', 'east']"``; parsed (and its syntax
+        checked) when the Spec is built.  Its columns are read but play no role.
+    categorical : sequence of str, default ()
+        Numeric (integer-coded) controls to expand into indicators like text controls;
+        a name not already among ``controls`` is added to them.
 
     Raises
     ------
@@ -85,11 +93,18 @@ class Spec:
     cluster: str | None = None
     weight: str | None = None
     constant: bool = True
+    where: str | None = None
+    categorical: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         _check_name(self.outcome, "outcome")
-        for role in ("treatments", "instruments", "controls"):
-            object.__setattr__(self, role, _names(getattr(self, role), role[:-1]))
+        for role in ("treatments", "instruments", "controls", "categorical"):
+            object.__setattr__(self, role, _names(getattr(self, role), role.rstrip("s")))
+        object.__setattr__(self, "categorical", tuple(dict.fromkeys(self.categorical)))
+        extra = tuple(name for name in self.categorical if name not in self.controls)
+        object.__setattr__(self, "controls", self.controls + extra)
+        if self.where is not None:
+            parse_filter(self.where)  # a syntax error is the caller's mistake, raised now
         for role in ("cluster", "weight"):
             if getattr(self, role) is not None:
                 _check_name(getattr(self, role), role)
@@ -130,8 +145,25 @@ def roles(spec: Spec) -> list[tuple[str, str]]:
 
 
 def used_columns(spec: Spec) -> list[str]:
-    """Every column the model reads, in the order of :func:`roles`."""
+    """Every column the model uses, in the order of :func:`roles`."""
     return [name for _, name in roles(spec)]
+
+
+def row_filter(spec: Spec) -> Node | None:
+    """The parsed row filter of ``spec`` (``None`` without one)."""
+    return parse_filter(spec.where) if spec.where is not None else None
+
+
+def filter_only_columns(spec: Spec) -> list[str]:
+    """Columns read only by the row filter (not model roles)."""
+    tree = row_filter(spec)
+    used = set(used_columns(spec))
+    return [name for name in filter_columns(tree) if name not in used] if tree else []
+
+
+def read_columns(spec: Spec) -> list[str]:
+    """Every column read from the data: the model's columns, then the filter's others."""
+    return used_columns(spec) + filter_only_columns(spec)
 
 
 def check_columns(spec: Spec, available: Sequence[Any], description: str) -> None:
@@ -142,7 +174,8 @@ def check_columns(spec: Spec, available: Sequence[Any], description: str) -> Non
     """
     labels = [str(name) for name in available]
     problems = []
-    for role, name in roles(spec):
+    checked = roles(spec) + [("row-filter", name) for name in filter_only_columns(spec)]
+    for role, name in checked:
         count = sum(1 for label in available if label == name)
         if count > 1:
             raise InputError(

@@ -99,3 +99,19 @@ def check_clusters(sums: ScoreSums | None, cluster: str | None) -> None:
         raise InputError(f"cluster variable '{cluster}' has only {sums.n_clusters} group in the "
                          "rows used; cluster-robust inference needs many groups: choose --se "
                          "robust or another cluster variable")
+
+
+FEW_CLUSTERS = 30
+"""Clusters below which cluster-robust intervals are flagged: a rule of thumb (common
+practice, no source)."""
+
+
+def few_clusters_note(n_clusters: int | None) -> str | None:
+    """The warning text when there are fewer than :data:`FEW_CLUSTERS` clusters, else ``None``."""
+    if n_clusters is None or n_clusters >= FEW_CLUSTERS:
+        return None
+    return (f"few clusters: the cluster variable has only {n_clusters} groups (< "
+            f"{FEW_CLUSTERS}); cluster-robust standard errors are then biased downwards and "
+            "the intervals may under-cover: read them with care (e.g. compare with a "
+            "wild-cluster bootstrap)")
+

@@ -27,13 +27,14 @@ from typing import Literal
 
 import numpy as np
 
-from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.core.errors import FewClustersWarning, InputError, WeakInstrumentWarning
 from sensiv.core.results import Interval, describe, format_number, intervals_to_lists, json_number
 from sensiv.data.readers import load
+from sensiv.data.where import filter_assumptions
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
 from sensiv.estimation.covariance import (check_clusters, coefficient_covariance,
-                                          normalise_weights, score_blocks)
+                                          few_clusters_note, normalise_weights, score_blocks)
 from sensiv.estimation.design import CONSTANT, Design, build_design, check_design
 from sensiv.estimation.diagnostics import OverId, anderson_rubin_set, overid_test
 from sensiv.estimation.first_stage import FirstStage, first_stage_covariance, first_stages
@@ -103,6 +104,8 @@ class IVFit:
     ar_set: tuple[Interval, ...] | None
     overid: OverId | None
     notes: tuple[str, ...] = field(default=())
+    n_filtered: int = 0
+    where: str | None = None
 
     @property
     def caution(self) -> str:
@@ -138,13 +141,15 @@ class IVFit:
             "the treatment (see the first-stage F)",
             "linear model with a constant effect of the treatment",
             se_words[self.se_type] + (", with small-sample corrections" if self.small else ""),
-        ]
+        ] + filter_assumptions(self.where, self.n_filtered)
 
     def to_dict(self) -> dict:
         names = self.reported_names()
         out = {
             "n": self.n,
             "n_dropped": self.n_dropped,
+            "n_filtered": self.n_filtered,
+            "where": self.where,
             "coef": {k: json_number(self.tsls.value(k)) for k in names},
             "se": {k: json_number(self.tsls.std_error(k)) for k in names},
             "ci": {k: self.conf_int(k).to_list() for k in names},
@@ -237,8 +242,13 @@ def _coefficients(design: Design, fit: LinearFit, cov_star: np.ndarray) -> Coeff
 
 
 def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
-                     confidence_level: float, small: bool, weighted: bool) -> IVFit:
-    """Assemble the fit and its diagnostics from pass-1 pieces and pass-2 sums."""
+                     confidence_level: float, small: bool, weighted: bool,
+                     where: str | None = None, data_notes: tuple[str, ...] = ()) -> IVFit:
+    """Assemble the fit and its diagnostics from pass-1 pieces and pass-2 sums.
+
+    ``where`` is the row filter the data went through (reported in the assumptions);
+    ``data_notes`` are the data layer's notes (:attr:`sensiv.data.Source.notes`).
+    """
     n_clusters = sums.n_clusters if sums is not None else None
     meats = sums.meats if sums is not None else {}
     d = pieces.design
@@ -254,7 +264,11 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
     ar = None
     if len(d.treatments) == 1:
         ar = anderson_rubin_set(pieces, joint, coef, confidence_level, small)
-    notes = []
+    notes = list(data_notes)
+    few = few_clusters_note(n_clusters) if se == "cluster" else None
+    if few is not None:
+        notes.append(few)
+        warnings.warn(few, FewClustersWarning, stacklevel=3)
     for fs in stages:
         strength = fs.effective_f if fs.effective_f is not None else fs.f
         label = "effective first-stage F" if fs.effective_f is not None else "first-stage F"
@@ -271,7 +285,7 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         n_dropped=pieces.moments.n_dropped, n_clusters=n_clusters, se_type=se, small=small,
         confidence_level=confidence_level, weighted=weighted, tsls=tsls, ols=ols,
         first_stages=stages, ar_set=ar, overid=overid_test(pieces, sums, se),
-        notes=tuple(notes))
+        notes=tuple(notes), n_filtered=pieces.moments.n_filtered, where=where)
 
 
 def check_options(se: str, cluster: str | None, confidence_level: float) -> None:
@@ -318,7 +332,8 @@ def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
             moments)
         check_clusters(sums, spec.cluster)
     result = fit_from_moments(pieces, sums, layout, se=se, confidence_level=confidence_level,
-                              small=small, weighted=spec.weight is not None)
+                              small=small, weighted=spec.weight is not None, where=spec.where,
+                              data_notes=getattr(source, "notes", ()))
     return result, pieces, sums
 
 

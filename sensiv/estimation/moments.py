@@ -43,6 +43,8 @@ class Moments:
         Weighted means ``μ``.
     comoment : ndarray, shape (p, p)
         ``Σ wᵢ (dᵢ − μ)(dᵢ − μ)'``.
+    n_filtered : int
+        Rows removed by the row filter before listwise deletion.
     """
 
     columns: tuple[str, ...]
@@ -51,24 +53,26 @@ class Moments:
     weight_sum: float
     mean: np.ndarray
     comoment: np.ndarray
+    n_filtered: int = 0
 
     def __add__(self, other: Moments) -> Moments:
         """Combine the moments of two disjoint sets of rows (Chan, Golub & LeVeque 1979)."""
         if self.columns != other.columns:
             raise ValueError("cannot add moments of different columns")
+        filtered = self.n_filtered + other.n_filtered
         if other.n == 0:
             return Moments(self.columns, self.n, self.n_dropped + other.n_dropped,
-                           self.weight_sum, self.mean, self.comoment)
+                           self.weight_sum, self.mean, self.comoment, filtered)
         if self.n == 0:
             return Moments(other.columns, other.n, self.n_dropped + other.n_dropped,
-                           other.weight_sum, other.mean, other.comoment)
+                           other.weight_sum, other.mean, other.comoment, filtered)
         total = self.weight_sum + other.weight_sum
         delta = other.mean - self.mean
         mean = self.mean + delta * (other.weight_sum / total)
         comoment = (self.comoment + other.comoment
                     + np.outer(delta, delta) * (self.weight_sum * other.weight_sum / total))
         return Moments(self.columns, self.n + other.n, self.n_dropped + other.n_dropped,
-                       total, mean, comoment)
+                       total, mean, comoment, filtered)
 
     @property
     def augmented(self) -> np.ndarray:
@@ -103,7 +107,7 @@ def empty_moments(columns: Sequence[str]) -> Moments:
 
 
 def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarray | None,
-                  n_dropped: int = 0) -> Moments:
+                  n_dropped: int = 0, n_filtered: int = 0) -> Moments:
     """Moments of one block of rows, by the two-pass (mean, then centred product) formula.
 
     Parameters
@@ -116,6 +120,8 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
         Positive analytic weights.
     n_dropped : int
         Rows of this block dropped before ``values`` was formed (carried along for reporting).
+    n_filtered : int
+        Rows of this block removed by the row filter (carried along for reporting).
 
     Examples
     --------
@@ -127,7 +133,7 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
     n = values.shape[0]
     if n == 0:
         out = empty_moments(columns)
-        return Moments(out.columns, 0, n_dropped, 0.0, out.mean, out.comoment)
+        return Moments(out.columns, 0, n_dropped, 0.0, out.mean, out.comoment, n_filtered)
     # Shift by the first row before summing, so that a column whose mean dwarfs its spread
     # (a calendar year, incomes in cents) is accumulated as small deviations: the mean is then
     # accurate to rounding of the spread, not of the level.
@@ -145,14 +151,15 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
         comoment = (centred * weights[:, None]).T @ centred
     mean = shift + offset
     comoment = 0.5 * (comoment + comoment.T)
-    return Moments(tuple(columns), n, n_dropped, total, mean, comoment)
+    return Moments(tuple(columns), n, n_dropped, total, mean, comoment, n_filtered)
 
 
 def accumulate(chunks: Iterable, columns: Sequence[str]) -> Moments:
     """Pass 1: moments of every chunk (objects with ``values``, ``weights``, ``n_dropped``), summed."""
     total = empty_moments(columns)
     for chunk in chunks:
-        total = total + chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped)
+        total = total + chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped,
+                                      getattr(chunk, "n_filtered", 0))
     return total
 
 

@@ -178,7 +178,7 @@ def correlation_bounds(data, spec=None, *, max_ratio: float = DEFAULT_MAX_RATIO,
     layout, pc = prepared.layout, prepared.pc
     signs = _SIGNS[endogeneity]
     curve, by_sign, min_ratio = _sets(pc, signs, float(max_ratio), int(points))
-    notes = _notes(curve[-1], min_ratio, max_ratio, pc, layout, curve[0])
+    notes = [*prepared.notes, *_notes(curve[-1], min_ratio, max_ratio, pc, layout, curve[0])]
     boot = _inference(prepared, signs, float(max_ratio), curve[-1].hull, reps, seed,
                       confidence_level, progress, notes)
     return CorrelationBounds(
@@ -191,7 +191,8 @@ def correlation_bounds(data, spec=None, *, max_ratio: float = DEFAULT_MAX_RATIO,
         instrument_treatment_corr=tuple(float(v) for v in pc.zx),
         pieces=curve[-1].pieces, pieces_by_sign=by_sign, curve=curve,
         breakdown_ratio=breakdown_ratio(pc, signs, float(threshold)),
-        min_ratio_consistent=min_ratio, bootstrap=boot, notes=tuple(notes))
+        min_ratio_consistent=min_ratio, bootstrap=boot, notes=tuple(notes),
+        n_filtered=prepared.moments.n_filtered, where=prepared.spec.where)
 
 
 @dataclass(frozen=True, slots=True)
@@ -207,6 +208,7 @@ class _Prepared:
     tsls: float
     ols: float
     pc: PartialCorrelations
+    notes: tuple[str, ...] = ()
 
 
 def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepared:
@@ -222,7 +224,7 @@ def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepare
         raise InputError(f"outcome '{layout.outcome}' is fully explained by the controls (no "
                          "variation left after partialling them out); check the model")
     return _Prepared(source.spec, layout, chunks, moments, float(fitted.tsls.params[-1]),
-                     float(fitted.ols.params[-1]), pc)
+                     float(fitted.ols.params[-1]), pc, tuple(getattr(source, "notes", ())))
 
 
 def _sets(pc: PartialCorrelations, signs: Sequence[int], max_ratio: float, points: int

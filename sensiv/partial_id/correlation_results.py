@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from sensiv.core.results import Interval, describe, format_number, json_number
+from sensiv.data.where import filter_assumptions
 
 CAUTION = ("Caution: these bounds hold only under the stated correlation restriction (each "
            "instrument correlated with the error in the treatment's direction and at most r̄ "
@@ -119,6 +120,8 @@ class CorrelationBounds:
     min_ratio_consistent: float | None
     bootstrap: BootstrapSummary | None
     notes: tuple[str, ...]
+    n_filtered: int = 0
+    where: str | None = None
 
     @property
     def caution(self) -> str:
@@ -157,7 +160,7 @@ class CorrelationBounds:
             f"{format_number(self.max_ratio)} times the treatment's in absolute value "
             "(r̄ = 0 is the exclusion restriction)",
             sign,
-        ]
+        ] + filter_assumptions(self.where, self.n_filtered)
         if self.bootstrap is not None:
             unit = (f"whole clusters ({self.bootstrap.clusters})"
                     if self.bootstrap.clusters is not None else "rows")
@@ -201,6 +204,8 @@ class CorrelationBounds:
             "constant": self.constant,
             "n": self.n,
             "n_dropped": self.n_dropped,
+            "n_filtered": self.n_filtered,
+            "where": self.where,
             "weighted": self.weighted,
             "bootstrap": self.bootstrap.to_dict() if self.bootstrap else None,
             "n_failed_reps": self.bootstrap.n_failed if self.bootstrap else None,

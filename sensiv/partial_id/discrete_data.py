@@ -26,7 +26,7 @@ from __future__ import annotations
 import difflib
 import os
 from collections.abc import Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -70,6 +70,8 @@ class CountsTable:
         and ``Y = outcome_levels[l]``; every level of ``Z`` has at least one unit.
     n_dropped : int
         Rows dropped for a missing value (individual-level data only).
+    n_filtered : int
+        Rows removed by the row filter before that (individual-level data only).
     description : str
         Where the table came from, for messages and reports.
     """
@@ -83,6 +85,7 @@ class CountsTable:
     counts: np.ndarray = field(repr=False)
     n_dropped: int = 0
     description: str = "counts table"
+    n_filtered: int = 0
 
     @property
     def n(self) -> int:
@@ -112,6 +115,7 @@ class CountsTable:
             ],
             "n": self.n,
             "n_dropped": self.n_dropped,
+            "n_filtered": self.n_filtered,
         }
 
 
@@ -208,9 +212,10 @@ def tabulate(source: Source) -> CountsTable:
     names = (spec.outcome, spec.treatments[0], spec.instruments[0])
     found: list[dict[float, int]] = [{}, {}, {}]  # distinct values of y, x, z so far
     cells: dict[tuple[float, float, float], int] = {}
-    dropped = 0
+    dropped = filtered = 0
     for chunk in source.chunks():
         dropped += chunk.n_dropped
+        filtered += chunk.n_filtered
         values = chunk.values[:, :3]  # columns: outcome, treatment, instrument
         for column, role, name, seen in ((2, "instrument", names[2], found[2]),
                                          (1, "treatment", names[1], found[1]),
@@ -223,7 +228,8 @@ def tabulate(source: Source) -> CountsTable:
             cells[(z, x, y)] = cells.get((z, x, y), 0) + count
     keys = np.array(list(cells), dtype=np.float64).reshape(-1, 3)
     weights = np.array(list(cells.values()), dtype=np.int64)
-    return _table(keys[:, 0], keys[:, 1], keys[:, 2], weights, names, dropped, where)
+    table = _table(keys[:, 0], keys[:, 1], keys[:, 2], weights, names, dropped, where)
+    return replace(table, n_filtered=filtered)
 
 
 def counts_from_frame(frame: pd.DataFrame, *, outcome: str, treatment: str, instrument: str,

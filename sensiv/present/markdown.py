@@ -26,7 +26,9 @@ def fit_markdown(fit) -> str:
         f"Instruments: {', '.join(fit.instruments)}. Controls: "
         f"{', '.join(fit.controls) if fit.controls else 'none'}"
         f"{' and a constant' if fit.constant else ''}. n = {fit.n} "
-        f"({fit.n_dropped} rows dropped for missing values). Covariance: {fit.se_type}"
+        f"({fit.n_dropped} rows dropped for missing values"
+        f"{f'; {fit.n_filtered} filtered out by the row filter {fit.where!r}' if fit.where else ''}"
+        f"). Covariance: {fit.se_type}"
         f"{' with small-sample corrections' if fit.small else ''}"
         f"{f', {fit.n_clusters} clusters' if fit.n_clusters is not None else ''}.\n",
         markdown_table(["coefficient", "2SLS", "se", f"{pct} CI", "OLS", "OLS se"], rows),

@@ -26,7 +26,8 @@ def fit_summary(fit) -> str:
     lines = [
         f"2SLS of {fit.outcome} on {', '.join(fit.treatments)} "
         f"(instruments: {', '.join(fit.instruments)})",
-        f"n = {fit.n} (dropped {fit.n_dropped} with missing values)"
+        f"n = {fit.n} (dropped {fit.n_dropped} with missing values"
+        + (f"; {fit.n_filtered} filtered out by {fit.where!r}" if fit.where else "") + ")"
         + (f", clusters = {fit.n_clusters}" if fit.n_clusters is not None else "")
         + f", covariance: {se_label}" + (", weighted" if fit.weighted else ""),
         "",

@@ -58,7 +58,8 @@ def calibration_text(cal: Calibration) -> str:
     lines = [
         f"Calibration of direct effects on {cal.outcome} "
         f"(treatment: {', '.join(cal.treatments)}; instruments: {', '.join(cal.instruments)}; "
-        f"n = {cal.n}, dropped {cal.n_dropped} with missing values)",
+        f"n = {cal.n}, dropped {cal.n_dropped} with missing values"
+        + (f", {cal.n_filtered} filtered out by {cal.where!r}" if cal.where else "") + ")",
         "",
         "Scale: a direct effect d of instrument z reads as d / RF (share of the reduced form) "
         "or d * SD(z) / SD(y) (SD units)",

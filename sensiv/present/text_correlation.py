@@ -50,7 +50,8 @@ def summary_lines(result: CorrelationBounds, *, markdown: bool) -> list[str]:
     lines.append(f"Instruments: {', '.join(result.instruments)}; controls: "
                  f"{', '.join(result.controls) if result.controls else 'none'}"
                  f"{' and a constant' if result.constant else ''}; n = {result.n} "
-                 f"({result.n_dropped} rows dropped for missing values)"
+                 f"({result.n_dropped} rows dropped for missing values"
+                 f"{f'; {result.n_filtered} filtered out by {result.where!r}' if result.where else ''})"
                  f"{'; weighted' if result.weighted else ''}.")
     lines.append(f"Endogeneity sign: {result.endogeneity}; ratio bound r̄ = {r}. "
                  f"2SLS (r̄ = 0): {format_number(result.tsls)}; OLS: "

@@ -11,6 +11,7 @@ from typing import Any
 
 from sensiv.analyses.registry import KINDS
 from sensiv.core.errors import InputError
+from sensiv.data.where import parse_filter
 from sensiv.recipes.schema import (COMMON_KEYS, DATA_KEYS, FORMATS, INFERENCE_KEYS, SE_CHOICES,
                                    STUDY_KEYS, TOP_KEYS, Analysis, Recipe, Study)
 
@@ -111,9 +112,14 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
         for key in ("outcome", "treatments", "instruments"):
             if key not in data:
                 raise lines.fail("data", f"{where}.data lacks '{key}'")
-        for key in ("treatments", "instruments", "controls"):
+        for key in ("treatments", "instruments", "controls", "categorical"):
             if key in data:
                 data = {**data, key: _strings(data[key], key, f"{where}.data", lines)}
+        if "where" in data:
+            try:
+                parse_filter(data["where"])
+            except InputError as exc:
+                raise lines.fail("where", f"'where' in {where}.data: {exc}") from exc
         if "path" not in data:
             raise lines.fail("data", f"{where}.data lacks 'path' (the data file)")
         resolved = (base / data["path"]).resolve()

@@ -20,7 +20,8 @@ def spec_of(roles: Mapping[str, Any]) -> Spec:
     return Spec(outcome=roles["outcome"], treatments=tuple(roles["treatments"]),
                 instruments=tuple(roles["instruments"]),
                 controls=tuple(roles.get("controls", ())), cluster=roles.get("cluster"),
-                weight=roles.get("weight"), constant=roles.get("constant", True))
+                weight=roles.get("weight"), constant=roles.get("constant", True),
+                where=roles.get("where"), categorical=tuple(roles.get("categorical", ())))
 
 
 def _context(study: Study, source, frame, spec, seed: int | None) -> RunContext:

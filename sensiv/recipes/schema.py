@@ -21,6 +21,8 @@ the recipe file)::
     cluster = "village"            # optional
     weight = "w"                   # optional
     constant = true                # optional
+    where = "year >= 2000"         # optional: keep only the rows matching this row filter
+    categorical = ["district"]     # optional: integer-coded controls turned into indicators
 
     [study.inference]              # optional
     se = "cluster"                 # classic | robust | cluster
@@ -51,7 +53,8 @@ TOP_KEYS = {"title": str, "seed": int, "formats": list, "study": list, "name": s
 STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
               "analysis": list}
 DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
-             "controls": list, "cluster": str, "weight": str, "constant": bool}
+             "controls": list, "cluster": str, "weight": str, "constant": bool,
+             "where": str, "categorical": list}
 INFERENCE_KEYS = {"se": str, "level": float, "small": bool}
 COMMON_KEYS = {"kind": str, "label": str, "seed": int}
 

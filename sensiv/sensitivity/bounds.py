@@ -28,6 +28,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
+from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import ScoreSums
 from sensiv.sensitivity.adaptive import AdaptiveResult, adaptive_set
@@ -131,7 +132,7 @@ class SweepResult:
             f"{self.se_type} covariance at every direct effect; union of "
             f"{100 * self.confidence_level:g}% intervals covers β at least at that rate when "
             "the true direct effect lies in the set",
-        ]
+        ] + filter_assumptions(self.fit.where, self.fit.n_filtered)
 
     def to_dict(self) -> dict:
         return {
@@ -139,6 +140,8 @@ class SweepResult:
             "estimate": self.estimate,
             "se": self.se,
             "n": self.n,
+            "n_dropped": self.fit.n_dropped,
+            "n_filtered": self.fit.n_filtered,
             "se_type": self.se_type,
             "confidence_level": self.confidence_level,
             "direct_set": [i.to_list() for i in self.direct_set],

@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 from sensiv.core.errors import InputError
 from sensiv.core.results import describe, format_number, json_number
 from sensiv.data import read_table
+from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.moments import accumulate
 from sensiv.sensitivity.benchmarks import (Benchmark, benchmark_groups, covariate_benchmarks,
@@ -98,6 +99,8 @@ class Calibration:
     benchmarks: tuple[Benchmark, ...]
     zero_first_stage: ZeroFirstStage | None
     notes: tuple[str, ...] = field(default=())
+    n_filtered: int = 0
+    where: str | None = None
 
     def assumptions(self) -> list[str]:
         out = [
@@ -120,7 +123,7 @@ class Calibration:
                 "controls within the subgroup",
                 f"{self.zero_first_stage.se_type} covariance for the subgroup's reduced form",
             ]
-        return out
+        return out + filter_assumptions(self.where, self.n_filtered)
 
     def suggestions(self) -> list[dict]:
         """Option strings for ``sweep`` and ``prior`` derived from each yardstick."""
@@ -150,7 +153,8 @@ class Calibration:
         return {
             "outcome": self.outcome, "treatments": list(self.treatments),
             "instruments": list(self.instruments), "controls": list(self.controls),
-            "n": self.n, "n_dropped": self.n_dropped,
+            "n": self.n, "n_dropped": self.n_dropped, "n_filtered": self.n_filtered,
+            "where": self.where,
             "confidence_level": self.confidence_level,
             "scale": {"reduced_form": dict(zip(s.instruments, map(float, s.reduced_form))),
                       "outcome_sd": s.outcome_sd,
@@ -226,7 +230,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     full = instrument_coefficients(moments, pieces.design)
     scale = scale_from_moments(moments, layout.outcome, layout.instruments, full[:, k_x])
     benchmarks = covariate_benchmarks(moments, layout, named, full, beta, scale)
-    notes = []
+    notes = list(getattr(source, "notes", ()))
     if not named:
         notes.append("no controls, so no covariate benchmarks: add --control (or --group) to "
                      "compare the direct effect with an observed confounder")
@@ -244,7 +248,8 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
         controls=spec.controls, n=moments.n, n_dropped=moments.n_dropped,
         confidence_level=confidence_level, scale=scale,
         estimate=dict(zip(layout.treatments, map(float, beta))), benchmarks=benchmarks,
-        zero_first_stage=zfs, notes=tuple(notes))
+        zero_first_stage=zfs, notes=tuple(notes), n_filtered=moments.n_filtered,
+        where=spec.where)
 
 
 def _source(data, spec, no_first_stage_group: str | None, chunk_rows: int | None):

@@ -24,6 +24,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, describe, json_number
+from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.inference import Progress
 from sensiv.sensitivity.bounds import CAUTION
@@ -164,7 +165,7 @@ class PriorResult:
             "approximately normal",
             "apart from the direct effect, the instruments are as good as randomly assigned "
             "given the controls",
-        ]
+        ] + filter_assumptions(self.fit.where, self.fit.n_filtered)
 
     def to_dict(self) -> dict:
         return {
@@ -176,6 +177,8 @@ class PriorResult:
             "estimate": self.estimate,
             "se": self.se,
             "n": self.n,
+            "n_dropped": self.fit.n_dropped,
+            "n_filtered": self.fit.n_filtered,
             "se_type": self.se_type,
             "confidence_level": self.confidence_level,
             "priors": list(self.priors),

@@ -165,3 +165,25 @@ groups = { terrain = ["plot_ha", "soil"] }
     direct = calibrate(from_file(folder / "irrigation.csv", spec),
                        groups={"terrain": ["plot_ha", "soil"]})
     assert run.runs[2].result.to_dict() == direct.to_dict()
+
+
+def test_where_and_categorical_keys(folder):
+    # the recipe keys give the same fit as the Spec with the same filter (common practice,
+    # no source: one path, two spellings)
+    text = GOOD.replace('cluster = "village"', 'cluster = "village"\n'
+                        'where = "plot_ha >= 0.5 and soil != \'clay\'"\n'
+                        'categorical = ["soil"]')
+    run = run_recipe(parse_recipe(write(folder, text)))
+    fitted = run.runs[0].result
+    spec = Spec("maize_yield", ("irrigation_hours",), ("height_m",),
+                controls=("plot_ha", "soil"), cluster="village",
+                where="plot_ha >= 0.5 and soil != 'clay'")
+    direct = iv.fit(from_file(folder / "irrigation.csv", spec), se="cluster")
+    assert fitted.to_dict() == direct.to_dict()
+    assert fitted.n_filtered > 0 and fitted.where == spec.where
+
+
+def test_bad_where_in_recipe_is_an_input_error(folder):
+    text = GOOD.replace('cluster = "village"', 'cluster = "village"\nwhere = "plot_ha >"')
+    with pytest.raises(InputError, match=r"line \d+: 'where' in .*syntax error at the end"):
+        parse_recipe(write(folder, text))
