@@ -57,7 +57,8 @@ def test_readme_sweep_json_contract():
                 "curve", "ar_set"):
         assert key in doc
     assert set(doc["breakdown"]) >= {"threshold", "scale", "direct_lower", "direct_upper"}
-    assert set(doc["curve"][0]) == {"scale", "lower", "upper", "id_lower", "id_upper"}
+    assert set(doc["curve"][0]) == {"scale", "lower", "upper", "id_lower", "id_upper", "ba_lower",
+                                  "ba_upper"}
     assert len(doc["curve"]) == 11
     assert doc["direct_set_rf"][0] == pytest.approx([-0.2, 0.2])
     assert doc["caution"]
