@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
+from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
 from sensiv.sensitivity import bounds
 
 
@@ -91,6 +92,8 @@ def sweep_summary(res) -> str:
         "",
         f"Identified set (no sampling error):    {res.identified_set}",
         f"Union of {pct} intervals over the set: {res.union_ci}",
+        *([bias_aware_line(res.bias_aware, res.confidence_level)]
+          if res.bias_aware is not None else []),
         f"Weak-instrument-robust {pct} set:      {_pieces(res.ar_set)}"
         + (f" ({res.ar_method})" if res.ar_method else ""),
         "",
@@ -101,6 +104,8 @@ def sweep_summary(res) -> str:
             f"the conclusion holds until the set is scaled by {format_number(b.scale)}"
             + (" (it survives the assumed set)" if b.scale > 1 else
                " (it does NOT survive the assumed set)")),
+        *([f"Bias-aware breakdown: {bias_aware_breakdown(b.bias_aware_scale)}"]
+          if res.bias_aware is not None else []),
     ]
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
         lo_t = "none" if lo is None else format_number(lo)

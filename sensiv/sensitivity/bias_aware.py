@@ -107,9 +107,11 @@ def critical_value(t: float, confidence_level: float = 0.95) -> float:
 # ============================================================================ the centre of Γ
 @dataclass(frozen=True, slots=True)
 class Centre:
-    """A centre ``γ_c`` of Γ, how it was chosen, and ``max_{γ∈Γ} |a'(γ − γ_c)|`` is computed
-    from it by :func:`max_bias` (at scaling 1; over ``tΓ`` the centre is ``tγ_c`` and the
-    bias ``t`` times as large)."""
+    """A centre ``γ_c`` of Γ and how it was chosen (``words``).
+
+    Over a scaling ``tΓ`` the centre is ``tγ_c`` and the worst-case bias (:func:`max_bias`)
+    ``t`` times that over Γ: both sets are scaled about zero.
+    """
 
     point: np.ndarray
     words: str

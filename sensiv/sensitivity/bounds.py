@@ -142,6 +142,7 @@ class SweepResult:
             f"{self.se_type} covariance at every direct effect; union of "
             f"{100 * self.confidence_level:g}% intervals covers β at least at that rate when "
             "the true direct effect lies in the set",
+            *(self.bias_aware.assumptions() if self.bias_aware is not None else []),
         ]
 
     def to_dict(self) -> dict:

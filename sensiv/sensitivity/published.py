@@ -123,6 +123,7 @@ class PublishedResult:
             "the printed estimate, standard errors and first stage come from the same sample, "
             "specification and kind of covariance",
             self.approximation,
+            *(self.bias_aware.assumptions() if self.bias_aware is not None else []),
         ]
         if self.prior is not None:
             out.append(f"for the prior interval: direct effect ~ {self.prior.law}, independent "
