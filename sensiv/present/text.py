@@ -104,14 +104,14 @@ def sweep_summary(res) -> str:
             f"the conclusion holds until the set is scaled by {format_number(b.scale)}"
             + (" (it survives the assumed set)" if b.scale > 1 else
                " (it does NOT survive the assumed set)")),
-        *([f"Bias-aware breakdown: {bias_aware_breakdown(b.bias_aware_scale)}"]
-          if res.bias_aware is not None else []),
     ]
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
         lo_t = "none" if lo is None else format_number(lo)
         hi_t = "none" if hi is None else format_number(hi)
         lines.append(f"  {z} alone: an end of the interval crosses {b.threshold:g} at a direct "
                      f"effect of {lo_t} (nearest below zero) or {hi_t} (nearest above zero)")
+    if res.bias_aware is not None:
+        lines.append(f"Bias-aware breakdown: {bias_aware_breakdown(b.bias_aware_scale)}")
     if res.fit.overid is not None:
         o = res.fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "

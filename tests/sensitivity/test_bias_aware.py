@@ -230,6 +230,7 @@ def test_published_zero_range_is_the_printed_interval():
     assert doc["bias_aware"]["centre"] == "box centre"
     assert {"ba_lower", "ba_upper"} <= set(doc["curve"][0])
     assert doc["breakdown"]["bias_aware_scale"] is None
+    assert "Bias-aware 95% interval" in str(res) and "Bias-aware breakdown" in str(res)
 
 
 @pytest.mark.parametrize("extra", [{}, {"reduced_form": 3.15, "reduced_form_se": 0.9}])
