@@ -8,6 +8,7 @@ from sensiv.estimation import iv
 from sensiv.partial_id.discrete_data import plain_number
 from sensiv.present.writer import to_json
 from sensiv.present.tables import markdown_table
+from sensiv.present.text_bias_aware import bias_aware_cells
 from sensiv.sensitivity import bounds
 
 
@@ -65,11 +66,17 @@ def sweep_markdown(res) -> str:
                                        f"{format_number(res.se, 6)})"],
         ["identified set", str(res.identified_set)],
         [f"union of {pct} intervals", str(res.union_ci)],
+        *(bias_aware_cells(res.bias_aware, res.confidence_level)
+          if res.bias_aware is not None else []),
         [f"weak-IV-robust {pct} set", " ∪ ".join(str(p) for p in res.ar_set)
          if res.ar_set else ("empty" if res.ar_set is not None else "n/a")],
         ["conclusion examined", b.conclusion],
         ["breakdown scale of the set", scale],
     ]
+    if res.bias_aware is not None:
+        t = b.bias_aware_scale
+        rows.append(["bias-aware breakdown scale of the set",
+                     "never (within 1000x)" if t is None else format_number(t, 6)])
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
         rows.append([f"breakdown direct effect, {z} alone",
                      f"{'none' if lo is None else format_number(lo, 6)} / "
@@ -87,11 +94,12 @@ def sweep_markdown(res) -> str:
 
 
 def curve_csv(res) -> str:
-    """The sensitivity curve as CSV (scale, union interval, identified set)."""
-    lines = ["scale,lower,upper,id_lower,id_upper"]
+    """The sensitivity curve as CSV (scale, union interval, identified set, bias-aware
+    interval)."""
+    keys = ("scale", "lower", "upper", "id_lower", "id_upper", "ba_lower", "ba_upper")
+    lines = [",".join(keys)]
     for row in res.curve.to_list():
-        lines.append(",".join("" if row[k] is None else repr(float(row[k]))
-                              for k in ("scale", "lower", "upper", "id_lower", "id_upper")))
+        lines.append(",".join("" if row.get(k) is None else repr(float(row[k])) for k in keys))
     return "\n".join(lines) + "\n"
 
 

@@ -45,14 +45,28 @@ def fit_rows(fit) -> list[TableRow]:
 
 
 def _sweep_breakdown(res) -> str:
+    return _scale_words(res, res.breakdown.scale)
+
+
+def _scale_words(res, scale: float | None) -> str:
+    """A breakdown scale of the stated set in words (union or bias-aware interval)."""
     b = res.breakdown
-    if b.scale is None:
+    if scale is None:
         return (f"none within {format_number(bounds.SCALE_MAX)} × the stated set "
                 f"(θ = {format_number(b.threshold)})")
-    if b.scale == 0.0:
+    if scale == 0.0:
         return f"0: no conclusion about θ = {format_number(b.threshold)} at zero direct effect"
     sign = ">" if res.estimate > b.threshold else "<"
-    return f"{format_number(b.scale)} × the stated set (β {sign} {format_number(b.threshold)})"
+    return f"{format_number(scale)} × the stated set (β {sign} {format_number(b.threshold)})"
+
+
+def _bias_aware_row(res, name: str, words: str, n, cov: str) -> TableRow:
+    """The bias-aware interval (2SLS at the set's centre) with its breakdown scale."""
+    ba = res.bias_aware
+    return TableRow(f"{name} (2SLS at the {ba.centre})", words, ba.estimate, ba.se,
+                    None, (ba.ci,), res.confidence_level, res.breakdown.bias_aware_scale,
+                    _scale_words(res, res.breakdown.bias_aware_scale), n, cov,
+                    bounds.CAUTION)
 
 
 def sweep_rows(res) -> list[TableRow]:
@@ -63,6 +77,9 @@ def sweep_rows(res) -> list[TableRow]:
     rows = [TableRow(f"direct-effect sweep: {res.focus}", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
                      res.breakdown.scale, _sweep_breakdown(res), res.n, cov, bounds.CAUTION)]
+    if res.bias_aware is not None:
+        rows.append(_bias_aware_row(res, f"bias-aware interval: {res.focus}", words, res.n,
+                                    cov))
     if res.ar_set is not None:
         rows.append(TableRow(f"weak-IV-robust sweep: {res.focus}", words, None, None, None,
                              _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
@@ -136,10 +153,13 @@ def published_rows(res) -> list[TableRow]:
             TableRow("direct-effect stress test from printed numbers", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
                      res.breakdown.scale, _sweep_breakdown(res), res.reported.n, cov,
-                     bounds.CAUTION),
-            TableRow("weak-IV-robust set from printed numbers", words, None, None, None,
-                     _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
-                     res.reported.n, f"{cov}; {res.ar_method}", bounds.CAUTION)]
+                     bounds.CAUTION)]
+    if res.bias_aware is not None:
+        rows.append(_bias_aware_row(res, "bias-aware interval from printed numbers", words,
+                                    res.reported.n, cov))
+    rows.append(TableRow("weak-IV-robust set from printed numbers", words, None, None, None,
+                         _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
+                         res.reported.n, f"{cov}; {res.ar_method}", bounds.CAUTION))
     if res.prior is not None:
         p = res.prior
         method = p.method + ("" if p.mc_error is None else

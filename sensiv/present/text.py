@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
+from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
 from sensiv.sensitivity import bounds
 
 
@@ -92,6 +93,8 @@ def sweep_summary(res) -> str:
         "",
         f"Identified set (no sampling error):    {res.identified_set}",
         f"Union of {pct} intervals over the set: {res.union_ci}",
+        *([bias_aware_line(res.bias_aware, res.confidence_level)]
+          if res.bias_aware is not None else []),
         f"Weak-instrument-robust {pct} set:      {_pieces(res.ar_set)}"
         + (f" ({res.ar_method})" if res.ar_method else ""),
         "",
@@ -108,6 +111,8 @@ def sweep_summary(res) -> str:
         hi_t = "none" if hi is None else format_number(hi)
         lines.append(f"  {z} alone: an end of the interval crosses {b.threshold:g} at a direct "
                      f"effect of {lo_t} (nearest below zero) or {hi_t} (nearest above zero)")
+    if res.bias_aware is not None:
+        lines.append(f"Bias-aware breakdown: {bias_aware_breakdown(b.bias_aware_scale)}")
     if res.fit.overid is not None:
         o = res.fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from sensiv.core.results import format_number
 from sensiv.present.tables import markdown_table
+from sensiv.present.text_bias_aware import (bias_aware_breakdown, bias_aware_cells,
+                                            bias_aware_line)
 from sensiv.sensitivity.bounds import CAUTION
 from sensiv.sensitivity.published import PublishedResult
 from sensiv.sensitivity.published_inputs import Reported
@@ -64,10 +66,14 @@ def summary_lines(res: PublishedResult) -> list[str]:
         "",
         f"Identified set (no sampling error):    {res.identified_set}",
         f"Union of {pct} intervals over the set: {res.union_ci}",
+        *([bias_aware_line(res.bias_aware, res.confidence_level)]
+          if res.bias_aware is not None else []),
         f"Weak-instrument-robust {pct} set:      {ar_text(res)} ({res.ar_method})",
         "",
         f"Conclusion examined: {res.breakdown.conclusion}",
         *breakdown_words(res),
+        *([f"Bias-aware breakdown: {bias_aware_breakdown(res.breakdown.bias_aware_scale, 'range')}"]
+          if res.bias_aware is not None else []),
     ]
     if res.prior is not None:
         pr = res.prior
@@ -85,6 +91,10 @@ def published_text(res: PublishedResult) -> str:
     return "\n".join(summary_lines(res))
 
 
+def _ba_scale(scale: float | None) -> str:
+    return "never (within 1000x)" if scale is None else format_number(scale, 6)
+
+
 def published_markdown(res: PublishedResult) -> str:
     """Markdown report of a published stress test."""
     pct = f"{100 * res.confidence_level:g}%"
@@ -98,9 +108,13 @@ def published_markdown(res: PublishedResult) -> str:
          str(res.direct_set_rf) if res.direct_set_rf else "n/a"],
         ["identified set", str(res.identified_set)],
         [f"union of {pct} intervals", str(res.union_ci)],
+        *(bias_aware_cells(res.bias_aware, res.confidence_level)
+          if res.bias_aware is not None else []),
         [f"weak-IV-robust {pct} set", ar_text(res)],
         ["conclusion examined", b.conclusion],
         ["breakdown scale of the range", scale],
+        *([["bias-aware breakdown scale of the range", _ba_scale(b.bias_aware_scale)]]
+          if res.bias_aware is not None else []),
         ["breakdown direct effect (below / above zero)",
          f"{'none' if b.direct_lower[0] is None else format_number(b.direct_lower[0], 6)} / "
          f"{'none' if b.direct_upper[0] is None else format_number(b.direct_upper[0], 6)}"],

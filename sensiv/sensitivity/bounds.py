@@ -32,6 +32,8 @@ from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import ScoreSums
 from sensiv.sensitivity.adaptive import AdaptiveResult, adaptive_set
+from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
+                                           bias_aware_scale)
 from sensiv.sensitivity.direct_sets import (DirectSet, RangeSpec, Scale, check_range_count,
                                             parse_range, read_polytope, resolve_ranges,
                                             scale_from_moments, set_in_units)
@@ -64,29 +66,37 @@ class Breakdown:
     direct_lower: tuple[float | None, ...]
     direct_upper: tuple[float | None, ...]
     conclusion: str
+    bias_aware_scale: float | None = None   # the same for the bias-aware interval
 
     def to_dict(self) -> dict:
         return {"threshold": self.threshold, "scale": json_number(self.scale),
                 "direct_lower": [json_number(v) for v in self.direct_lower],
                 "direct_upper": [json_number(v) for v in self.direct_upper],
-                "conclusion": self.conclusion}
+                "conclusion": self.conclusion,
+                "bias_aware_scale": json_number(self.bias_aware_scale)}
 
 
 @dataclass(frozen=True, slots=True)
 class Curve:
-    """Union interval and identified set for scalings ``t`` of Γ."""
+    """Union interval, identified set and bias-aware interval for scalings ``t`` of Γ."""
 
     scale: np.ndarray
     lower: np.ndarray
     upper: np.ndarray
     id_lower: np.ndarray
     id_upper: np.ndarray
+    ba_lower: np.ndarray | None = None
+    ba_upper: np.ndarray | None = None
 
     def to_list(self) -> list[dict]:
-        return [{"scale": float(t), "lower": json_number(lo), "upper": json_number(hi),
+        rows = [{"scale": float(t), "lower": json_number(lo), "upper": json_number(hi),
                  "id_lower": json_number(il), "id_upper": json_number(iu)}
                 for t, lo, hi, il, iu in zip(self.scale, self.lower, self.upper, self.id_lower,
                                               self.id_upper)]
+        if self.ba_lower is not None and self.ba_upper is not None:
+            for row, bl, bu in zip(rows, self.ba_lower, self.ba_upper):
+                row.update(ba_lower=json_number(bl), ba_upper=json_number(bu))
+        return rows
 
 
 @dataclass(frozen=True, slots=True)
@@ -119,6 +129,7 @@ class SweepResult:
     frontier: Frontier | None = None
     curve_extended: Curve | None = None
     adaptive: AdaptiveResult | None = None  # with ``adaptive=True``
+    bias_aware: BiasAware | None = None
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -132,6 +143,7 @@ class SweepResult:
             f"{self.se_type} covariance at every direct effect; union of "
             f"{100 * self.confidence_level:g}% intervals covers β at least at that rate when "
             "the true direct effect lies in the set",
+            *(self.bias_aware.assumptions() if self.bias_aware is not None else []),
         ] + filter_assumptions(self.fit.where, self.fit.n_filtered)
 
     def to_dict(self) -> dict:
@@ -152,6 +164,7 @@ class SweepResult:
             "identified_set": self.identified_set.to_list(),
             "union_ci": self.union_ci.to_list(),
             "union_ci_wald": self.union_ci_wald.to_list(),
+            "bias_aware": self.bias_aware.to_dict() if self.bias_aware is not None else None,
             "breakdown": self.breakdown.to_dict(),
             "curve": self.curve.to_list(),
             "frontier": self.frontier.to_list() if self.frontier is not None else None,
@@ -272,8 +285,11 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
                    "unbounded (the finite Wald arithmetic is in union_ci_wald)")
         notes.append(message)
         warnings.warn(message, WeakInstrumentWarning, stacklevel=2)
-    breakdown, extended, frontier = _breakdown_part(core, dset.vertices, threshold, wald,
-                                                    uninformative, points)
+    level = result.confidence_level
+    breakdown, extended, frontier = _breakdown_part(core, dset, threshold, wald,
+                                                    uninformative, points, level)
+    ba = bias_aware([core], dset, level, unbounded=uninformative)
+    ba_lo, ba_hi = bias_aware_curve([core], dset, scales, level, unbounded=uninformative)
     ar, ar_method, fas = None, None, None
     if len(pieces.design.treatments) == 1:
         rf = reduced_form(pieces, sums, result)
@@ -296,9 +312,9 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         direct_set_sd=set_in_units(dset, scale, "sd"),
         range_text=tuple(r.text() for r in ranges), polytope=dset.box is None,
         identified_set=ident, union_ci=union, union_ci_wald=wald, breakdown=breakdown,
-        curve=Curve(scales, lo, hi, id_lo, id_hi), ar_set=ar, ar_method=ar_method,
-        scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)), frontier=frontier,
-        curve_extended=extended, adaptive=fas)
+        curve=Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi), ar_set=ar,
+        ar_method=ar_method, scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)),
+        frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba)
 
 
 def differs_materially(ar: tuple[Interval, ...], wald: Interval) -> bool:
@@ -316,31 +332,37 @@ def conclusion_text(focus: str, base: Interval, threshold: float, uninformative:
     return f"{focus} effect {'>' if base.low > threshold else '<'} {threshold:g}"
 
 
-def _breakdown_part(core: Core, vertices: np.ndarray, threshold: float, wald: Interval,
-                    uninformative: bool, points: int
+def _breakdown_part(core: Core, dset: DirectSet, threshold: float, wald: Interval,
+                    uninformative: bool, points: int, level: float
                     ) -> tuple[Breakdown, Curve | None, Frontier]:
-    """Breakdown of the conclusion at ``threshold``, the curve run on past a breakdown beyond
-    the stated set, and the frontier over thresholds."""
+    """Breakdown of the conclusion at ``threshold`` (union and bias-aware), the curve run on
+    past a breakdown beyond the stated set, and the frontier over thresholds."""
+    vertices = dset.vertices
     lower, upper = direct_breakdown(core, threshold)
     t_star = 0.0 if uninformative else breakdown_scale(core, vertices, threshold)
+    grid = np.linspace(0.0, 1.0, points)
+    t_ba = 0.0 if uninformative else bias_aware_scale([core], dset, threshold,
+                                                      level, grid)
     base = core.interval(np.zeros(len(core.instruments)))
     extended = None
     if t_star is not None and t_star > 1.0:
-        extended = _curve(core, vertices,
+        extended = _curve(core, dset,
                           np.linspace(0.0, min(EXTEND_FACTOR * t_star, SCALE_MAX), points),
-                          uninformative)
+                          uninformative, level)
     frontier = breakdown_frontier(core, vertices, frontier_thresholds(wald, threshold, base),
                                   uninformative=uninformative)
     conclusion = conclusion_text(core.focus, base, threshold, uninformative)
-    breakdown = Breakdown(threshold, t_star, tuple(lower), tuple(upper), conclusion)
+    breakdown = Breakdown(threshold, t_star, tuple(lower), tuple(upper), conclusion, t_ba)
     return breakdown, extended, frontier
 
 
-def _curve(core: Core, vertices: np.ndarray, scales: np.ndarray, uninformative: bool) -> Curve:
-    """Union interval and identified set over ``scales`` (union unbounded when
-    ``uninformative``)."""
-    lo, hi = union_curve(core, vertices, scales)
+def _curve(core: Core, dset: DirectSet, scales: np.ndarray, uninformative: bool,
+           level: float) -> Curve:
+    """Union interval, identified set and bias-aware interval over ``scales`` (union and
+    bias-aware interval unbounded when ``uninformative``)."""
+    lo, hi = union_curve(core, dset.vertices, scales)
     if uninformative:
         lo, hi = np.full_like(lo, -np.inf), np.full_like(hi, np.inf)
-    id_lo, id_hi = identified_curve(core, vertices, scales)
-    return Curve(scales, lo, hi, id_lo, id_hi)
+    id_lo, id_hi = identified_curve(core, dset.vertices, scales)
+    ba_lo, ba_hi = bias_aware_curve([core], dset, scales, level, unbounded=uninformative)
+    return Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi)

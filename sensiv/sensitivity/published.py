@@ -26,6 +26,8 @@ import numpy as np
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.estimation import distributions as dist
+from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
+                                           bias_aware_scale)
 from sensiv.sensitivity.bounds import (CAUTION, DEFAULT_POINTS, EXTEND_FACTOR, Breakdown, Curve,
                                        conclusion_text, differs_materially)
 from sensiv.sensitivity.direct_sets import DirectSet, box_set
@@ -99,6 +101,7 @@ class PublishedResult:
     notes: tuple[str, ...] = field(default=())
     frontier: Frontier | None = None
     curve_extended: Curve | None = None
+    bias_aware: BiasAware | None = None
 
     @property
     def focus(self) -> str:
@@ -120,6 +123,7 @@ class PublishedResult:
             "the printed estimate, standard errors and first stage come from the same sample, "
             "specification and kind of covariance",
             self.approximation,
+            *(self.bias_aware.assumptions() if self.bias_aware is not None else []),
         ]
         if self.prior is not None:
             out.append(f"for the prior interval: direct effect ~ {self.prior.law}, independent "
@@ -143,6 +147,7 @@ class PublishedResult:
             "identified_set": self.identified_set.to_list(),
             "union_ci": self.union_ci.to_list(),
             "union_ci_wald": self.union_ci_wald.to_list(),
+            "bias_aware": self.bias_aware.to_dict() if self.bias_aware is not None else None,
             "breakdown": self.breakdown.to_dict(),
             "curve": self.curve.to_list(),
             "frontier": self.frontier.to_list() if self.frontier is not None else None,
@@ -268,8 +273,11 @@ def _stress_test(rep: Reported, sp: float, cov: Covariance, gamma_set: Interval,
                    "interval is unbounded (the finite Wald arithmetic is in union_ci_wald)")
         notes.append(message)
         warnings.warn(message, WeakInstrumentWarning, stacklevel=3)
-    breakdown, extended, frontier = _breakdown_part(cores, dset.vertices, threshold, wald,
-                                                    uninformative, points)
+    breakdown, extended, frontier = _breakdown_part(cores, dset, threshold, wald,
+                                                    uninformative, points, confidence_level)
+    ba = bias_aware(cores, dset, confidence_level, unbounded=uninformative)
+    ba_lo, ba_hi = bias_aware_curve(cores, dset, scales, confidence_level,
+                                    unbounded=uninformative)
     ar, ar_method, message, weak = _robust_part(rep, sp, cov, ar_critical, dset, wald,
                                                 uninformative)
     if message is not None:
@@ -285,27 +293,32 @@ def _stress_test(rep: Reported, sp: float, cov: Covariance, gamma_set: Interval,
         se=max(c.se for c in cores), first_stage_se=sp, first_stage_wald=wald_stat,
         direct_set=gamma_set, direct_set_rf=gamma_rf, range_text=range_text,
         identified_set=Interval(float(id_lo[-1]), float(id_hi[-1])), union_ci=union,
-        union_ci_wald=wald, breakdown=breakdown, curve=Curve(scales, lo, hi, id_lo, id_hi),
-        ar_set=ar, ar_method=ar_method, covariance=cov, prior=prior_part,
-        notes=tuple(dict.fromkeys(notes)), frontier=frontier, curve_extended=extended)
+        union_ci_wald=wald, breakdown=breakdown,
+        curve=Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi), ar_set=ar, ar_method=ar_method,
+        covariance=cov, prior=prior_part, notes=tuple(dict.fromkeys(notes)), frontier=frontier,
+        curve_extended=extended, bias_aware=ba)
 
 
-def _breakdown_part(cores: list[Core], vertices: np.ndarray, threshold: float,
-                    wald: Interval, uninformative: bool, points: int
+def _breakdown_part(cores: list[Core], dset: DirectSet, threshold: float,
+                    wald: Interval, uninformative: bool, points: int, level: float
                     ) -> tuple[Breakdown, Curve | None, Frontier]:
-    """Breakdown at ``threshold`` (least favourable core), the curve run on past a breakdown
-    beyond the assumed range, and the frontier over thresholds."""
+    """Breakdown at ``threshold`` (least favourable core; union and bias-aware), the curve run
+    on past a breakdown beyond the assumed range, and the frontier over thresholds."""
+    vertices = dset.vertices
+    t_ba = 0.0 if uninformative else bias_aware_scale(cores, dset, threshold, level,
+                                                      np.linspace(0.0, 1.0, points))
     t_star, direct_lower, direct_upper = hull_breakdown(cores, vertices, threshold,
                                                         uninformative)
     base = cores[0].interval(np.zeros(1))
     extended = None
     if t_star is not None and t_star > 1.0:
         wide = np.linspace(0.0, min(EXTEND_FACTOR * t_star, SCALE_MAX), points)
-        extended = Curve(wide, *hull_curve(cores, vertices, wide))
+        extended = Curve(wide, *hull_curve(cores, vertices, wide),
+                         *bias_aware_curve(cores, dset, wide, level, unbounded=uninformative))
     frontier = hull_frontier(cores, vertices, frontier_thresholds(wald, threshold, base),
                              uninformative)
     conclusion = conclusion_text(FOCUS, base, threshold, uninformative)
-    breakdown = Breakdown(threshold, t_star, (direct_lower,), (direct_upper,), conclusion)
+    breakdown = Breakdown(threshold, t_star, (direct_lower,), (direct_upper,), conclusion, t_ba)
     return breakdown, extended, frontier
 
 

@@ -46,7 +46,10 @@ def test_readme_sweep_example(tmp_path):
     assert (out / "sweep-curve.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     curve = pd.read_csv(out / "curve.csv")
     assert len(curve) == 101 and list(curve.columns) == ["scale", "lower", "upper", "id_lower",
-                                                          "id_upper"]
+                                                          "id_upper", "ba_lower", "ba_upper"]
+    doc = json.loads((out / "sweep.json").read_text())
+    assert curve["ba_lower"].tolist() == [row["ba_lower"] for row in doc["curve"]]
+    assert "Bias-aware 95% interval" in result.stdout
 
 
 def test_readme_sweep_json_contract():
@@ -57,7 +60,8 @@ def test_readme_sweep_json_contract():
                 "curve", "ar_set"):
         assert key in doc
     assert set(doc["breakdown"]) >= {"threshold", "scale", "direct_lower", "direct_upper"}
-    assert set(doc["curve"][0]) == {"scale", "lower", "upper", "id_lower", "id_upper"}
+    assert set(doc["curve"][0]) == {"scale", "lower", "upper", "id_lower", "id_upper", "ba_lower",
+                                  "ba_upper"}
     assert len(doc["curve"]) == 11
     assert doc["direct_set_rf"][0] == pytest.approx([-0.2, 0.2])
     assert doc["caution"]

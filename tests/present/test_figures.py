@@ -190,6 +190,27 @@ def test_unbounded_union_is_drawn_clipped_with_a_note(results):
     assert any("unbounded" in t.get_text() for t in ax.texts)
 
 
+@pytest.mark.parametrize("name", ["within", "beyond"])
+def test_curve_draws_the_bias_aware_band_with_a_legend_entry(results, name):
+    # common practice, no source: the dashed edges are the result's bias-aware curve (the
+    # extended one when the figure runs on past the stated set)
+    sweep = results[name]
+    curve = sweep.curve_extended if sweep.curve_extended is not None else sweep.curve
+    fig = figures.sensitivity_curve(sweep)
+    low, high = gid_lines(fig, "bias_aware")
+    x = np.asarray(curve.scale) * extent(sweep)
+    assert low.get_xdata() == pytest.approx(x) and high.get_xdata() == pytest.approx(x)
+    assert low.get_ydata() == pytest.approx(curve.ba_lower, rel=REL)
+    assert high.get_ydata() == pytest.approx(curve.ba_upper, rel=REL)
+    assert any(t.get_text().startswith("bias-aware") for t in fig.legends[0].get_texts())
+
+
+def test_unbounded_union_draws_no_bias_aware_band(results):
+    sweep = results["weak"]
+    assert not sweep.bias_aware.ci.bounded
+    assert gid_lines(figures.sensitivity_curve(sweep), "bias_aware") == []
+
+
 def test_frontier_marks_breakdown_and_names_regions(results):
     sweep = results["within"]
     fig = figures.breakdown_frontier(sweep)

@@ -83,6 +83,10 @@ def test_rows_read_numbers_from_the_results(results):
     row = table_rows.sweep_rows(sweep)[0]
     assert row.bounds == (sweep.identified_set,) and row.interval == (sweep.union_ci,)
     assert row.breakdown == sweep.breakdown.scale
+    bias = table_rows.sweep_rows(sweep)[1]
+    assert bias.interval == (sweep.bias_aware.ci,) and bias.se == sweep.bias_aware.se
+    assert bias.breakdown == sweep.breakdown.bias_aware_scale
+    assert "bias-aware" in bias.analysis and sweep.bias_aware.centre in bias.analysis
     (row,) = table_rows.prior_rows(pri)
     assert row.estimate == pri.center and row.interval == (pri.interval,)
     (row,) = table_rows.corrbound_rows(corr)
@@ -272,7 +276,7 @@ def test_kind_names_new_results(extra):
 
 def test_published_rows_read_the_result(extra):
     res = extra["published"]
-    est, stress, ar, pri = table_rows.published_rows(res)
+    est, stress, bias, ar, pri = table_rows.published_rows(res)
     assert (est.estimate, est.se) == (res.estimate, res.se)
     assert est.interval == (Interval(res.curve.lower[0], res.curve.upper[0]),)
     # common practice, no source: at zero direct effect the interval is the printed one,
@@ -283,11 +287,14 @@ def test_published_rows_read_the_result(extra):
     assert res.approximation in stress.assumption and "-0.25:0.25rf" in stress.assumption
     assert ar.interval == res.ar_set and ar.bounds is None
     assert pri.interval == (res.prior.interval,) and pri.estimate == res.prior.center
-    assert {r.n for r in (est, stress, ar, pri)} == {212}
-    assert all(r.covariance.startswith("from reported numbers") for r in (est, stress, ar, pri))
+    assert bias.interval == (res.bias_aware.ci,) and bias.estimate == res.bias_aware.estimate
+    assert bias.breakdown == res.breakdown.bias_aware_scale and bias.bounds is None
+    assert {r.n for r in (est, stress, bias, ar, pri)} == {212}
+    assert all(r.covariance.startswith("from reported numbers")
+               for r in (est, stress, bias, ar, pri))
     assert "prove" in stress.caution
     bare = table_rows.published_rows(extra["published_bare"])
-    assert len(bare) == 3 and all(r.n is None for r in bare)
+    assert len(bare) == 4 and all(r.n is None for r in bare)
     assert "worst-case" in bare[0].covariance
 
 

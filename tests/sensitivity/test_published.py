@@ -621,7 +621,8 @@ def test_published_json_contract():
                 "prior", "covariance"):
         assert key in doc
     assert set(doc["breakdown"]) >= {"threshold", "scale", "direct_lower", "direct_upper"}
-    assert set(doc["curve"][0]) == {"scale", "lower", "upper", "id_lower", "id_upper"}
+    assert set(doc["curve"][0]) == {"scale", "lower", "upper", "id_lower", "id_upper", "ba_lower",
+                                  "ba_upper"}
     assert len(doc["curve"]) == 11
     assert doc["prior"] is None
     assert doc["direct_set"] == [[-0.5, 0.5]]

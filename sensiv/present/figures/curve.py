@@ -3,6 +3,8 @@ the allowed direct effect, with the threshold, the breakdown and the stated rang
 
 from __future__ import annotations
 
+import math
+
 from sensiv.core.results import format_number
 from sensiv.present.figures.direct import (DirectAxis, DirectView, direct_axis, direct_view,
                                            share_axis, thin_x_ticks)
@@ -16,8 +18,9 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
     """Union interval and identified set of the focus coefficient against the allowed direct
     effect, with the threshold, the breakdown and the stated range.
 
-    The band is the union of the γ-specific confidence intervals over ``t·Γ``, the inner band
-    the identified set; when the breakdown lies beyond the stated set the figure runs on to it
+    The band is the union of the γ-specific confidence intervals over ``t·Γ``, the dashed
+    edges the bias-aware interval (2SLS at the centre of ``t·Γ``), the inner band the
+    identified set; when the breakdown lies beyond the stated set the figure runs on to it
     (``sweep.curve_extended``) and shades the stated range.  An unbounded union interval is
     drawn as a hatched band clipped to the axes, with a note.
 
@@ -47,7 +50,7 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
         x = np.asarray(curve.scale, float) * axis.extent
         unbounded = not (np.all(np.isfinite(curve.lower)) and np.all(np.isfinite(curve.upper)))
         ylo, yhi = limits([*curve.lower, *curve.upper, *curve.id_lower, *curve.id_upper,
-                           theta])
+                           *_bias_aware_ends(curve), theta])
         if unbounded:
             span = yhi - ylo
             ylo, yhi = ylo - 0.1 * span, yhi + 0.1 * span
@@ -64,6 +67,7 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
             ax.text(0.5, 0.97, "union interval unbounded\n(first stage not significant)",
                     transform=ax.transAxes, ha="center", va="top", fontsize=SMALL_PT,
                     bbox=text_box(), zorder=6)
+        _draw_bias_aware(ax, x, curve, ylo, yhi, level)
         ident = ax.fill_between(x, curve.id_lower, curve.id_upper, facecolor=BLUE,
                                 edgecolor=BLUE, linewidth=0.6, zorder=2, label="identified set")
         ident.set_gid("identified")
@@ -81,6 +85,25 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
         top = share_axis(ax, axis, x[-1])
         caption = [sweep.caption, *([words] if words else [])]
         return finish(canvas, caption, note=note, top_axis=top)
+
+
+def _bias_aware_ends(curve) -> list[float]:
+    """The finite bias-aware ends of a curve (none when the curve has no bias-aware band)."""
+    if curve.ba_lower is None or curve.ba_upper is None:
+        return []
+    return [float(v) for v in (*curve.ba_lower, *curve.ba_upper) if math.isfinite(v)]
+
+
+def _draw_bias_aware(ax, x, curve, ylo: float, yhi: float, level: str) -> None:
+    """The bias-aware band (2SLS at the set's centre) as two dashed edges over the union."""
+    if not _bias_aware_ends(curve):
+        return
+    style = {"color": ORANGE, "linestyle": (0, (3, 1.5)), "linewidth": 0.9, "zorder": 2.5}
+    (low,) = ax.plot(x, clip(curve.ba_lower, ylo, yhi), label=f"bias-aware {level} interval",
+                     **style)
+    (high,) = ax.plot(x, clip(curve.ba_upper, ylo, yhi), **style)
+    low.set_gid("bias_aware")
+    high.set_gid("bias_aware")
 
 
 def _breakdown_words(sweep: DirectView, axis: DirectAxis) -> str:

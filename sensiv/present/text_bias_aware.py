@@ -1,0 +1,33 @@
+"""Words for the bias-aware interval of a sweep or a published stress test (formatting only)."""
+
+from __future__ import annotations
+
+from sensiv.core.results import format_number
+
+
+def bias_aware_line(ba, confidence_level: float) -> str:
+    """One line: the bias-aware interval, its centre, worst-case bias, se and critical value."""
+    pct = f"{100 * confidence_level:g}%"
+    return (f"Bias-aware {pct} interval:             {ba.ci}  (2SLS at the {ba.centre}: "
+            f"{format_number(ba.estimate)}, worst-case bias {format_number(ba.max_bias)}, "
+            f"largest se {format_number(ba.se)}, critical value "
+            f"{format_number(ba.critical_value)}; Armstrong & Kolesar 2021)")
+
+
+def bias_aware_breakdown(scale: float | None, what: str = "set") -> str:
+    """The bias-aware breakdown scale in words (``what``: "set" or "range")."""
+    if scale is None:
+        return f"the bias-aware interval stays clear for every scaling of the {what} up to 1000x"
+    if scale == 0.0:
+        return "the bias-aware interval at zero direct effect has no conclusion to break"
+    return (f"the bias-aware interval reaches the threshold when the {what} is scaled by "
+            f"{format_number(scale)}")
+
+
+def bias_aware_cells(ba, confidence_level: float) -> list[list[str]]:
+    """Markdown rows (quantity, value) for a report."""
+    pct = f"{100 * confidence_level:g}%"
+    return [[f"bias-aware {pct} interval (2SLS at the {ba.centre})", str(ba.ci)],
+            ["bias-aware: estimate / worst-case bias / largest se / critical value",
+             " / ".join(format_number(v, 6) for v in (ba.estimate, ba.max_bias, ba.se,
+                                                       ba.critical_value))]]
