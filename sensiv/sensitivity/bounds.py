@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.core.limits import MAX_POINTS, check_count
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import ScoreSums
@@ -218,8 +219,7 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
         raise InputError("give either one --direct range per instrument or --direct-polytope "
                          "FILE (not both, not neither)")
     ranges = [parse_range(r) if isinstance(r, str) else r for r in (direct or [])]
-    if not isinstance(points, int) or points < 2:
-        raise InputError(f"--points {points} is too small; give at least 2 curve points")
+    check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):
         raise InputError("--threshold must be a finite number")
     source = iv.as_source(data, spec, chunk_rows=chunk_rows)

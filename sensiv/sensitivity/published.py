@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.core.limits import MAX_POINTS, check_count
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.estimation import distributions as dist
 from sensiv.sensitivity.bounds import (CAUTION, DEFAULT_POINTS, EXTEND_FACTOR, Breakdown, Curve,
@@ -215,8 +216,7 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
     if not 0.0 < confidence_level < 1.0:
         raise InputError(f"--level {confidence_level} is outside (0, 1); give a confidence "
                          "level such as 0.95")
-    if not isinstance(points, int) or isinstance(points, bool) or points < 2:
-        raise InputError(f"--points {points} is too small; give at least 2 curve points")
+    check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):
         raise InputError("--threshold must be a finite number")
     direct = one_value(direct, "--direct range(s)")
