@@ -8,6 +8,7 @@ whose magnitude exceeds :data:`MAX_MAGNITUDE` are refused because squares and pr
 
 from __future__ import annotations
 
+import contextlib
 import math
 import numbers
 
@@ -29,8 +30,13 @@ MAX_MAGNITUDE = 1e150
 """Largest magnitude of a range end or printed number: its square must stay far inside the
 range of double precision (about 1.8e308)."""
 
-__all__ = ["MAX_DRAWS", "MAX_MAGNITUDE", "MAX_POINTS", "MAX_REPS", "MAX_SEED", "check_count",
-           "check_magnitude", "check_seed"]
+PUBLISHED_MAGNITUDE = 1e100
+"""Largest magnitude of a printed number in ``published``: the stress test uses cubes of the
+first stage, which must stay inside double precision."""
+
+__all__ = ["MAX_DRAWS", "MAX_MAGNITUDE", "MAX_POINTS", "MAX_REPS", "MAX_SEED",
+           "PUBLISHED_MAGNITUDE", "check_count", "check_magnitude", "check_seed",
+           "overflow_guard"]
 
 
 def _whole(value) -> bool:
@@ -55,12 +61,31 @@ def check_count(value, option: str, low: int, high: int, what: str) -> int:
     return int(value)
 
 
-def check_magnitude(value: float, option: str) -> float:
-    """Refuse a number beyond :data:`MAX_MAGNITUDE` (or below its reciprocal, if non-zero)."""
+def check_magnitude(value: float, option: str, limit: float = MAX_MAGNITUDE,
+                    tiny: bool = False) -> float:
+    """Refuse a number beyond ``limit`` (with ``tiny``, also a non-zero one below its
+    reciprocal: a quantity that is divided by, or cubed, must not underflow)."""
     v = float(value)
-    if math.isfinite(v) and (abs(v) > MAX_MAGNITUDE or 0.0 < abs(v) < 1.0 / MAX_MAGNITUDE):
+    small = tiny and 0.0 < abs(v) < 1.0 / limit
+    if math.isfinite(v) and (abs(v) > limit or small):
+        span = f"from {1.0 / limit:g} to {limit:g}" if tiny else f"up to {limit:g}"
         raise InputError(f"{option} {v:g} is beyond what double precision supports in this "
-                         f"analysis (magnitudes from {1.0 / MAX_MAGNITUDE:g} to "
-                         f"{MAX_MAGNITUDE:g}); rescale the variables (e.g. measure the "
+                         f"analysis (magnitudes {span}); rescale the variables (e.g. measure the "
                          "outcome in thousands) and the numbers with them")
     return v
+
+
+@contextlib.contextmanager
+def overflow_guard(what: str):
+    """Turn an overflow of double precision inside the block (numpy or Python floats) into an
+    :class:`InputError` that names ``what`` to narrow or rescale — never a stream of numpy
+    warnings or a traceback."""
+    import numpy as np
+
+    try:
+        with np.errstate(over="raise"):
+            yield
+    except (FloatingPointError, OverflowError, ZeroDivisionError) as exc:
+        raise InputError(f"the computation overflows double precision ({exc}); {what} is too "
+                         "wide or too extreme for the data: narrow it, or rescale the outcome "
+                         "(e.g. measure it in thousands) and the range with it") from exc

@@ -34,7 +34,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sensiv.core.errors import InputError
-from sensiv.data.convert import (Tally, as_float, data_row, level_index, level_strings,
+from sensiv.data.convert import (Tally, as_float, check_scale, data_row, level_index, level_strings,
                                  missing_mask, scan_levels, text_controls)
 from sensiv.data.spec import Spec, check_columns, roles
 
@@ -135,6 +135,7 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
                     f"(first at data row {data_row(first_row, int(np.argmax(infinite)))}); "
                     "recode them to finite numbers or drop those rows"
                 )
+            check_scale(numeric[name], f"{role} {name!r} in {where}", first_row)
         missing_counts[name] = int(mask.sum())
         drop |= mask
     if spec.weight is not None:

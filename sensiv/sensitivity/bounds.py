@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
-from sensiv.core.limits import MAX_POINTS, check_count
+from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import ScoreSums
@@ -235,8 +235,9 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se, confidence_level=confidence_level, small=small,
         extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
-    return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
-                   threshold=threshold, points=points, adaptive=adaptive)
+    with overflow_guard("the --direct range (or polytope)"):
+        return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
+                       threshold=threshold, points=points, adaptive=adaptive)
 
 
 def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int, *,

@@ -24,7 +24,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
-from sensiv.core.limits import MAX_POINTS, check_count
+from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.estimation import distributions as dist
 from sensiv.sensitivity.bounds import (CAUTION, DEFAULT_POINTS, EXTEND_FACTOR, Breakdown, Curve,
@@ -236,8 +236,10 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
     if cov.method == METHOD_CLIPPED:
         for message in cov_notes:
             warnings.warn(message, InconsistentInputWarning, stacklevel=2)
-    return _stress_test(rep, sp, cov, gamma_set, gamma_rf, range_text, law, notes,
-                        threshold=threshold, points=points, confidence_level=confidence_level)
+    with overflow_guard("the --direct range or a printed number"):
+        return _stress_test(rep, sp, cov, gamma_set, gamma_rf, range_text, law, notes,
+                            threshold=threshold, points=points,
+                            confidence_level=confidence_level)
 
 
 def _stress_test(rep: Reported, sp: float, cov: Covariance, gamma_set: Interval,

@@ -33,8 +33,11 @@ def quadratic_roots(a2: float, a1: float, a0: float) -> np.ndarray:
     [1.0, 2.0]
     """
     scale = max(abs(a2), abs(a1), abs(a0))
-    if scale == 0.0:
+    if scale == 0.0 or not math.isfinite(scale):
         return np.array([])
+    # the roots do not change when every coefficient is divided by the largest: no overflow
+    a2, a1, a0 = a2 / scale, a1 / scale, a0 / scale
+    scale = 1.0
     if abs(a2) <= ROOT_TOL * scale:
         if abs(a1) <= ROOT_TOL * scale:
             return np.array([])
