@@ -463,6 +463,7 @@ def check(result, case: Case, out: Path | None) -> None:
     assert result.exit_code == case.code, (case.name, result.exit_code, result.stderr)
     if case.code == 0:
         json.loads(result.stdout)  # exactly one JSON document on stdout
+        assert "overflow" not in result.stderr, (case.name, result.stderr[:300])
         return
     assert result.stdout == "", (case.name, result.stdout[:200])  # --json stdout stays clean
     message = result.stderr
