@@ -401,6 +401,7 @@ def test_anderson_rubin_set_is_scale_equivariant(scale):
     # common practice, no source: measuring y in other units multiplies every coefficient and
     # every end of the AR set by the same factor (the AR statistic is unit-free)
     frame = simulated(seed=5)
+    frame = frame.assign(y=frame["y"] + frame["x2"])  # as above: the model holds
     base = ours(frame, ["x1"], ["z1", "z2"], ["w1"], "robust", False)
     scaled = ours(frame.assign(y=frame["y"] * scale), ["x1"], ["z1", "z2"], ["w1"], "robust",
                   False)
