@@ -8,11 +8,55 @@ numerical layers are imported inside the commands (one module per command in thi
 from __future__ import annotations
 
 import functools
+import sys
 import warnings
 
 import typer
+from typer.core import TyperGroup
+
+try:  # typer vendors its own copy of click from 0.2x on; older ones use click itself
+    from typer._click import exceptions as click_errors
+except ImportError:  # pragma: no cover
+    from click import exceptions as click_errors
+
+
+class SensivGroup(TyperGroup):
+    """The command group: usage errors of the option parser (a missing option, ``--level
+    abc``) are printed as one paragraph in sensiv's own format (``error: ...``), exit code 2."""
+
+    def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True,
+             **extra):
+        if not standalone_mode:
+            return super().main(args=args, prog_name=prog_name, complete_var=complete_var,
+                                standalone_mode=False, **extra)
+        try:
+            code = super().main(args=args, prog_name=prog_name, complete_var=complete_var,
+                                standalone_mode=False, **extra)
+        except click_errors.NoArgsIsHelpError as exc:
+            exc.show()  # a bare ``sensiv`` prints the help, as before
+            sys.exit(exc.exit_code)
+        except click_errors.UsageError as exc:
+            typer.echo(f"error: {usage_message(exc)}", err=True)
+            sys.exit(EXIT_BAD_INPUT)
+        except click_errors.ClickException as exc:
+            typer.echo(f"error: {exc.format_message()}", err=True)
+            sys.exit(exc.exit_code)
+        except typer.Abort:
+            typer.echo("error: aborted", err=True)
+            sys.exit(1)
+        sys.exit(code if isinstance(code, int) else 0)
+
+
+def usage_message(exc: "click_errors.UsageError") -> str:
+    """One paragraph: click's message, first letter lowered, plus where to read the options."""
+    text = " ".join(exc.format_message().split())
+    text = text[:1].lower() + text[1:]
+    path = exc.ctx.command_path if exc.ctx is not None else "sensiv"
+    return f"{text.rstrip('.')}; see '{path} --help' for the options"
+
 
 app = typer.Typer(
+    cls=SensivGroup,
     add_completion=False,
     no_args_is_help=True,
     rich_markup_mode=None,

@@ -13,9 +13,9 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
-                                OUTCOME, SE, SMALL, TREATMENT, WEIGHT, emit, figure_formats,
-                                spec_from_options, write_outputs)
+from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
+                                LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
+                                emit, figure_formats, out_option, spec_from_options, write_outputs)
 
 GROUP = typer.Option(None, "--group", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
 NO_FIRST_STAGE_GROUP = typer.Option(None, "--no-first-stage-group", help="0/1 column; rows with 1 form a subgroup where the instrument is believed not to move the treatment (van Kippersluis & Rietveld 2018).")
@@ -40,11 +40,12 @@ def calibrate(
     group: Optional[list[str]] = GROUP,
     no_first_stage_group: Optional[str] = NO_FIRST_STAGE_GROUP,
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Also write calibrate.json and calibrate.md here."),
+    out: Optional[Path] = out_option("Also write calibrate.json and calibrate.md here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """How large a direct effect is plausible: reduced-form scale, covariate benchmarks and a
     zero-first-stage estimate, each turned into options for sweep and prior."""
+    check_out(out)
     from sensiv.present.text_calibrate import calibration_markdown
     from sensiv.sensitivity import calibrate as calibration
     from sensiv.estimation import iv

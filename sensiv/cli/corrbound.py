@@ -12,16 +12,17 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
-                                OUTCOME, TREATMENT, WEIGHT, emit, figure_formats,
-                                spec_from_options, write_outputs)
+from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
+                                LEVEL, OUTCOME, TREATMENT, WEIGHT, WHERE, check_out, emit,
+                                figure_formats, out_option, spec_from_options, write_outputs)
+from sensiv.core.limits import MAX_POINTS, MAX_REPS
 
 MAX_RATIO = typer.Option(1.0, "--max-ratio", help="Largest ratio r̄ in [0, 1] of |corr(Z, u)| to |corr(X, u)|; 0 is the exclusion restriction.")
 ENDOGENEITY = typer.Option("unknown", "--endogeneity", help="Sign of corr(X, u): positive, negative or unknown (union over both).")
 THRESHOLD = typer.Option(0.0, "--threshold", help="Effect size for the breakdown ratio (smallest r̄ whose set contains it).")
-REPS = typer.Option(999, "--reps", help="Bootstrap replicates (whole clusters are resampled with --cluster).")
+REPS = typer.Option(999, "--reps", help=f"Bootstrap replicates, 0 to {MAX_REPS:,} (whole clusters are resampled with --cluster).")
 SEED = typer.Option(None, "--seed", help="Seed of the bootstrap [default: drawn and reported].")
-POINTS = typer.Option(51, "--points", help="Ratios on the curve from 0 to --max-ratio.")
+POINTS = typer.Option(51, "--points", help=f"Ratios on the curve from 0 to --max-ratio (2 to {MAX_POINTS:,}).")
 
 
 @app.command()
@@ -45,11 +46,12 @@ def corrbound(
     level: float = LEVEL,
     constant: bool = CONSTANT,
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Also write corrbound.json and corrbound.md here."),
+    out: Optional[Path] = out_option("Also write corrbound.json and corrbound.md here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Bounds on the effect when each instrument may be correlated with the error, in the
     treatment's direction and at most --max-ratio times as strongly (Nevo & Rosen 2012)."""
+    check_out(out)
     from sensiv.data import from_file
     from sensiv.core.errors import InputError
     from sensiv.partial_id.correlation import (check_one_treatment, check_options,

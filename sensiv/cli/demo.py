@@ -8,23 +8,25 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import FORMAT, JSON, emit, figure_formats
+from sensiv.cli.options import (FORMAT, JSON, check_out, emit, figure_formats, out_option,
+                                write_files)
 
 
 @app.command()
 @guarded
 def demo(
-    out: Path = typer.Option(Path("sensiv-demo"), "--out", help="Folder for the demo's report, tables, figures and data."),
+    out: Path = out_option("Folder for the demo's report, tables, figures and data.", Path("sensiv-demo")),
     formats: Optional[list[str]] = FORMAT,
-    figures_dir: Optional[Path] = typer.Option(None, "--figures-dir", help="Also copy the demo's PNG figures here (the repository's figures/ is made this way)."),
+    figures_dir: Optional[Path] = out_option("Also copy the demo's PNG figures here (the repository's figures/ is made this way).", None, "--figures-dir"),
     as_json: bool = JSON,
 ) -> None:
     """Run the main job on built-in INVENTED data: three studies, every analysis, one report."""
+    check_out(out)
+    check_out(figures_dir, "--figures-dir")
     import tempfile
 
     from sensiv import demo as demo_data
     from sensiv.analyses.outputs import results_table
-    from sensiv.present.writer import write_bundle
     from sensiv.present.text import text_table
     from sensiv.recipes.bundle import run_files
     from sensiv.recipes.parse import parse_recipe
@@ -44,10 +46,11 @@ def demo(
         result = run_recipe(recipe)
         files = {**run_files(result, chosen, note="Invented demo data (sensiv.demo)."),
                  **data_files}
-    write_bundle(out, files)
+    write_files(out, files)
     if figures_dir is not None:
-        write_bundle(figures_dir, {name.split("/", 1)[1]: data for name, data in files.items()
-                                   if name.startswith("figures/") and name.endswith(".png")})
+        write_files(figures_dir, {name.split("/", 1)[1]: data for name, data in files.items()
+                                   if name.startswith("figures/") and name.endswith(".png")},
+                    "--figures-dir")
     truth = {"irrigation": demo_data.irrigation().truth["beta"],
              "nudge": demo_data.nudge().truth["beta"]}
     from sensiv.present.bundle import REPORT_CAUTION

@@ -8,8 +8,8 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (WHERE, FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, emit,
-                                figure_formats, write_outputs)
+from sensiv.cli.options import (FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, WHERE,
+                                check_out, emit, figure_formats, out_option, write_outputs)
 
 EXIT_SOLVER_FAILURE = 1
 
@@ -43,21 +43,22 @@ def discrete(
                                         "share of defiers allowed, in [0, 1]."),
     threshold: float = typer.Option(0.0, "--threshold", help="Effect value for the breakdown "
                                     "budget (smallest budget whose bounds contain it)."),
-    reps: int = typer.Option(999, "--reps", help="Bootstrap replicates (0: no interval)."),
+    reps: int = typer.Option(999, "--reps", help="Bootstrap replicates, 10 to 10,000,000 (0: no interval)."),
     seed: Optional[int] = typer.Option(None, "--seed", help="Seed of the bootstrap [default: "
                                        "drawn and reported]."),
-    points: int = typer.Option(51, "--points", help="Budgets on the curve."),
+    points: int = typer.Option(51, "--points", help="Budgets on the curve (2 to 10,001)."),
     max_budget: Optional[float] = typer.Option(None, "--max-budget", help="End of the curve "
                                                "[default: the budget, at least 0.1, extended "
                                                "past the breakdown budget]."),
     level: float = LEVEL,
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Also write discrete.json and "
+    out: Optional[Path] = out_option("Also write discrete.json and "
                                        "discrete.md here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Bounds on the effect of a discrete treatment with a budget for direct effects of a
     randomised discrete instrument (Balke-Pearl bounds at budget 0)."""
+    check_out(out)
     from sensiv.core.errors import SolverError
     from sensiv.partial_id.discrete import discrete_bounds
     from sensiv.present.writer import to_json

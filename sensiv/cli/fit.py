@@ -8,9 +8,9 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON, LEVEL,
-                                OUTCOME, SE, SMALL, TREATMENT, WEIGHT, emit, figure_formats,
-                                spec_from_options, write_outputs)
+from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
+                                LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
+                                emit, figure_formats, out_option, spec_from_options, write_outputs)
 
 
 @app.command()
@@ -30,10 +30,11 @@ def fit(
     small: bool = SMALL,
     constant: bool = CONSTANT,
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Also write fit.json, fit.md, tables and a figure here."),
+    out: Optional[Path] = out_option("Also write fit.json, fit.md, tables and a figure here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
+    check_out(out)
     from sensiv.estimation import iv
     from sensiv.data import from_file
     from sensiv.present.writer import to_json

@@ -3,6 +3,7 @@ every command uses: figure formats, writing ``--out``, building the Spec, printi
 
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 from typing import Optional
@@ -58,6 +59,61 @@ FOCUS = typer.Option(None, "--focus", help="Treatment whose coefficient is exami
 THRESHOLD = typer.Option(0.0, "--threshold", help="The conclusion examined is 'effect > threshold' (or '<').")
 
 
+def out_path(value) -> Path:
+    """Parser of every ``--out``-like option: refuse an empty path before any work."""
+    if not str(value).strip():
+        raise typer.BadParameter("an empty path names no folder (it would write into the "
+                                 "current directory); give a folder such as --out results")
+    return Path(value)
+
+
+def out_option(help_text: str, default: Optional[Path] = None, name: str = "--out"):
+    """The declaration of an output-folder option (``...`` as ``default`` makes it required)."""
+    return typer.Option(default, name, help=help_text, parser=out_path)
+
+
+def _nearest_existing(path: Path) -> Path:
+    probe = path
+    while not os.path.lexists(probe) and probe != probe.parent:
+        probe = probe.parent
+    return probe
+
+
+def check_out(out: Optional[Path], option: str = "--out") -> None:
+    """Refuse an output folder that cannot be written, before any work is done: an existing
+    file, a parent that is a file, a name too long for the file system, a folder (or its
+    nearest existing parent) that is read-only."""
+    import tempfile
+
+    from sensiv.core.errors import InputError
+
+    if out is None:
+        return
+    target = Path(os.path.abspath(out))
+    fix = f"give another folder with {option}"
+    if not str(out).strip():
+        raise InputError(f"{option} is empty; {fix}, such as {option} results")
+    if os.path.isfile(target):
+        raise InputError(f"{option} '{out}' is an existing file, not a folder; {fix} (or move "
+                         "the file away)")
+    anchor = _nearest_existing(target)
+    if not os.path.isdir(anchor):
+        raise InputError(f"{option} '{out}': '{anchor}' is a file, so no folder can be made "
+                         f"inside it; {fix}")
+    limit = os.pathconf(anchor, "PC_NAME_MAX") if hasattr(os, "pathconf") else 255
+    for part in target.relative_to(anchor).parts:
+        if len(os.fsencode(part)) > limit:
+            raise InputError(f"{option}: the name '{part[:40]}...' has {len(os.fsencode(part))} "
+                             f"bytes, more than the file system allows ({limit}); give a "
+                             f"shorter name with {option}")
+    try:
+        probe = Path(tempfile.mkdtemp(prefix=".sensiv-probe-", dir=anchor))
+        probe.rmdir()
+    except OSError as exc:
+        raise InputError(f"{option} '{out}': cannot write into '{anchor}' ({exc.strerror}); "
+                         f"{fix} where you may write") from exc
+
+
 def figure_formats(formats: Optional[list[str]]) -> tuple[str, ...]:
     """Validated figure formats (a comma-separated value counts as several)."""
     from sensiv.core.errors import InputError
@@ -75,9 +131,21 @@ def write_outputs(out: Optional[Path], result, files: dict, formats: tuple[str, 
     if out is None:
         return
     from sensiv.analyses.outputs import figure_files, table_files
+
+    write_files(out, {**files, **table_files(result), **figure_files(result, formats)})
+
+
+def write_files(out: Path, files: dict, option: str = "--out") -> None:
+    """Write a bundle atomically; a failure of the file system becomes an :class:`InputError`
+    naming the folder (nothing is left behind)."""
+    from sensiv.core.errors import InputError
     from sensiv.present.writer import write_bundle
 
-    write_bundle(out, {**files, **table_files(result), **figure_files(result, formats)})
+    try:
+        write_bundle(out, files)
+    except OSError as exc:
+        raise InputError(f"{option} '{out}': writing failed ({exc.strerror or exc}); give a "
+                         f"folder where you may write with {option}") from exc
 
 
 def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,

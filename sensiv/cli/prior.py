@@ -8,9 +8,11 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT, JSON, LEVEL,
-                                OUTCOME, SE, SMALL, TREATMENT, WEIGHT, data_source, emit,
-                                figure_formats, write_outputs)
+from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
+                                JSON, LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE,
+                                check_out, data_source, emit, figure_formats, out_option,
+                                write_outputs)
+from sensiv.core.limits import MAX_DRAWS, MAX_SEED
 
 
 @app.command()
@@ -37,15 +39,16 @@ def prior(
              "normal:0:0.1rf."),
     prior_file: Optional[Path] = typer.Option(
         None, "--prior-file", help="TOML or JSON with 'mean' and 'cov' (multivariate normal)."),
-    draws: int = typer.Option(200_000, "--draws", help="Monte Carlo draws (non-normal laws, several instruments)."),
-    seed: int = typer.Option(0, "--seed", help="Seed of the Monte Carlo draws."),
+    draws: int = typer.Option(200_000, "--draws", help=f"Monte Carlo draws (non-normal laws, several instruments; 1,000 to {MAX_DRAWS:,})."),
+    seed: int = typer.Option(0, "--seed", help=f"Seed of the Monte Carlo draws (0 to {MAX_SEED})."),
     focus: Optional[str] = FOCUS,
     threshold: float = typer.Option(0.0, "--threshold", help="Threshold for the prior map: which priors leave an interval that excludes it."),
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Write prior.json, prior.md, tables and the prior map here."),
+    out: Optional[Path] = out_option("Write prior.json, prior.md, tables and the prior map here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Interval for the effect when the direct effect follows a prior law."""
+    check_out(out)
     from sensiv.estimation import iv
     from sensiv.sensitivity import prior as prior_layer
     from sensiv.present.markdown import prior_files

@@ -12,7 +12,9 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import FORMAT, JSON, LEVEL, THRESHOLD, emit, figure_formats, write_outputs
+from sensiv.core.limits import MAX_POINTS
+from sensiv.cli.options import (FORMAT, JSON, LEVEL, THRESHOLD, check_out, emit, figure_formats,
+                                out_option, write_outputs)
 
 
 @app.command()
@@ -36,14 +38,15 @@ def published(
         help="Prior of the direct effect: normal:MEAN:SD, uniform:LOW:HIGH or "
              "triangular:LOW:MODE:HIGH."),
     threshold: float = THRESHOLD,
-    points: int = typer.Option(101, "--points", help="Curve points over scalings 0..1 of the range."),
+    points: int = typer.Option(101, "--points", help=f"Curve points over scalings 0..1 of the range (2 to {MAX_POINTS:,})."),
     level: float = LEVEL,
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Write published.json and published.md here."),
+    out: Optional[Path] = out_option("Write published.json and published.md here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Stress test from a paper's printed numbers: identified set, union of intervals,
     breakdown, weak-IV-robust set and prior interval (one instrument, no data)."""
+    check_out(out)
     from sensiv.present.text_published import published_markdown
     from sensiv.present.writer import to_json
     from sensiv.sensitivity.published import published_analysis

@@ -8,19 +8,20 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import FORMAT, JSON, emit, figure_formats
+from sensiv.cli.options import (FORMAT, JSON, check_out, emit, figure_formats, out_option,
+                                write_files)
 
 
 @app.command()
 @guarded
 def run(
     recipe: Path = typer.Argument(..., help="Recipe file (TOML): data, roles, analyses."),
-    out: Path = typer.Option(..., "--out", help="Folder for report.md, report.html, tables and figures."),
+    out: Path = out_option("Folder for report.md, report.html, tables and figures.", ...),
     formats: Optional[list[str]] = FORMAT,
     as_json: bool = JSON,
 ) -> None:
     """Run every analysis of a recipe and write the report bundle."""
-    from sensiv.present.writer import write_bundle
+    check_out(out)
     from sensiv.recipes.bundle import run_files
     from sensiv.recipes.parse import parse_recipe
     from sensiv.recipes.run import run_recipe
@@ -31,7 +32,7 @@ def run(
         chosen = parsed.formats
     result = run_recipe(parsed)
     files = run_files(result, chosen)
-    write_bundle(out, files)
+    write_files(out, files)
     document = {"recipe": str(recipe), "out": str(out), "title": parsed.title,
                 "analyses": [{"study": r.study, "kind": r.analysis.kind,
                               "label": r.analysis.label, "result": r.result.to_dict()}

@@ -8,9 +8,11 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CATEGORICAL, WHERE, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT, JSON, LEVEL,
-                                OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT, data_source,
-                                emit, figure_formats, write_outputs)
+from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
+                                JSON, LEVEL, OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT,
+                                WHERE, check_out, data_source, emit, figure_formats, out_option,
+                                write_outputs)
+from sensiv.core.limits import MAX_POINTS
 
 
 @app.command()
@@ -38,14 +40,15 @@ def sweep(
         None, "--direct-polytope",
         help="CSV with one column per instrument and 'bound': rows a'g <= bound."),
     threshold: float = THRESHOLD,
-    points: int = typer.Option(101, "--points", help="Curve points over scalings 0..1 of the set."),
+    points: int = typer.Option(101, "--points", help=f"Curve points over scalings 0..1 of the set (2 to {MAX_POINTS:,})."),
     focus: Optional[str] = FOCUS,
     adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
     as_json: bool = JSON,
-    out: Optional[Path] = typer.Option(None, "--out", help="Write sweep.json, sweep.md, curve.csv, tables and figures here."),
+    out: Optional[Path] = out_option("Write sweep.json, sweep.md, curve.csv, tables and figures here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Direct-effect sweep: identified set, union of intervals, breakdown point, robust set."""
+    check_out(out)
     from sensiv.sensitivity import bounds
     from sensiv.estimation import iv
     from sensiv.present.markdown import sweep_files

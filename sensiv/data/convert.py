@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.limits import MAX_MAGNITUDE
 from sensiv.data.spec import MAX_SUGGESTIONS, Spec, roles, used_columns
 
 if TYPE_CHECKING:
@@ -122,6 +123,28 @@ def as_float(series: pd.Series, role: str, name: str, description: str,
         f"{what} holds numbers stored as text (e.g. {example!r}, dtype {series.dtype}); "
         "convert it with pandas.to_numeric before the analysis"
     )
+
+
+def check_scale(values: np.ndarray, what: str, first_row: int) -> None:
+    """Refuse values whose magnitude double precision cannot square and sum (above
+    :data:`~sensiv.core.limits.MAX_MAGNITUDE`, or non-zero and all below its reciprocal):
+    their spread would over- or underflow and the column would look constant."""
+    size = np.abs(values[np.isfinite(values)])
+    if size.size == 0:
+        return
+    largest = float(size.max())
+    if largest > MAX_MAGNITUDE:
+        position = int(np.argmax(np.abs(np.nan_to_num(values)) > MAX_MAGNITUDE))
+        raise InputError(f"{what} holds {values[position]:g} at data row "
+                         f"{data_row(first_row, position)}, out of the range this analysis can "
+                         f"handle (magnitudes up to {MAX_MAGNITUDE:g}); rescale the column "
+                         "(e.g. divide it by a power of ten) and read the estimates in the new "
+                         "unit")
+    if 0.0 < largest < 1.0 / MAX_MAGNITUDE:
+        raise InputError(f"{what} holds only values below {1.0 / MAX_MAGNITUDE:g} in size "
+                         f"(largest {largest:g}), out of the range this analysis can handle: "
+                         "their spread would underflow; rescale the column (e.g. multiply it "
+                         "by a power of ten) and read the estimates in the new unit")
 
 
 def missing_mask(series: pd.Series) -> np.ndarray:

@@ -70,8 +70,11 @@ def _check_frame(frame: Any, what: str) -> None:
         raise InputError(f"{what} must be a pandas DataFrame; got {type(frame).__name__}")
 
 
-def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None) -> Source:
+def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None,
+               description: str = "DataFrame") -> Source:
     """In-memory source; ``chunk_rows=None`` yields the whole frame as one chunk.
+
+    ``description`` names the data in messages (e.g. the file the frame was read from).
 
     Every row is validated here, so a bad value raises now rather than later.
 
@@ -94,7 +97,7 @@ def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None
                 yield sub
         return frames
 
-    return build_source(spec, "DataFrame", list(frame.columns), lambda: [frame], make_frames,
+    return build_source(spec, description, list(frame.columns), lambda: [frame], make_frames,
                   eager=True)
 
 
@@ -234,7 +237,24 @@ def _header(path: Path, fmt: str) -> list[str]:
     if not columns:
         raise InputError(f"'{path.name}' has no columns; supply a file with named columns "
                          "and data rows")
+    if fmt == "csv":
+        _refuse_repeated_names(path)
     return [str(name) for name in columns]
+
+
+def _refuse_repeated_names(path: Path) -> None:
+    """pandas renames a repeated CSV column ('x' twice becomes 'x' and 'x.1') and would use
+    the first silently; the raw header row is checked instead."""
+    import pandas as pd
+
+    raw = next(_guarded(path, "csv", lambda: iter(
+        [pd.read_csv(path, header=None, nrows=1, dtype=str, keep_default_na=False)])))
+    names = [str(v) for v in raw.iloc[0].tolist()] if len(raw) else []
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if repeated:
+        listed = ", ".join(f"{n!r} ({names.count(n)} times)" for n in repeated)
+        raise InputError(f"the header of '{path.name}' repeats column name(s) {listed}; "
+                         "rename the duplicates so that each column name is unique")
 
 
 def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:

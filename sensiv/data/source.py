@@ -36,11 +36,11 @@ import warnings
 import numpy as np
 
 from sensiv.core.errors import IdentifierWarning, InputError
-from sensiv.data.convert import (Tally, as_float, data_row, dtype_kind, identifier_notes,
-                                 level_index, level_strings, missing_mask, scan_levels,
+from sensiv.data.convert import (as_float, check_scale, data_row, dtype_kind, identifier_notes,
+                                 level_index, level_strings, missing_mask, scan_levels, Tally,
                                  text_controls)
-from sensiv.data.spec import Spec, check_columns, roles, row_filter
-from sensiv.data.where import Node, check_kinds, filter_columns, keep_mask
+from sensiv.data.spec import check_columns, roles, row_filter, Spec
+from sensiv.data.where import check_kinds, filter_columns, keep_mask, Node
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -152,6 +152,7 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
                     f"(first at data row {data_row(first_row, int(np.argmax(infinite)))}); "
                     "recode them to finite numbers or drop those rows"
                 )
+            check_scale(numeric[name], f"{role} {name!r} in {where}", first_row)
         missing_counts[name] = int(mask.sum())
         drop |= mask
     if spec.weight is not None:

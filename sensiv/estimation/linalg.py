@@ -5,6 +5,7 @@ Inner kernels: they trust their inputs (finite, correctly shaped) and never touc
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -176,9 +177,13 @@ def _standardised(a0: np.ndarray, a1: np.ndarray, v00: np.ndarray, v01: np.ndarr
     center = float(a1 @ a0) / denom if denom > 0 else 0.0
     v_c = v00 - center * s01 + center**2 * v11
     spread = np.sqrt(max(np.trace(v_c), np.finfo(float).tiny) / denom) if denom > 0 else 1.0
-    # b = center + spread * t; every coefficient below is in t.
-    quad = _RatioQuadratic(alpha0=a0 - center * a1, alpha1=spread * a1, v_c=v_c,
-                           w1=spread * (s01 - 2.0 * center * v11), w2=spread**2 * v11)
+    # b = center + spread * t; every coefficient below is in t.  Dividing a(t) by ``unit`` and
+    # V(t) by its square leaves the statistic a'V⁻¹a unchanged and puts both blocks of the
+    # bordered matrix on the scale of the critical value, whatever the outcome's unit.
+    unit = math.sqrt(float(np.trace(v_c))) if np.trace(v_c) > 0 else 1.0
+    quad = _RatioQuadratic(alpha0=(a0 - center * a1) / unit, alpha1=spread * a1 / unit,
+                           v_c=v_c / unit**2, w1=spread * (s01 - 2.0 * center * v11) / unit**2,
+                           w2=spread**2 * v11 / unit**2)
     return center, spread, quad
 
 

@@ -52,6 +52,7 @@ from typing import Literal
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.limits import MAX_POINTS, MAX_REPS, check_count, check_seed
 from sensiv.core.results import Interval, format_number
 from sensiv.data import Layout, Spec, load
 from sensiv.estimation.iv import prepare
@@ -96,12 +97,12 @@ def check_options(*, max_ratio: float, endogeneity: str, threshold: float, point
             or points < MIN_POINTS:
         raise InputError(f"--points {points!r} is too small; the curve needs at least "
                          f"{MIN_POINTS} ratios (the default is {DEFAULT_POINTS})")
+    check_count(points, "--points", MIN_POINTS, MAX_POINTS, "curve points")
     if isinstance(reps, bool) or not isinstance(reps, (int, np.integer)) or reps < 0:
         raise InputError(f"--reps {reps!r} is not a number of bootstrap replicates; give a "
                          f"positive integer such as {DEFAULT_REPS}")
-    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer))
-                             or seed < 0):
-        raise InputError(f"--seed {seed!r} is not a non-negative integer; give e.g. 12345")
+    check_count(reps, "--reps", 0, MAX_REPS, "bootstrap replicates")
+    check_seed(seed)
     if not isinstance(confidence_level, (int, float)) or not 0.0 < confidence_level < 1.0:
         raise InputError(f"--level {confidence_level!r} is outside (0, 1); give a confidence "
                          "level such as 0.95")

@@ -36,6 +36,7 @@ import math
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.limits import check_seed
 from sensiv.core.results import Interval
 from sensiv.estimation.inference import Progress, imbens_manski
 from sensiv.partial_id.discrete_data import CountsTable, plain_number
@@ -107,7 +108,7 @@ def _check_options(table, budget, monotone, defier_budget, threshold, reps, seed
     if reps != 0:
         _check_int(reps, "reps", "--reps", MIN_REPS, 10**7, " (or 0 for no bootstrap)")
     if seed is not None:
-        _check_int(seed, "seed", "--seed", 0, 2**63 - 1)
+        check_seed(seed)
     _check_int(points, "points", "--points", 2, MAX_POINTS)
     if max_budget is not None and (_check_share(max_budget, "max budget", "--max-budget")
                                    == 0.0):

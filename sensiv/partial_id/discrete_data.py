@@ -5,7 +5,8 @@ A :class:`CountsTable` holds the counts ``n[z, x, y]`` on the sorted levels of t
 ``Z``, the treatment ``X`` and the outcome ``Y``.  Individual-level data come through the data
 layer (:func:`tabulate` on a :class:`sensiv.data.Source`, listwise deletion of missing values
 as everywhere in sensiv); a table of counts is a frame or file with one row per cell and a
-``count`` column (:func:`counts_from_frame`, :func:`read_counts`).  Repeated cells are added.
+``count`` column (:func:`counts_from_frame`, :func:`read_counts`).  A cell listed twice is
+refused (summing it silently would hide a copy-and-paste mistake).
 
 The levels of a counts table are the values it lists, including cells with a zero count:
 listing ``y = 2`` with count 0 declares 2 a possible outcome, which widens the bounds.  With
@@ -290,8 +291,23 @@ def counts_from_frame(frame: pd.DataFrame, *, outcome: str, treatment: str, inst
                 f"value(s) (e.g. {plain_number(counts[row])} at data row {row + 1}); counts must "
                 "be whole numbers 0, 1, 2, ...: fix the table (shares or weights are not counts)"
             )
+    _refuse_repeated_cells(arrays, (instrument, treatment, outcome), description)
     return _table(arrays["instrument"], arrays["treatment"], arrays["outcome"],
                   counts.astype(np.int64), (outcome, treatment, instrument), 0, description)
+
+
+def _refuse_repeated_cells(arrays: dict, names: tuple[str, str, str], description: str) -> None:
+    cells = np.column_stack([arrays["instrument"], arrays["treatment"], arrays["outcome"]])
+    _, first, counts = np.unique(cells, axis=0, return_index=True, return_counts=True)
+    if (counts > 1).any():
+        rows = np.sort(first[counts > 1])
+        cell = cells[rows[0]]
+        again = [i + 1 for i in range(len(cells)) if (cells[i] == cell).all()]
+        shown = ", ".join(f"{n} = {plain_number(v)}" for n, v in zip(names, cell))
+        raise InputError(f"{description} lists the cell ({shown}) {len(again)} times (data "
+                         f"rows {', '.join(map(str, again[:5]))}); {int((counts > 1).sum())} "
+                         "cell(s) repeat: give each (instrument, treatment, outcome) cell once, "
+                         "with its total count")
 
 
 def read_counts(path: str | os.PathLike[str], *, outcome: str, treatment: str,

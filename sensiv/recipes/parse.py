@@ -89,6 +89,9 @@ def _analysis(entry: Any, where: str, lines: KeyLines, has_data: bool,
     if not isinstance(entry, dict):
         raise InputError(f"{lines.where('analysis')}: each [[analysis]] must be a table")
     kind = entry.get("kind")
+    if not isinstance(kind, str):
+        raise lines.fail("kind", f"'kind' in {where} must be a string naming the analysis, "
+                                 f"e.g. kind = \"sweep\"; got {kind!r}", scope)
     if kind not in KINDS:
         raise lines.fail("kind", f"analysis kind {kind!r} in {where} is not known; choose one "
                                  f"of {', '.join(KINDS)}", scope)
@@ -124,8 +127,8 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
             raise lines.fail("data", f"{where}.data lacks 'path' (the data file)")
         resolved = (base / data["path"]).resolve()
         if not resolved.is_file():
-            raise lines.fail("path", f"data file '{data['path']}' in {where}.data does not "
-                                     f"exist (looked for {resolved}); fix the path")
+            raise lines.fail("path", f"data file '{data['path']}' in {where}.data "
+                                     f"{not_a_file(resolved)}; fix the path")
         data = {**data, "path": str(resolved)}
     inference = dict(table.get("inference", {}))
     _check_table(inference, INFERENCE_KEYS, f"{where}.inference", lines)
@@ -143,8 +146,8 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
             if key in a.options:
                 resolved = (base / a.options[key]).resolve()
                 if not resolved.is_file():
-                    raise lines.fail(key, f"file '{a.options[key]}' ({key}) does not exist; "
-                                          "fix the path")
+                    raise lines.fail(key, f"file '{a.options[key]}' ({key}) "
+                                          f"{not_a_file(resolved)}; fix the path")
                 a.options[key] = str(resolved)
     name = table.get("name", f"study{index + 1}")
     if not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
@@ -153,14 +156,33 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
     return Study(name, table.get("description", ""), data, inference, analyses)
 
 
+def not_a_file(path: Path) -> str:
+    """How a path that is not a readable file fails: a directory, or missing."""
+    if path.is_dir():
+        return "is a directory, not a file"
+    return f"does not exist (looked for {path.resolve()})"
+
+
+def recipe_text(path: Path) -> str:
+    """The recipe's text; a file that is not UTF-8 is refused naming the byte and its line."""
+    raw = path.read_bytes()
+    try:
+        return raw.decode("utf-8-sig")  # a leading byte-order mark is allowed
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise InputError(f"{path.name}: not UTF-8 text (byte 0x{raw[exc.start]:02x} at "
+                         f"position {exc.start}, line {line}); save the recipe as UTF-8 "
+                         "(TOML files must be UTF-8)") from None
+
+
 def parse_recipe(path: str | Path) -> Recipe:
     """Read and validate a recipe; every problem is an :class:`InputError` naming key and line."""
     import tomllib
 
     p = Path(path)
     if not p.is_file():
-        raise InputError(f"recipe '{path}' does not exist; check the path")
-    text = p.read_text(encoding="utf-8")
+        raise InputError(f"recipe '{path}' {not_a_file(p)}; check the path")
+    text = recipe_text(p)
     try:
         content = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -179,6 +201,14 @@ def parse_recipe(path: str | Path) -> Recipe:
             raise lines.fail(sorted(single)[0], "a recipe with [[study]] tables cannot also "
                                                 "have top-level data/analysis keys")
         tables = content["study"]
+        if not tables:
+            raise lines.fail("study", "'study' is an empty list: the recipe has no analyses; "
+                                      "add [[study]] tables, each with [[study.analysis]] entries")
+        for i, t in enumerate(tables):
+            if not isinstance(t, dict):
+                raise lines.fail("study", f"study {i + 1} is {t!r}, not a table: write each "
+                                          "study as a [[study]] table with name, data and "
+                                          "[[study.analysis]] entries")
     else:
         tables = [{k: content[k] for k in STUDY_KEYS if k in content}]
     studies, first = [], 0

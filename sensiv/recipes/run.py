@@ -3,6 +3,8 @@ registry entry."""
 
 from __future__ import annotations
 
+import json
+import re
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
@@ -11,7 +13,7 @@ from sensiv.analyses.kind import RunContext
 from sensiv.analyses.registry import entry
 from sensiv.core.errors import InputError
 from sensiv.data import Spec, from_frame, read_table
-from sensiv.recipes.parse import parse_recipe
+from sensiv.recipes.parse import KeyLines, parse_recipe, recipe_text
 from sensiv.recipes.schema import AnalysisRun, Recipe, RunResult, Study
 
 
@@ -37,13 +39,18 @@ def run_recipe(recipe: Recipe | str | Path) -> RunResult:
     file); the data file of a study is read once."""
     if not isinstance(recipe, Recipe):
         recipe = parse_recipe(recipe)
-    runs = []
+    runs, first = [], 0
     for study in recipe.studies:
         source = frame = spec = None
         if study.data is not None:
-            frame = read_table(study.data["path"])
-            spec = spec_of(study.data)
-            source = from_frame(frame, spec)
+            name = Path(study.data["path"]).name
+            try:
+                frame = read_table(study.data["path"])
+                spec = spec_of(study.data)
+                source = from_frame(frame, spec, description=f"'{name}'")
+            except InputError as exc:
+                raise InputError(f"{recipe.path.name}: data file '{name}' of study "
+                                 f"\"{study.name}\": {exc}") from exc
         for index, analysis in enumerate(study.analyses, start=1):
             seed = analysis.seed if analysis.seed is not None else recipe.seed
             kind = entry(analysis.kind)
@@ -51,6 +58,40 @@ def run_recipe(recipe: Recipe | str | Path) -> RunResult:
                 raise InputError(f"analysis kind '{analysis.kind}' cannot run yet in this "
                                  "version")
             context = _context(study, source, frame, spec, seed)
-            result = kind.run(context, analysis.options)
+            try:
+                result = kind.run(context, analysis.options)
+            except InputError as exc:
+                raise in_recipe_terms(exc, recipe, study, index, first + index - 1) from exc
             runs.append(AnalysisRun(study.name, index, analysis, result))
+        first += len(study.analyses)
     return RunResult(recipe, tuple(runs))
+
+
+_FLAG = re.compile(r"(?<![\w-])--([a-z][a-z0-9-]*)")
+
+
+def in_recipe_terms(exc: InputError, recipe: Recipe, study: Study, index: int,
+                    position: int) -> InputError:
+    """An error of an analysis rephrased for the recipe: its file and line, the study, the
+    analysis and the key (``points = 1000000000000 in [[study.analysis]] 2 of study "main"``),
+    with every command-line flag of the message written as its recipe key."""
+    analysis = study.analyses[index - 1]
+    message = str(exc)
+    flag = _FLAG.search(message)
+    key = flag.group(1).replace("-", "_") if flag else None
+    message = _FLAG.sub(lambda m: m.group(1).replace("-", "_"), message)
+    where = f'[[study.analysis]] {index} of study "{study.name}" ({analysis.kind})'
+    lines = KeyLines(recipe_text(recipe.path), recipe.path)
+    head = f"{recipe.path.name}: in {where}"
+    if key is not None and key in analysis.options:
+        value = json.dumps(analysis.options[key], ensure_ascii=False)
+        head = (f"{lines.where(key, ('analysis', position))}: {key} = {value} in {where}")
+    elif key == "seed" and (analysis.seed is not None or recipe.seed is not None):
+        value = analysis.seed if analysis.seed is not None else recipe.seed
+        scope = ("analysis", position) if analysis.seed is not None else None
+        head = f"{lines.where('seed', scope)}: seed = {value} for {where}"
+    elif key is not None and key in study.inference:
+        value = json.dumps(study.inference[key])
+        head = (f"{lines.where(key)}: {key} = {value} in [study.inference] of study "
+                f"\"{study.name}\", used by {where}")
+    return InputError(f"{head}: {message}")

@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv, linalg
@@ -234,8 +235,7 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
         raise InputError("give either one --direct range per instrument or --direct-polytope "
                          "FILE (not both, not neither)")
     ranges = [parse_range(r) if isinstance(r, str) else r for r in (direct or [])]
-    if not isinstance(points, int) or points < 2:
-        raise InputError(f"--points {points} is too small; give at least 2 curve points")
+    check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):
         raise InputError("--threshold must be a finite number")
     source = iv.as_source(data, spec, chunk_rows=chunk_rows)
@@ -251,8 +251,9 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se, confidence_level=confidence_level, small=small,
         extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
-    return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
-                   threshold=threshold, points=points, adaptive=adaptive)
+    with overflow_guard("the --direct range (or polytope)"):
+        return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
+                       threshold=threshold, points=points, adaptive=adaptive)
 
 
 def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int, *,

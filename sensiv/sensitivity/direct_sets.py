@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.limits import check_magnitude
 from sensiv.core.results import Interval
 from sensiv.estimation import linalg
 from sensiv.estimation.moments import Moments
@@ -67,6 +68,8 @@ def parse_range(text: str) -> RangeSpec:
         raise InputError(f"--direct '{text}': LOW and HIGH must be numbers") from exc
     if not (math.isfinite(low) and math.isfinite(high)):
         raise InputError(f"--direct '{text}': the range must be finite")
+    check_magnitude(low, f"--direct '{text}': LOW")
+    check_magnitude(high, f"--direct '{text}': HIGH")
     if low > high:
         raise InputError(f"--direct '{text}': LOW {low:g} exceeds HIGH {high:g}; write "
                          f"{high:g}:{low:g}")

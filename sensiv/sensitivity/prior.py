@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.limits import MAX_DRAWS, check_count, check_seed
 from sensiv.core.results import Interval, describe, json_number
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
@@ -300,8 +301,8 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
             or not math.isfinite(threshold):
         raise InputError(f"--threshold {threshold!r} is not a finite number; give the effect "
                          "size the prior map examines, e.g. 0")
-    if not isinstance(draws, int) or draws < MC_BATCHES * 50:
-        raise InputError(f"--draws {draws} is too few; give at least {MC_BATCHES * 50}")
+    check_count(draws, "--draws", MC_BATCHES * 50, MAX_DRAWS, "Monte Carlo draws")
+    seed = check_seed(seed)
     source = iv.as_source(data, spec, chunk_rows=chunk_rows)
     instruments = source.layout.instruments
     if laws and len(laws) != len(instruments):

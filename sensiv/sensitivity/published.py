@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
+from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.estimation import distributions as dist
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
@@ -220,8 +221,7 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
     if not 0.0 < confidence_level < 1.0:
         raise InputError(f"--level {confidence_level} is outside (0, 1); give a confidence "
                          "level such as 0.95")
-    if not isinstance(points, int) or isinstance(points, bool) or points < 2:
-        raise InputError(f"--points {points} is too small; give at least 2 curve points")
+    check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):
         raise InputError("--threshold must be a finite number")
     direct = one_value(direct, "--direct range(s)")
@@ -243,8 +243,10 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
     if cov.method == METHOD_CLIPPED:
         for message in cov_notes:
             warnings.warn(message, InconsistentInputWarning, stacklevel=2)
-    return _stress_test(rep, sp, cov, gamma_set, gamma_rf, range_text, law, notes,
-                        threshold=threshold, points=points, confidence_level=confidence_level)
+    with overflow_guard("the --direct range or a printed number"):
+        return _stress_test(rep, sp, cov, gamma_set, gamma_rf, range_text, law, notes,
+                            threshold=threshold, points=points,
+                            confidence_level=confidence_level)
 
 
 def _stress_test(rep: Reported, sp: float, cov: Covariance, gamma_set: Interval,

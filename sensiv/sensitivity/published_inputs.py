@@ -12,6 +12,7 @@ import math
 from dataclasses import dataclass
 
 from sensiv.core.errors import InputError
+from sensiv.core.limits import PUBLISHED_MAGNITUDE, check_magnitude
 from sensiv.core.results import Interval
 from sensiv.sensitivity.direct_sets import RangeSpec, parse_range
 from sensiv.sensitivity.prior_laws import Prior
@@ -53,6 +54,7 @@ def _number(flag: str, value, *, positive: bool = False, optional: bool = False)
         raise InputError(f"{flag} {value!r} is not a number; give the printed value") from exc
     if not math.isfinite(number):
         raise InputError(f"{flag} {value!r} is not finite; give the printed (finite) value")
+    check_magnitude(number, flag, PUBLISHED_MAGNITUDE, tiny=True)
     if positive and not number > 0:
         raise InputError(f"{flag} {number:g} is not positive; a standard error or F statistic "
                          "must be > 0 (check the sign and the column you copied)")

@@ -33,8 +33,13 @@ def quadratic_roots(a2: float, a1: float, a0: float) -> np.ndarray:
     [1.0, 2.0]
     """
     scale = max(abs(a2), abs(a1), abs(a0))
-    if scale == 0.0:
+    if scale == 0.0 or not math.isfinite(scale):
         return np.array([])
+    # the roots do not change when every coefficient is divided by a power of two near the
+    # largest (exact in binary): no overflow in the discriminant
+    unit = 2.0 ** math.frexp(scale)[1]
+    a2, a1, a0 = a2 / unit, a1 / unit, a0 / unit
+    scale /= unit
     if abs(a2) <= ROOT_TOL * scale:
         if abs(a1) <= ROOT_TOL * scale:
             return np.array([])

@@ -560,3 +560,26 @@ def test_parquet_streaming_memory_does_not_grow_with_rows(tmp_path):
     rows, peak, size = map(int, out.split())
     assert rows == 200_000
     assert peak < size / 3  # measured ~1/6 streaming, ~4/3 with pyarrow pre-buffering
+
+
+# ------------------------------------------------------------------ repeated names, scale
+def test_csv_header_repeating_a_name_is_refused_naming_it(tmp_path):
+    # pandas would rename the second 'x' to 'x.1' and the first would be used silently
+    path = tmp_path / "dup.csv"
+    path.write_text("y,x,z,x\n1,2,3,4\n2,3,1,5\n3,1,2,7\n")
+    for read in (lambda: from_file(path, Spec("y", ("x",), ("z",))), lambda: read_table(path)):
+        with pytest.raises(InputError, match=r"repeats column name\(s\) 'x' \(2 times\)"):
+            read()
+    path.write_text("y,x,z,x.1\n1,2,3,4\n2,3,1,5\n3,1,2,7\n")  # distinct names: fine
+    assert list(read_table(path).columns) == ["y", "x", "z", "x.1"]
+
+
+@pytest.mark.parametrize("scale, fragment", [(1e160, "up to 1e+150"), (1e300, "up to 1e+150"),
+                                             (1e-200, "below 1e-150")])
+def test_values_beyond_double_precision_are_out_of_range_not_constant(scale, fragment):
+    frame = make_frame()
+    frame["y"] = frame["y"] * scale
+    with pytest.raises(InputError) as info:
+        load(from_frame(frame, Spec("y", ("x1",), ("z1",))))
+    assert "out of the range" in str(info.value) and fragment in str(info.value)
+    assert "constant" not in str(info.value)

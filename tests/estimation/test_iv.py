@@ -394,3 +394,21 @@ def test_json_contract_keys():
     assert set(got["ols"]) == {"coef", "se"}
     assert set(got["first_stage"]["x1"]) >= {"coef", "se", "f", "effective_f"}
     assert set(got["overid"]) >= {"stat", "df", "p_value"}
+
+
+@pytest.mark.parametrize("scale", [1e-100, 1e-10, 1e10, 1e100])
+def test_anderson_rubin_set_is_scale_equivariant(scale):
+    # common practice, no source: measuring y in other units multiplies every coefficient and
+    # every end of the AR set by the same factor (the AR statistic is unit-free)
+    frame = simulated(seed=5)
+    frame = frame.assign(y=frame["y"] + frame["x2"])  # as above: the model holds
+    base = ours(frame, ["x1"], ["z1", "z2"], ["w1"], "robust", False)
+    scaled = ours(frame.assign(y=frame["y"] * scale), ["x1"], ["z1", "z2"], ["w1"], "robust",
+                  False)
+    assert len(scaled.ar_set) == len(base.ar_set) >= 1
+    for a, b in zip(base.ar_set, scaled.ar_set):
+        for end_a, end_b in ((a.low, b.low), (a.high, b.high)):
+            if np.isfinite(end_a):
+                assert end_b / scale == pytest.approx(end_a, rel=1e-8)
+            else:
+                assert end_b == end_a

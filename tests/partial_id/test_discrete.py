@@ -650,3 +650,12 @@ def test_cli_infeasible_budget_is_a_finding_not_an_error(tmp_path):
     assert doc["min_budget"] == pytest.approx(0.3, abs=LP_TOL)  # by hand, as above
     assert any("does not fit" in note for note in doc["notes"])
     assert doc["curve"][0]["lower"] is None and doc["curve"][-1]["lower"] is not None
+
+
+def test_repeated_cell_of_a_counts_table_is_refused_naming_it():
+    # common practice, no source: a cell listed twice is a copy mistake, not to be summed
+    frame = pd.DataFrame({"z": [0, 0, 1, 1, 0], "x": [0, 1, 0, 1, 1], "y": [0, 1, 0, 1, 1],
+                          "count": [3, 4, 5, 6, 2]})
+    with pytest.raises(InputError, match=r"cell \(z = 0, x = 1, y = 1\) 2 times.*rows 2, 5"):
+        counts_from_frame(frame, outcome="y", treatment="x", instrument="z")
+    counts_from_frame(frame.iloc[:4], outcome="y", treatment="x", instrument="z")  # once: fine

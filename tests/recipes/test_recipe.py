@@ -6,6 +6,7 @@ give exactly what the corresponding library call gives.
 
 from __future__ import annotations
 
+import re
 import shutil
 from pathlib import Path
 
@@ -187,3 +188,69 @@ def test_bad_where_in_recipe_is_an_input_error(folder):
     text = GOOD.replace('cluster = "village"', 'cluster = "village"\nwhere = "plot_ha >"')
     with pytest.raises(InputError, match=r"line \d+: 'where' in .*syntax error at the end"):
         parse_recipe(write(folder, text))
+
+
+# ------------------------------------------------------------------ errors in recipe terms
+STUDY = """\
+[[study]]
+name = "main"
+[study.data]
+path = "irrigation.csv"
+outcome = "maize_yield"
+treatments = ["irrigation_hours"]
+instruments = ["height_m"]
+[[study.analysis]]
+kind = "fit"
+"""
+
+
+@pytest.mark.parametrize("text, fragments", [
+    (STUDY + '[[study.analysis]]\nkind = "sweep"\ndirect = ["-0.1:0.1"]\n'
+             'points = 1000000000000\n',
+     ["recipe.toml line 13: points = 1000000000000 in [[study.analysis]] 2 of study \"main\"",
+      "10,001"]),
+    ("seed = -5\n" + STUDY + '[[study.analysis]]\nkind = "prior"\nprior = ["normal:0:1"]\n',
+     ["recipe.toml line 1: seed = -5", "[[study.analysis]] 2 of study \"main\""]),
+    (STUDY.replace('[[study.analysis]]', '[study.inference]\nlevel = 1.5\n[[study.analysis]]'),
+     ["recipe.toml line 9: level = 1.5 in [study.inference] of study \"main\""]),
+])
+def test_run_errors_name_file_line_study_analysis_and_key(folder, text, fragments):
+    with pytest.raises(InputError) as info:
+        run_recipe(write(folder, text))
+    message = str(info.value)
+    for fragment in fragments:
+        assert fragment in message, message
+    assert "--" not in message  # recipe keys, not command-line flags
+
+
+def test_data_errors_in_a_run_name_the_data_file(folder):
+    with pytest.raises(InputError) as info:
+        run_recipe(write(folder, STUDY.replace('["height_m"]', '["heigth_m"]')))
+    assert "'irrigation.csv'" in str(info.value) and "DataFrame" not in str(info.value)
+
+
+@pytest.mark.parametrize("content, fragment", [
+    (b"# r\xe9colte\n" + STUDY.encode(), "not UTF-8 text (byte 0xe9 at position 3, line 1)"),
+    (STUDY.replace('kind = "fit"', 'kind = ["fit"]').encode(), "must be a string"),
+    (b"study = [1, 2]\n", "study 1 is 1, not a table"),
+    (b"study = []\n", "no analyses"),
+])
+def test_malformed_recipes_are_refused(folder, content, fragment):
+    path = folder / "recipe.toml"
+    path.write_bytes(content)
+    with pytest.raises(InputError, match=re.escape(fragment)):
+        parse_recipe(path)
+
+
+def test_recipe_with_a_byte_order_mark_is_read(folder):
+    path = folder / "recipe.toml"
+    path.write_bytes(b"\xef\xbb\xbf" + STUDY.encode())
+    assert parse_recipe(path).studies[0].name == "main"
+
+
+def test_directory_is_reported_as_a_directory(folder):
+    with pytest.raises(InputError, match="is a directory"):
+        parse_recipe(folder)
+    (folder / "data_dir").mkdir()
+    with pytest.raises(InputError, match="is a directory"):
+        parse_recipe(write(folder, STUDY.replace('"irrigation.csv"', '"data_dir"')))
