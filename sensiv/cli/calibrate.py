@@ -17,14 +17,21 @@ from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
 
-GROUP = typer.Option(None, "--group", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
-NO_FIRST_STAGE_GROUP = typer.Option(None, "--no-first-stage-group", help="0/1 column; rows with 1 form a subgroup where the instrument is believed not to move the treatment (van Kippersluis & Rietveld 2018).")
+GROUP = typer.Option(None, "--group", metavar="NAME=COL1,COL2", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
+NO_FIRST_STAGE_GROUP = typer.Option(None, "--no-first-stage-group", metavar="COLUMN", help="0/1 column; rows with 1 form a subgroup where the instrument is believed not to move the treatment (van Kippersluis & Rietveld 2018).")
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv calibrate examples/irrigation.csv --outcome maize_yield \\\n"
+           "      --treatment irrigation_hours --instrument height_m --control plot_ha \\\n"
+           "      --control soil --cluster village")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def calibrate(
-    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,

@@ -17,18 +17,25 @@ from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT,
                                 figure_formats, out_option, spec_from_options, write_outputs)
 from sensiv.core.limits import MAX_POINTS, MAX_REPS
 
-MAX_RATIO = typer.Option(1.0, "--max-ratio", help="Largest ratio r̄ in [0, 1] of |corr(Z, u)| to |corr(X, u)|; 0 is the exclusion restriction.")
-ENDOGENEITY = typer.Option("unknown", "--endogeneity", help="Sign of corr(X, u): positive, negative or unknown (union over both).")
-THRESHOLD = typer.Option(0.0, "--threshold", help="Effect size for the breakdown ratio (smallest r̄ whose set contains it).")
-REPS = typer.Option(999, "--reps", help=f"Bootstrap replicates, 0 to {MAX_REPS:,} (whole clusters are resampled with --cluster).")
-SEED = typer.Option(None, "--seed", help="Seed of the bootstrap [default: drawn and reported].")
-POINTS = typer.Option(51, "--points", help=f"Ratios on the curve from 0 to --max-ratio (2 to {MAX_POINTS:,}).")
+MAX_RATIO = typer.Option(1.0, "--max-ratio", metavar="NUMBER", help="Largest ratio r̄ in [0, 1] of |corr(Z, u)| to |corr(X, u)|; 0 is the exclusion restriction.")
+ENDOGENEITY = typer.Option("unknown", "--endogeneity", metavar="positive|negative|unknown", help="Sign of corr(X, u): positive, negative or unknown (union over both).")
+THRESHOLD = typer.Option(0.0, "--threshold", metavar="NUMBER", help="Effect size for the breakdown ratio (smallest r̄ whose set contains it).")
+REPS = typer.Option(999, "--reps", metavar="INTEGER", help=f"Bootstrap replicates, 0 to {MAX_REPS:,} (whole clusters are resampled with --cluster).")
+SEED = typer.Option(None, "--seed", metavar="INTEGER", help="Seed of the bootstrap [default: drawn and reported].")
+POINTS = typer.Option(51, "--points", metavar="INTEGER", help=f"Ratios on the curve from 0 to --max-ratio (2 to {MAX_POINTS:,}).")
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv corrbound examples/irrigation.csv --outcome maize_yield \\\n"
+           "      --treatment irrigation_hours --instrument height_m --control plot_ha \\\n"
+           "      --control soil --cluster village --max-ratio 0.1 --reps 199 --seed 1")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def corrbound(
-    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,

@@ -12,7 +12,12 @@ from sensiv.cli.options import (FORMAT, JSON, check_out, emit, figure_formats, o
                                 write_files)
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv demo --out sensiv-demo")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def demo(
     out: Path = out_option("Folder for the demo's report, tables, figures and data.", Path("sensiv-demo")),

@@ -23,10 +23,17 @@ def _one(names: list[str], role: str) -> str:
     return names[0]
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv discrete examples/nudge.csv --outcome bp_controlled --treatment screened \\\n"
+           "      --instrument sms --budget 0.05 --reps 199 --seed 1")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def discrete(
-    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file: one row per unit, "
+    data: Path = typer.Argument(..., metavar="DATA",
+        help="CSV, Parquet or Stata .dta file: one row per unit, "
                                           "or a table of counts with --counts."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
@@ -34,20 +41,20 @@ def discrete(
     where: Optional[str] = WHERE,
     counts: bool = typer.Option(False, "--counts", help="DATA is a counts table: columns for the "
                                 "instrument, treatment and outcome plus a 'count' column."),
-    budget: float = typer.Option(0.1, "--budget", help="Largest share of units whose outcome "
+    budget: float = typer.Option(0.1, "--budget", metavar="NUMBER", help="Largest share of units whose outcome "
                                  "the instrument changes directly, in [0, 1]; 0 is the "
                                  "exclusion restriction."),
     monotone: bool = typer.Option(False, "--monotone", help="Assume no defiers: the treatment "
                                   "never falls as the instrument moves up its sorted levels."),
-    defier_budget: float = typer.Option(0.0, "--defier-budget", help="With --monotone: largest "
+    defier_budget: float = typer.Option(0.0, "--defier-budget", metavar="NUMBER", help="With --monotone: largest "
                                         "share of defiers allowed, in [0, 1]."),
-    threshold: float = typer.Option(0.0, "--threshold", help="Effect value for the breakdown "
+    threshold: float = typer.Option(0.0, "--threshold", metavar="NUMBER", help="Effect value for the breakdown "
                                     "budget (smallest budget whose bounds contain it)."),
-    reps: int = typer.Option(999, "--reps", help="Bootstrap replicates, 10 to 10,000,000 (0: no interval)."),
-    seed: Optional[int] = typer.Option(None, "--seed", help="Seed of the bootstrap [default: "
+    reps: int = typer.Option(999, "--reps", metavar="INTEGER", help="Bootstrap replicates, 10 to 10,000,000 (0: no interval)."),
+    seed: Optional[int] = typer.Option(None, "--seed", metavar="INTEGER", help="Seed of the bootstrap [default: "
                                        "drawn and reported]."),
-    points: int = typer.Option(51, "--points", help="Budgets on the curve (2 to 10,001)."),
-    max_budget: Optional[float] = typer.Option(None, "--max-budget", help="End of the curve "
+    points: int = typer.Option(51, "--points", metavar="INTEGER", help="Budgets on the curve (2 to 10,001)."),
+    max_budget: Optional[float] = typer.Option(None, "--max-budget", metavar="NUMBER", help="End of the curve "
                                                "[default: the budget, at least 0.1, extended "
                                                "past the breakdown budget]."),
     level: float = LEVEL,

@@ -1,4 +1,5 @@
-"""``sensiv fit``: 2SLS with OLS beside it, first stages, the Anderson–Rubin set and the overidentification test."""
+"""``sensiv fit``: 2SLS with OLS beside it, first stages, the Anderson–Rubin set and the
+overidentification test."""
 
 from __future__ import annotations
 
@@ -13,10 +14,16 @@ from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv fit examples/irrigation.csv --outcome maize_yield --treatment irrigation_hours \\\n"
+           "      --instrument height_m --control plot_ha --control soil --cluster village")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def fit(
-    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,

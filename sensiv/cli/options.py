@@ -11,34 +11,34 @@ from typing import Optional
 import typer
 
 # Shared option declarations (one spelling per idea, shared by every analysis command).
-OUTCOME = typer.Option(..., "--outcome", help="Outcome column (y).")
+OUTCOME = typer.Option(..., "--outcome", metavar="COLUMN", help="Outcome column (y).")
 
 
-TREATMENT = typer.Option(..., "--treatment", help="Endogenous treatment column; repeat for several.")
+TREATMENT = typer.Option(..., "--treatment", metavar="COLUMN", help="Endogenous treatment column; repeat for several.")
 
 
-INSTRUMENT = typer.Option(..., "--instrument", help="Excluded instrument column; repeat for several.")
+INSTRUMENT = typer.Option(..., "--instrument", metavar="COLUMN", help="Excluded instrument column; repeat for several.")
 
 
-CONTROL = typer.Option(None, "--control", help="Exogenous control column; repeat. Text columns become indicators (first level dropped).")
+CONTROL = typer.Option(None, "--control", metavar="COLUMN", help="Exogenous control column; repeat. Text columns become indicators (first level dropped).")
 
 
-WHERE = typer.Option(None, "--where", help="Keep only the rows matching a filter such as \"age >= 18 and region in ['north', 'east']\" (==, !=, <, <=, >, >=, in [...], is missing, and, or, not, parentheses).")
+WHERE = typer.Option(None, "--where", metavar="EXPR", help="Keep only the rows matching a filter such as \"age >= 18 and region in ['north', 'east']\" (==, !=, <, <=, >, >=, in [...], is missing, and, or, not, parentheses).")
 
 
-CATEGORICAL = typer.Option(None, "--categorical", help="Integer-coded control to turn into indicators (first level dropped); repeat for several.")
+CATEGORICAL = typer.Option(None, "--categorical", metavar="COLUMN", help="Integer-coded control to turn into indicators (first level dropped); repeat for several.")
 
 
-SE = typer.Option(None, "--se", help="Covariance: classic, robust or cluster [default: cluster if --cluster is given, else robust].")
+SE = typer.Option(None, "--se", metavar="classic|robust|cluster", help="Covariance: classic, robust or cluster [default: cluster if --cluster is given, else robust].")
 
 
-CLUSTER = typer.Option(None, "--cluster", help="Cluster column for one-way clustered covariance.")
+CLUSTER = typer.Option(None, "--cluster", metavar="COLUMN", help="Cluster column for one-way clustered covariance.")
 
 
-WEIGHT = typer.Option(None, "--weight", help="Column of positive analytic weights.")
+WEIGHT = typer.Option(None, "--weight", metavar="COLUMN", help="Column of positive analytic weights.")
 
 
-LEVEL = typer.Option(0.95, "--level", help="Confidence level, in (0, 1).")
+LEVEL = typer.Option(0.95, "--level", metavar="NUMBER", help="Confidence level, in (0, 1).")
 
 
 SMALL = typer.Option(False, "--small", help="Finite-sample corrections with t and F reference laws.")
@@ -50,13 +50,13 @@ CONSTANT = typer.Option(True, "--constant/--no-constant", help="Include a consta
 JSON = typer.Option(False, "--json", help="Print exactly one JSON document on stdout.")
 
 
-FORMAT = typer.Option(None, "--format", help="Figure format: png, pdf or svg; repeat for several [default: png; for run, the recipe's formats].")
+FORMAT = typer.Option(None, "--format", metavar="png|pdf|svg", help="Figure format: png, pdf or svg; repeat for several [default: png; for run, the recipe's formats].")
 
 
-FOCUS = typer.Option(None, "--focus", help="Treatment whose coefficient is examined [default: the first].")
+FOCUS = typer.Option(None, "--focus", metavar="COLUMN", help="Treatment whose coefficient is examined [default: the first].")
 
 
-THRESHOLD = typer.Option(0.0, "--threshold", help="The conclusion examined is 'effect > threshold' (or '<').")
+THRESHOLD = typer.Option(0.0, "--threshold", metavar="NUMBER", help="The conclusion examined is 'effect > threshold' (or '<').")
 
 
 def out_path(value) -> Path:
@@ -69,7 +69,7 @@ def out_path(value) -> Path:
 
 def out_option(help_text: str, default: Optional[Path] = None, name: str = "--out"):
     """The declaration of an output-folder option (``...`` as ``default`` makes it required)."""
-    return typer.Option(default, name, help=help_text, parser=out_path)
+    return typer.Option(default, name, metavar="DIR", help=help_text, parser=out_path)
 
 
 def _nearest_existing(path: Path) -> Path:

@@ -15,10 +15,17 @@ from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, 
 from sensiv.core.limits import MAX_DRAWS, MAX_SEED
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv prior examples/irrigation.csv --outcome maize_yield --treatment irrigation_hours \\\n"
+           "      --instrument height_m --control plot_ha --control soil --cluster village \\\n"
+           "      --prior normal:0:0.003")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def prior(
-    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -32,17 +39,17 @@ def prior(
     small: bool = SMALL,
     constant: bool = CONSTANT,
     prior_law: Optional[list[str]] = typer.Option(
-        None, "--prior",
+        None, "--prior", metavar="LAW",
         help="Prior of one instrument's direct effect: normal:MEAN:SD, uniform:LOW:HIGH or "
              "triangular:LOW:MODE:HIGH; one per instrument in order. Suffix 'rf' (share of the "
              "reduced form) or 'sd' (outcome SDs per instrument SD) as for --direct, e.g. "
              "normal:0:0.1rf."),
     prior_file: Optional[Path] = typer.Option(
-        None, "--prior-file", help="TOML or JSON with 'mean' and 'cov' (multivariate normal)."),
-    draws: int = typer.Option(200_000, "--draws", help=f"Monte Carlo draws (non-normal laws, several instruments; 1,000 to {MAX_DRAWS:,})."),
-    seed: int = typer.Option(0, "--seed", help=f"Seed of the Monte Carlo draws (0 to {MAX_SEED})."),
+        None, "--prior-file", metavar="FILE", help="TOML or JSON with 'mean' and 'cov' (multivariate normal)."),
+    draws: int = typer.Option(200_000, "--draws", metavar="INTEGER", help=f"Monte Carlo draws (non-normal laws, several instruments; 1,000 to {MAX_DRAWS:,})."),
+    seed: int = typer.Option(0, "--seed", metavar="INTEGER", help=f"Seed of the Monte Carlo draws (0 to {MAX_SEED})."),
     focus: Optional[str] = FOCUS,
-    threshold: float = typer.Option(0.0, "--threshold", help="Threshold for the prior map: which priors leave an interval that excludes it."),
+    threshold: float = typer.Option(0.0, "--threshold", metavar="NUMBER", help="Threshold for the prior map: which priors leave an interval that excludes it."),
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Write prior.json, prior.md, tables and the prior map here."),
     formats: Optional[list[str]] = FORMAT,

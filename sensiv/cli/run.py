@@ -12,10 +12,16 @@ from sensiv.cli.options import (FORMAT, JSON, check_out, emit, figure_formats, o
                                 write_files)
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv run examples/demo.toml --out demo-report")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def run(
-    recipe: Path = typer.Argument(..., help="Recipe file (TOML): data, roles, analyses."),
+    recipe: Path = typer.Argument(..., metavar="RECIPE",
+        help="Recipe file (TOML): data, roles, analyses."),
     out: Path = out_option("Folder for report.md, report.html, tables and figures.", ...),
     formats: Optional[list[str]] = FORMAT,
     as_json: bool = JSON,

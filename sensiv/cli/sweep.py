@@ -15,10 +15,17 @@ from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, 
 from sensiv.core.limits import MAX_POINTS
 
 
-@app.command()
+EXAMPLE = ("\b\n"
+           "Example (on the invented demo data in examples/):\n"
+           "  sensiv sweep examples/irrigation.csv --outcome maize_yield --treatment irrigation_hours \\\n"
+           "      --instrument height_m --control plot_ha --control soil --cluster village \\\n"
+           "      --direct=-0.005:0.005")
+
+
+@app.command(epilog=EXAMPLE)
 @guarded
 def sweep(
-    data: Path = typer.Argument(..., help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -32,15 +39,15 @@ def sweep(
     small: bool = SMALL,
     constant: bool = CONSTANT,
     direct: Optional[list[str]] = typer.Option(
-        None, "--direct",
+        None, "--direct", metavar="LOW:HIGH",
         help="Assumed range LOW:HIGH of one instrument's direct effect on the outcome, one per "
              "instrument in order; suffix 'rf' = share of the reduced form, 'sd' = outcome SDs "
              "per instrument SD. Write --direct=-0.1:0.1 when LOW is negative."),
     direct_polytope: Optional[Path] = typer.Option(
-        None, "--direct-polytope",
+        None, "--direct-polytope", metavar="FILE",
         help="CSV with one column per instrument and 'bound': rows a'g <= bound."),
     threshold: float = THRESHOLD,
-    points: int = typer.Option(101, "--points", help=f"Curve points over scalings 0..1 of the set (2 to {MAX_POINTS:,})."),
+    points: int = typer.Option(101, "--points", metavar="INTEGER", help=f"Curve points over scalings 0..1 of the set (2 to {MAX_POINTS:,})."),
     focus: Optional[str] = FOCUS,
     adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
     as_json: bool = JSON,
