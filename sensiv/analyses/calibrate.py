@@ -25,8 +25,8 @@ def run(context, options) -> calibrate.Calibration:
 
 
 def draw(result, note):
-    if result.benchmarks or result.zero_first_stage is not None:
-        return {"benchmarks": figures.calibration_benchmarks(result, note=note)}
+    if result.yardsticks or result.zero_first_stage is not None:
+        return {"yardsticks": figures.calibration_yardsticks(result, note=note)}
     return {}
 
 

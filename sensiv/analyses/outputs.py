@@ -111,7 +111,7 @@ def figure_files(results, formats=("png",), *, note: str | None = None) -> dict[
 
     Stems: ``sweep-curve``/``-frontier``, ``prior-map``, ``corrbound-curve``,
     ``discrete-curve``, ``fit-summary``, ``published-curve``/``-frontier`` and
-    ``calibrate-benchmarks`` (a second result of a kind gets ``sweep2-…`` and so on).  A
+    ``calibrate-yardsticks`` (a second result of a kind gets ``sweep2-…`` and so on).  A
     calibration bounds no effect of the treatment, so it adds no row to the summary figure.
     ``note`` is added to every caption (e.g. "Invented demo data").  The same results give
     the same bytes.

@@ -1,7 +1,7 @@
 """Command `sensiv calibrate` (registered on the shared typer app when imported).
 
 Reference magnitudes for a plausible direct effect: the scale of the reduced form, covariate
-benchmarks and a zero-first-stage estimate (van Kippersluis & Rietveld 2018).  Parses the
+yardsticks and a zero-first-stage estimate (van Kippersluis & Rietveld 2018).  Parses the
 options, calls :func:`sensiv.sensitivity.calibrate.calibrate`, prints or writes.
 """
 
@@ -17,7 +17,7 @@ from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
 
-GROUP = typer.Option(None, "--group", metavar="NAME=COL1,COL2", help="NAME=COL1,COL2: a benchmark that leaves out these controls together; repeat for several.")
+GROUP = typer.Option(None, "--group", metavar="NAME=COL1,COL2", help="NAME=COL1,COL2: a yardstick that leaves out these controls together; repeat for several.")
 NO_FIRST_STAGE_GROUP = typer.Option(None, "--no-first-stage-group", metavar="COLUMN", help="0/1 column; rows with 1 form a subgroup where the instrument is believed not to move the treatment (van Kippersluis & Rietveld 2018).")
 
 
@@ -50,7 +50,7 @@ def calibrate(
     out: Optional[Path] = out_option("Also write calibrate.json and calibrate.md here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
-    """How large a direct effect is plausible: reduced-form scale, covariate benchmarks and a
+    """How large a direct effect is plausible: reduced-form scale, leave-one-out yardsticks and a
     zero-first-stage estimate, each turned into options for sweep and prior."""
     check_out(out)
     from sensiv.present.text_calibrate import calibration_markdown

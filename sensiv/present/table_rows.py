@@ -172,7 +172,7 @@ def published_rows(res) -> list[TableRow]:
 
 
 def calibrate_rows(res) -> list[TableRow]:
-    """The scale (reduced form and SDs) of each instrument, one row per covariate benchmark
+    """The scale (reduced form and SDs) of each instrument, one row per leave-one-out yardstick
     and instrument, and the zero-first-stage estimate when there is one.  The estimates are
     direct effects of an instrument on the outcome, not effects of the treatment."""
     s = res.scale
@@ -186,10 +186,10 @@ def calibrate_rows(res) -> list[TableRow]:
             f"{end_text(float(s.instrument_sd[k]))}, SD({res.outcome}) = {end_text(s.outcome_sd)}",
             float(s.reduced_form[k]), None, None, None, level, None, NONE_TEXT, res.n,
             "none (point values)", calibrate.CAUTION))
-    for b in res.benchmarks:
+    for b in res.yardsticks:
         left = ", ".join(b.columns)
         rows.append(TableRow(
-            f"benchmark: {_direct_of(b.instrument)} without {b.name}",
+            f"yardstick: {_direct_of(b.instrument)} without {b.name}",
             f"an unobserved direct effect comparable to the shift in the reduced form of "
             f"{b.instrument} when {left} is left out (a judgement, not a test)",
             b.implied_direct, None, None, None, level, None, NONE_TEXT, res.n,

@@ -26,10 +26,10 @@ def _g(value: float) -> str:
 def _rows(cal: Calibration) -> list[list[str]]:
     return [[b.name, b.instrument, _g(b.implied_direct), _g(b.implied_direct_rf),
              _g(b.implied_direct_sd), _g(b.implied_direct_net), b.sweep_option]
-            for b in cal.benchmarks]
+            for b in cal.yardsticks]
 
 
-BENCHMARK_HEADER = ["left out", "instrument", "implied direct", "share of RF", "SD units",
+YARDSTICK_HEADER = ["left out", "instrument", "implied direct", "share of RF", "SD units",
                     "net of first stage", "sweep range"]
 
 
@@ -68,10 +68,10 @@ def calibration_text(cal: Calibration) -> str:
                     [[z, _g(r), _g(sd)] for z, r, sd in
                      zip(s.instruments, s.reduced_form, s.instrument_sd)])
     lines.append(f"outcome SD: {_g(s.outcome_sd)}")
-    lines += ["", "Covariate benchmarks: direct effect implied by leaving a control out "
+    lines += ["", "Leave-one-out yardsticks: direct effect implied by leaving a control out "
                   "(RF without it minus RF with it)"]
-    if cal.benchmarks:
-        lines += _text_table(BENCHMARK_HEADER, _rows(cal))
+    if cal.yardsticks:
+        lines += _text_table(YARDSTICK_HEADER, _rows(cal))
     else:
         lines.append("  none (no controls)")
     if cal.zero_first_stage is not None:
@@ -97,8 +97,8 @@ def calibration_markdown(cal: Calibration) -> str:
         markdown_table(["instrument", "reduced form", "instrument SD"],
                        [[z, _g(r), _g(sd)] for z, r, sd in
                         zip(s.instruments, s.reduced_form, s.instrument_sd)]),
-        f"\nOutcome SD: {_g(s.outcome_sd)}.\n\n## Covariate benchmarks\n\n",
-        (markdown_table(BENCHMARK_HEADER, _rows(cal)) if cal.benchmarks else "None.\n"),
+        f"\nOutcome SD: {_g(s.outcome_sd)}.\n\n## Leave-one-out yardsticks\n\n",
+        (markdown_table(YARDSTICK_HEADER, _rows(cal)) if cal.yardsticks else "None.\n"),
     ]
     if cal.zero_first_stage is not None:
         z_lines = _zfs_lines(cal.zero_first_stage, "- ")

@@ -20,8 +20,8 @@ Modules, lowest first (each imports only those above it)
     The sweep API (``sweep``, ``analyse``, ``SweepResult``).
 ``prior_laws``, ``prior``
     Prior laws of the direct effect; prior intervals and the prior map.
-``benchmarks``, ``zero_first_stage``, ``calibrate``
-    Calibration yardsticks: covariate benchmarks, the zero-first-stage estimate, the entry point.
+``yardsticks``, ``zero_first_stage``, ``calibrate``
+    Calibration yardsticks: leave-one-out yardsticks, the zero-first-stage estimate, the entry point.
 ``published_inputs``, ``published_covariance``, ``published``
     Stress tests from a published table's printed numbers.
 """

@@ -7,7 +7,7 @@ This module offers three yardsticks, each computed from moments:
   out), the outcome SD and each instrument's SD (weighted, divisor ``Σw``; the definitions of
   :class:`sensiv.sensitivity.direct_sets.Scale`), so that a direct effect ``γ_k`` reads as a
   share of the reduced form, ``γ_k / ρ_k``, or in SD units, ``γ_k · SD(z_k) / SD(y)``;
-* **covariate benchmarks** — for each control (or named group of controls), the shift in the
+* **leave-one-out yardsticks** — for each control (or named group of controls), the shift in the
   instruments' reduced-form coefficients when that control is left out,
 
   .. math::
@@ -15,7 +15,7 @@ This module offers three yardsticks, each computed from moments:
       Δρ_g = ρ(\text{controls} \setminus g) - ρ(\text{controls}),
 
   i.e. the spurious "direct effect" that forgetting an *observed* confounder would have
-  produced.  All benchmarks come from the same pass-1 moments: a reduced form without a
+  produced.  All yardsticks come from the same pass-1 moments: a reduced form without a
   control is just a different design on the same cross-products;
 * **zero-first-stage estimate** (van Kippersluis & Rietveld 2018) — in a subgroup where the
   instrument is believed not to move the treatment, ``ρ = βπ + γ`` collapses to ``ρ = γ``,
@@ -24,7 +24,7 @@ This module offers three yardsticks, each computed from moments:
   ``sensiv sweep``.
 
 None of these is the true direct effect; they are reference magnitudes a reader can judge.
-The benchmarks live in :mod:`sensiv.sensitivity.benchmarks`, the zero-first-stage estimate in
+The yardsticks live in :mod:`sensiv.sensitivity.yardsticks`, the zero-first-stage estimate in
 :mod:`sensiv.sensitivity.zero_first_stage`; this module parses the options, runs them on one
 set of moments and holds the :class:`Calibration` result.
 """
@@ -41,7 +41,7 @@ from sensiv.data import read_table
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.moments import accumulate
-from sensiv.sensitivity.benchmarks import (Benchmark, benchmark_groups, covariate_benchmarks,
+from sensiv.sensitivity.yardsticks import (Yardstick, yardstick_groups, leave_one_out_yardsticks,
                                            instrument_coefficients)
 from sensiv.sensitivity.direct_sets import Scale, scale_from_moments
 from sensiv.sensitivity.zero_first_stage import (ZeroFirstStage, check_role, subgroup_mask,
@@ -54,7 +54,7 @@ CAUTION = ("Caution: these calibrations are reference magnitudes, not estimates 
 
 # ============================================================================ options
 def parse_group(text: str) -> tuple[str, tuple[str, ...]]:
-    """Parse ``NAME=COL1,COL2`` (a named group of controls for a joint benchmark).
+    """Parse ``NAME=COL1,COL2`` (a named group of controls for a joint yardstick).
 
     Examples
     --------
@@ -85,7 +85,7 @@ def parse_groups(texts: Sequence[str]) -> dict[str, tuple[str, ...]]:
 # ============================================================================ the result
 @dataclass(frozen=True, slots=True)
 class Calibration:
-    """Reference magnitudes for direct effects: scale, covariate benchmarks, zero first stage."""
+    """Reference magnitudes for direct effects: scale, leave-one-out yardsticks, zero first stage."""
 
     outcome: str
     treatments: tuple[str, ...]
@@ -96,7 +96,7 @@ class Calibration:
     confidence_level: float
     scale: Scale
     estimate: dict[str, float]
-    benchmarks: tuple[Benchmark, ...]
+    yardsticks: tuple[Yardstick, ...]
     zero_first_stage: ZeroFirstStage | None
     notes: tuple[str, ...] = field(default=())
     n_filtered: int = 0
@@ -107,7 +107,7 @@ class Calibration:
             "linear model with constant coefficients: the outcome's dependence on the "
             "instruments is summarised by their reduced-form coefficients (controls "
             "partialled out)",
-            "covariate benchmarks (Δρ = reduced form without the control minus with it) treat "
+            "leave-one-out yardsticks (Δρ = reduced form without the control minus with it) treat "
             "an unobserved violation as comparable in size to the confounding that an "
             "observed control removes; that comparison is a judgement, not a test",
             "implied_direct_net subtracts the first-stage shift times the full-sample 2SLS "
@@ -128,14 +128,14 @@ class Calibration:
     def suggestions(self) -> list[dict]:
         """Option strings for ``sweep`` and ``prior`` derived from each yardstick."""
         out = []
-        for name in dict.fromkeys(b.name for b in self.benchmarks):
-            rows = [b for b in self.benchmarks if b.name == name]
-            out.append({"source": f"covariate benchmark '{name}'", "command": "sweep",
+        for name in dict.fromkeys(b.name for b in self.yardsticks):
+            rows = [b for b in self.yardsticks if b.name == name]
+            out.append({"source": f"leave-one-out yardstick '{name}'", "command": "sweep",
                         "options": " ".join(b.sweep_option for b in rows)})
-        if len({b.name for b in self.benchmarks}) > 1:
-            largest = [max((b for b in self.benchmarks if b.instrument == z),
+        if len({b.name for b in self.yardsticks}) > 1:
+            largest = [max((b for b in self.yardsticks if b.instrument == z),
                            key=lambda b: abs(b.implied_direct)) for z in self.instruments]
-            out.append({"source": "largest covariate benchmark per instrument ("
+            out.append({"source": "largest leave-one-out yardstick per instrument ("
                         + ", ".join(f"{b.instrument}: {b.name}" for b in largest) + ")",
                         "command": "sweep",
                         "options": " ".join(b.sweep_option for b in largest)})
@@ -160,7 +160,7 @@ class Calibration:
                       "outcome_sd": s.outcome_sd,
                       "instrument_sd": dict(zip(s.instruments, map(float, s.instrument_sd)))},
             "estimate": {k: json_number(v) for k, v in self.estimate.items()},
-            "covariate_benchmarks": [b.to_dict() for b in self.benchmarks],
+            "yardsticks": [b.to_dict() for b in self.yardsticks],
             "zero_first_stage": (self.zero_first_stage.to_dict()
                                  if self.zero_first_stage is not None else None),
             "suggestions": self.suggestions(),
@@ -178,7 +178,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
               no_first_stage_group: str | None = None, se: iv.SEType | None = None,
               confidence_level: float = 0.95, small: bool = False,
               chunk_rows: int | None = None) -> Calibration:
-    """Scale, covariate benchmarks and (optionally) a zero-first-stage direct-effect estimate.
+    """Scale, leave-one-out yardsticks and (optionally) a zero-first-stage direct-effect estimate.
 
     Parameters
     ----------
@@ -188,7 +188,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     spec : sensiv.data.Spec, optional
         Required unless ``data`` is a source.
     groups : mapping of str to sequence of str, optional
-        Extra benchmarks: group name → controls left out together.
+        Extra yardsticks: group name → controls left out together.
     no_first_stage_group : str, optional
         A 0/1 column; rows with 1 form the subgroup where the instruments are believed not to
         move the treatment.
@@ -209,7 +209,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     >>> x = z + rng.normal(size=n); y = x + 2.0 * w + rng.normal(size=n)
     >>> frame = pd.DataFrame({"y": y, "x": x, "z": z, "w": w})
     >>> cal = calibrate(frame, Spec("y", ["x"], ["z"], controls=["w"]))
-    >>> b = cal.benchmarks[0]  # population value: 2 · cov(w, z) / var(z) = 2 · 0.5 / 1.25 = 0.8
+    >>> b = cal.yardsticks[0]  # population value: 2 · cov(w, z) / var(z) = 2 · 0.5 / 1.25 = 0.8
     >>> b.name, round(b.implied_direct, 3)
     ('w', 0.784)
     """
@@ -218,7 +218,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     layout = source.layout
     se = se or iv.default_se(spec)
     iv.check_options(se, spec.cluster, confidence_level)
-    named = benchmark_groups(spec, layout, groups)
+    named = yardstick_groups(spec, layout, groups)
     if frame is not None:  # column checks before any estimation
         check_role(spec, no_first_stage_group)
         subgroup_mask(frame, no_first_stage_group)
@@ -229,10 +229,10 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     beta = (pieces.design.transform @ pieces.tsls.params)[-k_x:]
     full = instrument_coefficients(moments, pieces.design)
     scale = scale_from_moments(moments, layout.outcome, layout.instruments, full[:, k_x])
-    benchmarks = covariate_benchmarks(moments, layout, named, full, beta, scale)
+    yardsticks = leave_one_out_yardsticks(moments, layout, named, full, beta, scale)
     notes = list(getattr(source, "notes", ()))
     if not named:
-        notes.append("no controls, so no covariate benchmarks: add --control (or --group) to "
+        notes.append("no controls, so no leave-one-out yardsticks: add --control (or --group) to "
                      "compare the direct effect with an observed confounder")
     zfs = None
     if frame is not None:
@@ -247,7 +247,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
         outcome=layout.outcome, treatments=layout.treatments, instruments=layout.instruments,
         controls=spec.controls, n=moments.n, n_dropped=moments.n_dropped,
         confidence_level=confidence_level, scale=scale,
-        estimate=dict(zip(layout.treatments, map(float, beta))), benchmarks=benchmarks,
+        estimate=dict(zip(layout.treatments, map(float, beta))), yardsticks=yardsticks,
         zero_first_stage=zfs, notes=tuple(notes), n_filtered=moments.n_filtered,
         where=spec.where)
 

@@ -22,7 +22,7 @@ from sensiv.estimation.design import CONSTANT, Design
 from sensiv.estimation.first_stage import first_stage_covariance
 from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import Moments, ScoreBlock, accumulate, score_sums
-from sensiv.sensitivity.benchmarks import (OPTION_DIGITS, design_for, outward, partialled,
+from sensiv.sensitivity.yardsticks import (OPTION_DIGITS, design_for, outward, partialled,
                                            range_option)
 from sensiv.sensitivity.direct_sets import Scale
 

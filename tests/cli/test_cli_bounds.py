@@ -148,7 +148,7 @@ def test_sweep_adaptive_needs_one_treatment(tmp_path):
 @pytest.mark.parametrize("command,args,figure", [
     ("prior", ("--prior", "normal:0:0.003", "--threshold", "0.01"), "prior-map"),
     ("corrbound", ("--max-ratio", "0.1", "--reps", "20", "--seed", "1"), "corrbound-curve"),
-    ("calibrate", (), "calibrate-benchmarks"),
+    ("calibrate", (), "calibrate-yardsticks"),
 ])
 def test_out_writes_tables_and_figures_in_each_format(tmp_path, command, args, figure):
     out = tmp_path / "o"

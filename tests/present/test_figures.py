@@ -464,7 +464,7 @@ def caption_words(fig) -> str:
 CALIBRATIONS = ["calibrate", "calibrate_zfs", "calibrate_two"]
 NEW_FIGURES = [(figures.sensitivity_curve, p) for p in PUBLISHED] + \
               [(figures.breakdown_frontier, p) for p in PUBLISHED] + \
-              [(figures.calibration_benchmarks, c) for c in CALIBRATIONS]
+              [(figures.calibration_yardsticks, c) for c in CALIBRATIONS]
 
 
 @pytest.mark.parametrize("draw, name", NEW_FIGURES,
@@ -582,11 +582,11 @@ def test_summary_intervals_take_published_rows(extra, results):
     assert summary_rows([extra["calibrate"]]) == []     # no effect of the treatment
 
 
-def test_calibration_figure_draws_benchmarks_and_zero_first_stage(extra):
+def test_calibration_figure_draws_yardsticks_and_zero_first_stage(extra):
     cal = extra["calibrate_zfs"]
-    fig = figures.calibration_benchmarks(cal)
-    for b in cal.benchmarks:
-        (bar,) = gid_lines(fig, f"benchmark:{b.name}:{b.instrument}")
+    fig = figures.calibration_yardsticks(cal)
+    for b in cal.yardsticks:
+        (bar,) = gid_lines(fig, f"yardstick:{b.name}:{b.instrument}")
         assert bar.get_width() == b.implied_direct and bar.get_x() == 0.0
     z = cal.zero_first_stage
     (line,) = gid_lines(fig, "zero-first-stage:height_m")
@@ -604,9 +604,9 @@ def test_calibration_figure_draws_benchmarks_and_zero_first_stage(extra):
 
 def test_calibration_figure_with_several_instruments_uses_shares(extra):
     cal = extra["calibrate_two"]
-    fig = figures.calibration_benchmarks(cal)
-    for b in cal.benchmarks:
-        (bar,) = gid_lines(fig, f"benchmark:{b.name}:{b.instrument}")
+    fig = figures.calibration_yardsticks(cal)
+    for b in cal.yardsticks:
+        (bar,) = gid_lines(fig, f"yardstick:{b.name}:{b.instrument}")
         assert bar.get_width() == b.implied_direct_rf
     z = cal.zero_first_stage
     for k, name in enumerate(z.instruments):
@@ -619,9 +619,9 @@ def test_calibration_figure_needs_something_to_draw(extra):
     from sensiv.sensitivity.calibrate import calibrate
 
     bare = calibrate(EXAMPLE, Spec("maize_yield", ["irrigation_hours"], ["height_m"]))
-    assert not bare.benchmarks and bare.zero_first_stage is None
+    assert not bare.yardsticks and bare.zero_first_stage is None
     with pytest.raises(InputError, match="nothing to draw"):
-        figures.calibration_benchmarks(bare)
+        figures.calibration_yardsticks(bare)
 
 
 def test_zero_first_stage_interval_in_result_and_json(extra):
@@ -647,12 +647,12 @@ def test_new_figures_draw_into_given_axes(extra):
     FigureCanvasAgg(fig)
     left, right = fig.subplots(1, 2)
     assert figures.sensitivity_curve(extra["published"], ax=left) is fig
-    assert figures.calibration_benchmarks(extra["calibrate_zfs"], ax=right) is fig
+    assert figures.calibration_yardsticks(extra["calibrate_zfs"], ax=right) is fig
     assert right.get_legend() is not None
 
 
 @pytest.mark.parametrize("draw, name", [(figures.breakdown_frontier, "published"),
-                                        (figures.calibration_benchmarks, "calibrate_zfs")])
+                                        (figures.calibration_yardsticks, "calibrate_zfs")])
 def test_new_figures_save_to_identical_bytes(extra, draw, name):
     first = figures.save_figure(draw(extra[name]), figures.FORMATS)
     second = figures.save_figure(draw(extra[name]), figures.FORMATS)

@@ -301,10 +301,10 @@ def test_published_rows_read_the_result(extra):
 def test_calibration_rows_read_the_result(extra):
     cal = extra["calibrate_zfs"]
     rows = table_rows.calibrate_rows(cal)
-    assert len(rows) == 1 + len(cal.benchmarks) + 1
+    assert len(rows) == 1 + len(cal.yardsticks) + 1
     scale = rows[0]
     assert scale.estimate == float(cal.scale.reduced_form[0]) and scale.interval is None
-    for row, b in zip(rows[1:], cal.benchmarks):
+    for row, b in zip(rows[1:], cal.yardsticks):
         assert b.name in row.analysis
         assert (row.estimate, row.share_rf, row.sd_units) == (
             b.implied_direct, b.implied_direct_rf, b.implied_direct_sd)
@@ -316,7 +316,7 @@ def test_calibration_rows_read_the_result(extra):
     assert zrow.share_rf == z.direct_rf[0] and z.prior_options[0] in zrow.suggestion
     assert "premise doubtful" in zrow.assumption
     assert all("reference magnitudes" in r.caution for r in rows)
-    assert len(table_rows.calibrate_rows(extra["calibrate"])) == 1 + 2   # scale, two benchmarks
+    assert len(table_rows.calibrate_rows(extra["calibrate"])) == 1 + 2   # scale, two yardsticks
 
 
 def test_tables_with_new_results_are_structurally_sound(results, extra):
@@ -350,8 +350,8 @@ def test_new_rows_round_trip_through_csv_and_json(extra):
     cal, bare = extra["calibrate_zfs"], extra["published_bare"]
     table = outputs.results_table([bare, cal])
     frame = pd.read_csv(io.StringIO(tables.table_csv(table)), keep_default_na=False)
-    b = cal.benchmarks[1]
-    row = frame[frame["analysis"] == f"benchmark: direct effect of height_m without {b.name}"]
+    b = cal.yardsticks[1]
+    row = frame[frame["analysis"] == f"yardstick: direct effect of height_m without {b.name}"]
     row = row.iloc[0]
     assert float(row["estimate"]) == b.implied_direct                 # full precision
     assert float(row["share_of_reduced_form"]) == b.implied_direct_rf
@@ -383,13 +383,13 @@ def test_figure_files_for_new_results(results, extra):
     pub = outputs.figure_files(extra["published"], ("png",))
     assert set(pub) == {"published-curve.png", "published-frontier.png"}
     cal = outputs.figure_files(extra["calibrate"], ("png", "svg"))
-    assert set(cal) == {"calibrate-benchmarks.png", "calibrate-benchmarks.svg"}
+    assert set(cal) == {"calibrate-yardsticks.png", "calibrate-yardsticks.svg"}
     assert outputs.figure_files(extra["calibrate"], ("png", "svg")) == cal   # same bytes
     mixed = outputs.figure_files([results["sweep"], extra["published"], extra["calibrate"],
                                  extra["calibrate_zfs"]], ("png",), note="Invented data.")
     assert set(mixed) == {"sweep-curve.png", "sweep-frontier.png", "published-curve.png",
-                          "published-frontier.png", "calibrate-benchmarks.png",
-                          "calibrate2-benchmarks.png", "summary-intervals.png"}
+                          "published-frontier.png", "calibrate-yardsticks.png",
+                          "calibrate2-yardsticks.png", "summary-intervals.png"}
     # calibrations alone bound no effect: no summary figure
     two = outputs.figure_files([extra["calibrate"], extra["calibrate_zfs"]], ("png",))
-    assert set(two) == {"calibrate-benchmarks.png", "calibrate2-benchmarks.png"}
+    assert set(two) == {"calibrate-yardsticks.png", "calibrate2-yardsticks.png"}

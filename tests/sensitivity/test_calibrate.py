@@ -1,4 +1,4 @@
-"""Calibration of plausible direct effects: scale, covariate benchmarks, zero first stage.
+"""Calibration of plausible direct effects: scale, leave-one-out yardsticks, zero first stage.
 
 Sources beside each check:
 * reference library: linearmodels (``IV2SLS`` without endogenous regressors is OLS; version
@@ -40,7 +40,7 @@ runner = CliRunner()
 
 
 def simulated(n=1500, seed=11, k_z=1, direct=0.1):
-    """Controls that move both the instruments and the outcome, so benchmarks are sizable.
+    """Controls that move both the instruments and the outcome, so yardsticks are sizable.
 
     Rows with ``nofs == 1`` (about 30 %) have no first stage; ``strongfs`` marks a random
     subgroup in which the first stage is as strong as elsewhere.
@@ -95,10 +95,10 @@ def quiet(func, *args, **kwargs):
         return func(*args, **kwargs)
 
 
-# ------------------------------------------------------------------ covariate benchmarks
+# ------------------------------------------------------------------ leave-one-out yardsticks
 @pytest.mark.parametrize("weight", [None, "wt"])
 @pytest.mark.parametrize("k_z", [1, 2])
-def test_benchmarks_match_reference_refits(weight, k_z):
+def test_yardsticks_match_reference_refits(weight, k_z):
     # reference library: linearmodels OLS reduced forms and first stages with and without each
     # control (a text control leaves out all its indicators), 1e-8
     frame = simulated(k_z=k_z)
@@ -114,7 +114,7 @@ def test_benchmarks_match_reference_refits(weight, k_z):
         kept = [c for c in controls if c not in left_out]
         ref_wo = ref_coef(frame, "y", kept, inst, weight).params
         fs_wo = ref_coef(frame, "x", kept, inst, weight).params
-        rows = [b for b in res.benchmarks if b.name == name]
+        rows = [b for b in res.yardsticks if b.name == name]
         assert [b.instrument for b in rows] == inst
         for b in rows:
             z = b.instrument
@@ -127,8 +127,8 @@ def test_benchmarks_match_reference_refits(weight, k_z):
     assert res.estimate["x"] == pytest.approx(beta, rel=REL)
 
 
-def test_benchmark_units_follow_the_sweep_scale():
-    # common practice, no source: the scale is the sweep's (direct_sets.Scale), and a benchmark in
+def test_yardstick_units_follow_the_sweep_scale():
+    # common practice, no source: the scale is the sweep's (direct_sets.Scale), and a yardstick in
     # rf / sd units is the outcome-unit value divided by ρ / times SD(z)/SD(y)
     frame = simulated(k_z=2)
     spec = spec_for(2)
@@ -138,7 +138,7 @@ def test_benchmark_units_follow_the_sweep_scale():
     np.testing.assert_allclose(res.scale.instrument_sd, sweep.scale.instrument_sd, rtol=1e-12)
     assert res.scale.outcome_sd == pytest.approx(sweep.scale.outcome_sd, rel=1e-12)
     assert res.scale.outcome_sd == pytest.approx(frame["y"].std(ddof=0), rel=1e-10)
-    for b in res.benchmarks:
+    for b in res.yardsticks:
         k = res.instruments.index(b.instrument)
         assert b.implied_direct_rf == pytest.approx(
             b.implied_direct / res.scale.reduced_form[k], rel=1e-12)
@@ -146,11 +146,11 @@ def test_benchmark_units_follow_the_sweep_scale():
             b.implied_direct * res.scale.instrument_sd[k] / res.scale.outcome_sd, rel=1e-12)
 
 
-def test_sweep_range_contains_the_benchmark_and_parses():
+def test_sweep_range_contains_the_yardstick_and_parses():
     # common practice, no source: the offered range is symmetric, rounded outwards, and is a
     # valid --direct range
     res = calibrate(simulated(), spec_for())
-    for b in res.benchmarks:
+    for b in res.yardsticks:
         spec = parse_range(b.sweep_option.removeprefix("--direct="))
         assert spec.unit == ""
         assert spec.low == -spec.high
@@ -158,22 +158,22 @@ def test_sweep_range_contains_the_benchmark_and_parses():
         assert spec.high <= abs(b.implied_direct) * (1 + 1e-3)
 
 
-def test_benchmarks_scale_with_the_outcome_and_ignore_row_order():
-    # common practice, no source: y → 10·y scales outcome-unit benchmarks by 10 and leaves
+def test_yardsticks_scale_with_the_outcome_and_ignore_row_order():
+    # common practice, no source: y → 10·y scales outcome-unit yardsticks by 10 and leaves
     # shares of the reduced form unchanged; permuting rows changes nothing
     frame = simulated()
     base = calibrate(frame, spec_for())
     scaled = calibrate(frame.assign(y=10.0 * frame["y"]), spec_for())
     shuffled = calibrate(frame.sample(frac=1.0, random_state=3), spec_for())
-    for b0, b1, b2 in zip(base.benchmarks, scaled.benchmarks, shuffled.benchmarks):
+    for b0, b1, b2 in zip(base.yardsticks, scaled.yardsticks, shuffled.yardsticks):
         assert b1.implied_direct == pytest.approx(10.0 * b0.implied_direct, rel=1e-9)
         assert b1.implied_direct_rf == pytest.approx(b0.implied_direct_rf, rel=1e-9)
         assert b1.implied_direct_sd == pytest.approx(b0.implied_direct_sd, rel=1e-9)
         assert b2.implied_direct == pytest.approx(b0.implied_direct, rel=1e-9)
 
 
-def test_benchmarks_need_one_pass_and_streaming_agrees(tmp_path):
-    # common practice, no source: every benchmark comes from the moments of one pass; a file
+def test_yardsticks_need_one_pass_and_streaming_agrees(tmp_path):
+    # common practice, no source: every yardstick comes from the moments of one pass; a file
     # streamed in small chunks gives the frame's numbers
     frame = simulated()
     source = from_frame(frame, spec_for())
@@ -191,15 +191,15 @@ def test_benchmarks_need_one_pass_and_streaming_agrees(tmp_path):
     path = tmp_path / "d.csv"
     frame.to_csv(path, index=False)
     streamed = calibrate(from_file(path, spec_for(), chunk_rows=97))
-    for a, b in zip(res.benchmarks, streamed.benchmarks):
+    for a, b in zip(res.yardsticks, streamed.yardsticks):
         assert b.implied_direct == pytest.approx(a.implied_direct, rel=1e-9)
 
 
-def test_no_controls_gives_no_benchmarks_with_a_note():
+def test_no_controls_gives_no_yardsticks_with_a_note():
     res = calibrate(simulated(), spec_for(controls=()))
-    assert res.benchmarks == ()
-    assert any("no covariate benchmarks" in n for n in res.notes)
-    assert res.to_dict()["covariate_benchmarks"] == []
+    assert res.yardsticks == ()
+    assert any("no leave-one-out yardsticks" in n for n in res.notes)
+    assert res.to_dict()["yardsticks"] == []
 
 
 @pytest.mark.parametrize("groups,fragment", [
@@ -370,8 +370,8 @@ def test_cli_json_contract_on_the_example(tmp_path):
     doc = json.loads(result.stdout)
     assert set(doc["scale"]) == {"reduced_form", "outcome_sd", "instrument_sd"}
     assert doc["scale"]["reduced_form"]["height_m"] < 0
-    assert [b["name"] for b in doc["covariate_benchmarks"]] == ["plot_ha", "soil", "terrain"]
-    for b in doc["covariate_benchmarks"]:
+    assert [b["name"] for b in doc["yardsticks"]] == ["plot_ha", "soil", "terrain"]
+    for b in doc["yardsticks"]:
         assert {"name", "implied_direct", "implied_direct_rf", "implied_direct_sd",
                 "sweep_direct"} <= set(b)
     assert doc["zero_first_stage"] is None
@@ -383,11 +383,11 @@ def test_cli_json_contract_on_the_example(tmp_path):
 def test_cli_suggested_range_runs_in_sweep():
     # common practice, no source: the option calibrate offers is accepted by sweep
     doc = json.loads(invoke("calibrate", EXAMPLE, *BASE, "--json").stdout)
-    option = doc["covariate_benchmarks"][1]["sweep_direct"]
+    option = doc["yardsticks"][1]["sweep_direct"]
     result = invoke("sweep", EXAMPLE, *BASE, option, "--json")
     assert result.exit_code == 0, result.stderr
     assert json.loads(result.stdout)["direct_set"][0][1] >= abs(
-        doc["covariate_benchmarks"][1]["implied_direct"])
+        doc["yardsticks"][1]["implied_direct"])
 
 
 def test_cli_text_output_reads_both_ways():

@@ -23,19 +23,19 @@ One module per figure kind, over a shared :mod:`~sensiv.present.figures.style`:
 - :mod:`~sensiv.present.figures.correlation` — :func:`correlation_curve`
 - :mod:`~sensiv.present.figures.summary` — :func:`summary_intervals` over
   :class:`SummaryItem` rows, and one row builder per kind of result
-- :mod:`~sensiv.present.figures.calibration` — :func:`calibration_benchmarks`
+- :mod:`~sensiv.present.figures.calibration` — :func:`calibration_yardsticks`
 
 Axis units
 ----------
 The direct-effect figures put on the x-axis the allowed direct effect ``x = t·e``: ``t`` is the
 scale of the stated set Γ and ``e`` its end of largest magnitude (one instrument, outcome
 units), or ``x = t`` itself with several instruments.  The top axis converts ``x`` to a share
-of the reduced-form coefficient using ``direct_set_rf`` of the result.  The benchmark figure of
+of the reduced-form coefficient using ``direct_set_rf`` of the result.  The yardstick figure of
 a calibration puts the implied direct effects in outcome units on the x-axis and their share of
 the reduced form on the top axis.
 """
 
-from sensiv.present.figures.calibration import calibration_benchmarks
+from sensiv.present.figures.calibration import calibration_yardsticks
 from sensiv.present.figures.correlation import correlation_curve
 from sensiv.present.figures.curve import sensitivity_curve
 from sensiv.present.figures.discrete import discrete_curve
@@ -46,7 +46,7 @@ from sensiv.present.figures.summary import (SummaryItem, correlation_items, disc
                                             fit_items, prior_items, published_items,
                                             summary_intervals, sweep_items)
 
-__all__ = ["FORMATS", "SummaryItem", "breakdown_frontier", "calibration_benchmarks",
+__all__ = ["FORMATS", "SummaryItem", "breakdown_frontier", "calibration_yardsticks",
            "correlation_curve", "correlation_items", "discrete_curve", "discrete_items",
            "fit_items", "prior_items", "prior_map", "published_items", "save_figure",
            "sensitivity_curve", "summary_intervals", "sweep_items"]

@@ -1,5 +1,5 @@
 """The calibration figure: reference magnitudes for the direct effect — each covariate
-benchmark of a calibration as a bar from zero to its implied direct effect, and the
+yardstick of a calibration as a bar from zero to its implied direct effect, and the
 zero-first-stage estimate as a point with its confidence interval."""
 
 from __future__ import annotations
@@ -15,12 +15,12 @@ from sensiv.present.figures.style import (BLUE, GREY, INK, LIGHT_BLUE, MID_GREY,
                                           SUMMARY_LEFT_IN, SUMMARY_ROW_IN, WHITE, ends, finish,
                                           limits, make_canvas, minus, pct, style_context)
 
-BAR_HEIGHT = 0.3          # benchmark bars, in rows (the label sits above the bar)
-BENCHMARK_LABEL = "covariate benchmark"
+BAR_HEIGHT = 0.3          # yardstick bars, in rows (the label sits above the bar)
+YARDSTICK_LABEL = "leave-one-out yardstick"
 
 
-def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
-    """Reference magnitudes for the direct effect: each covariate benchmark of a calibration
+def calibration_yardsticks(calibration, ax=None, *, note: str | None = None):
+    """Reference magnitudes for the direct effect: each leave-one-out yardstick of a calibration
     as a horizontal bar from zero to its implied direct effect, and the zero-first-stage
     estimate as a point with its confidence interval.
 
@@ -28,7 +28,7 @@ def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
     instrument) and the top axis gives the share of the instrument's reduced form; with several
     the x-axis is the share of each instrument's own reduced form, which makes the rows
     comparable.  Every number is read from :class:`~sensiv.sensitivity.calibrate.Calibration`
-    (``benchmarks``, ``zero_first_stage``, ``scale``).
+    (``yardsticks``, ``zero_first_stage``, ``scale``).
 
     Parameters
     ----------
@@ -43,8 +43,8 @@ def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
     """
     cal = calibration
     z = cal.zero_first_stage
-    if not cal.benchmarks and z is None:
-        raise InputError("this calibration has no covariate benchmark (no controls) and no "
+    if not cal.yardsticks and z is None:
+        raise InputError("this calibration has no leave-one-out yardstick (no controls) and no "
                          "zero-first-stage estimate, so there is nothing to draw; add --control "
                          "or --group, or --no-first-stage-group")
     single = len(cal.instruments) == 1
@@ -63,7 +63,7 @@ def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
         ax.set_yticks([])
         ax.spines["left"].set_visible(False)
         top = _x_axes(ax, cal, single)
-        order = [BENCHMARK_LABEL, *([_interval_label(z)] if z is not None else [])]
+        order = [YARDSTICK_LABEL, *([_interval_label(z)] if z is not None else [])]
         return finish(canvas, _caption(cal, single), note=note, axes_in=SUMMARY_ROW_IN * n,
                       left_in=SUMMARY_LEFT_IN, top_axis=top, legend_order=order)
 
@@ -73,7 +73,7 @@ def calibration_benchmarks(calibration, ax=None, *, note: str | None = None):
 class _CalibrationRow:
     label: str
     value: float                      # bar end or point estimate, in the x-axis unit
-    interval: Interval | None         # zero-first-stage interval (None: a benchmark bar)
+    interval: Interval | None         # zero-first-stage interval (None: a yardstick bar)
     numbers: str                      # the value(s) as printed at the right
     gid: str
 
@@ -91,7 +91,7 @@ def _interval_label(z) -> str | None:
 
 def _calibration_rows(cal, single: bool) -> list[_CalibrationRow]:
     rows = []
-    for b in cal.benchmarks:
+    for b in cal.yardsticks:
         label = f"without {b.name}" + ("" if b.columns == (b.name,) else
                                        f" ({', '.join(b.columns)})")
         if not single:
@@ -99,7 +99,7 @@ def _calibration_rows(cal, single: bool) -> list[_CalibrationRow]:
         numbers = (f"{minus(format_number(b.implied_direct, 3))} "
                    f"({_share_text(b.implied_direct_rf)})")
         rows.append(_CalibrationRow(label, b.implied_direct if single else b.implied_direct_rf,
-                                    None, numbers, f"benchmark:{b.name}:{b.instrument}"))
+                                    None, numbers, f"yardstick:{b.name}:{b.instrument}"))
     z = cal.zero_first_stage
     if z is not None:
         for k, name in enumerate(z.instruments):
@@ -116,7 +116,7 @@ def _calibration_rows(cal, single: bool) -> list[_CalibrationRow]:
 
 def _draw_rows(ax, rows: list[_CalibrationRow], xlo: float, xhi: float,
                interval_label: str | None) -> None:
-    """Each row top to bottom: its texts, then a benchmark bar or the interval with its point."""
+    """Each row top to bottom: its texts, then a yardstick bar or the interval with its point."""
     n = len(rows)
     for i, row in enumerate(rows):
         y = n - 1 - i
@@ -125,7 +125,7 @@ def _draw_rows(ax, rows: list[_CalibrationRow], xlo: float, xhi: float,
             value = min(max(row.value, xlo), xhi)
             (bar,) = ax.barh([y], [value], left=0.0, height=BAR_HEIGHT, color=LIGHT_BLUE,
                              edgecolor=BLUE, linewidth=0.6, zorder=2,
-                             label=BENCHMARK_LABEL).patches
+                             label=YARDSTICK_LABEL).patches
             bar.set_gid(row.gid)
             # a marker at the end keeps a bar too short to see visible
             ax.plot([value], [y], marker="D", markersize=2.6, color=BLUE,
@@ -177,7 +177,7 @@ def _caption(cal, single: bool) -> list[str]:
     which = (f"of {instruments}" if single else
              f"of each instrument ({instruments}; the x-axis in shares of its own reduced "
              "form, the numbers at the right in outcome units)")
-    if cal.benchmarks:
+    if cal.yardsticks:
         caption.append(
             f"Bars: the shift in the reduced-form coefficient {which} on {cal.outcome} when "
             "the named control is left out (without minus with). Assumption: an "

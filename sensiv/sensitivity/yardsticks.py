@@ -1,4 +1,4 @@
-r"""Covariate benchmarks: the direct effect that leaving out an observed control would imply.
+r"""Leave-one-out yardsticks: the direct effect that leaving out an observed control would imply.
 
 For each control (or named group of controls), the shift in the instruments' reduced-form
 coefficients when that control is left out,
@@ -8,7 +8,7 @@ coefficients when that control is left out,
     Δρ_g = ρ(\text{controls} \setminus g) - ρ(\text{controls}),
 
 i.e. the spurious "direct effect" that forgetting an *observed* confounder would have
-produced.  All benchmarks come from the same pass-1 moments: a reduced form without a control
+produced.  All yardsticks come from the same pass-1 moments: a reduced form without a control
 is just a different design on the same cross-products.  This module also owns the reduced-form
 algebra on moments shared with the zero-first-stage estimate, and the ``--direct`` option
 strings offered to ``sweep`` and ``prior``.
@@ -94,9 +94,9 @@ def design_for(moments: Moments, layout, controls: Sequence[str]) -> Design:
                            controls, layout.constant)
 
 
-# ============================================================================ benchmarks
+# ============================================================================ yardsticks
 @dataclass(frozen=True, slots=True)
-class Benchmark:
+class Yardstick:
     """The direct effect on one instrument implied by leaving out one control or group.
 
     ``implied_direct = ρ_without − ρ_with`` (outcome units).  Sign convention: positive means
@@ -122,7 +122,7 @@ class Benchmark:
 
     @property
     def sweep_option(self) -> str:
-        """A symmetric ``--direct`` range as large as the benchmark (either sign)."""
+        """A symmetric ``--direct`` range as large as the yardstick (either sign)."""
         size = abs(self.implied_direct)
         return range_option(-size, size)
 
@@ -139,12 +139,12 @@ class Benchmark:
                 "sweep_direct": self.sweep_option}
 
 
-def benchmark_groups(spec, layout, groups: Mapping[str, Sequence[str]] | None
+def yardstick_groups(spec, layout, groups: Mapping[str, Sequence[str]] | None
                      ) -> list[tuple[str, tuple[str, ...], tuple[str, ...]]]:
-    """``(name, raw columns, design columns)`` of every benchmark.
+    """``(name, raw columns, design columns)`` of every yardstick.
 
-    Each control is one benchmark under its own name (a text control with all its indicator
-    columns); each entry of ``groups`` adds a benchmark that leaves out all its columns.
+    Each control is one yardstick under its own name (a text control with all its indicator
+    columns); each entry of ``groups`` adds a yardstick that leaves out all its columns.
     """
     indicators = dict(layout.categorical)
 
@@ -164,20 +164,20 @@ def benchmark_groups(spec, layout, groups: Mapping[str, Sequence[str]] | None
             raise InputError(f"group '{name}' names no columns; write --group {name}=COL1,COL2")
         if name in spec.controls:
             raise InputError(f"group name '{name}' is already the name of a control's own "
-                             "benchmark; choose another group name")
+                             "yardstick; choose another group name")
         unknown = [c for c in cols if c not in spec.controls]
         if unknown:
             raise InputError(
                 f"group '{name}' names column(s) {', '.join(map(repr, unknown))} that are not "
-                f"controls (controls: {', '.join(spec.controls) or 'none'}); a benchmark "
+                f"controls (controls: {', '.join(spec.controls) or 'none'}); a yardstick "
                 "leaves out a control, so add them with --control or remove them from the group")
         out.append((name, cols, tuple(d for c in cols for d in design_columns(c))))
     return out
 
 
-def covariate_benchmarks(moments: Moments, layout, groups, full: np.ndarray,
-                         beta: np.ndarray, scale: Scale) -> tuple[Benchmark, ...]:
-    """Benchmarks for every group from one set of moments (no further pass over the rows).
+def leave_one_out_yardsticks(moments: Moments, layout, groups, full: np.ndarray,
+                         beta: np.ndarray, scale: Scale) -> tuple[Yardstick, ...]:
+    """Yardsticks for every group from one set of moments (no further pass over the rows).
 
     ``full`` is :func:`instrument_coefficients` with every control; ``beta`` the 2SLS
     coefficients of the treatments.
@@ -190,7 +190,7 @@ def covariate_benchmarks(moments: Moments, layout, groups, full: np.ndarray,
         shift = without - full                                   # (k_z, k_x + 1)
         for k, z in enumerate(layout.instruments):
             implied = float(shift[k, k_x])
-            out.append(Benchmark(
+            out.append(Yardstick(
                 name=name, columns=raw, instrument=z, implied_direct=implied,
                 implied_direct_rf=scale.in_units(k, implied, "rf"),
                 implied_direct_sd=scale.in_units(k, implied, "sd"),
