@@ -5,8 +5,6 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Optional
 
-import typer
-
 from sensiv.cli.app import app, guarded
 from sensiv.cli.options import (FORMAT, JSON, check_out, emit, figure_formats, out_option,
                                 write_files)

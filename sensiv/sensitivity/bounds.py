@@ -30,14 +30,14 @@ from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
 from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
 from sensiv.data.where import filter_assumptions
-from sensiv.estimation import iv, linalg
+from sensiv.estimation import iv
 from sensiv.estimation.moments import ScoreSums
 from sensiv.sensitivity.adaptive import AdaptiveResult, adaptive_set
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
                                            bias_aware_scale)
 from sensiv.sensitivity.direct_sets import (DirectSet, RangeSpec, Scale, check_range_count,
                                             parse_range, read_polytope, resolve_ranges,
-                                            scale_from_moments, set_in_units)
+                                            scale_of_pieces, set_in_units)
 from sensiv.sensitivity.frontier import Frontier, breakdown_frontier, frontier_thresholds
 from sensiv.sensitivity.linear_core import (Core, build_core, first_stage_is_uninformative,
                                             focus_block, focus_index)
@@ -198,12 +198,6 @@ class SweepResult:
 
 
 # ============================================================================ the sweep
-def _reduced_form_coef(pieces: iv.Pieces) -> np.ndarray:
-    d = pieces.design
-    zt = pieces.z_partialled
-    return linalg.sym_inv_psd(zt.T @ pieces.gram @ zt) @ (zt.T @ pieces.gram @ d.y)
-
-
 def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
           polytope: str | None = None, se: str | None = None, confidence_level: float = 0.95,
           small: bool = False, threshold: float = 0.0, points: int = DEFAULT_POINTS,
@@ -262,8 +256,7 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
             adaptive: bool = False) -> SweepResult:
     """The sweep from a fit's pieces (no further pass over the rows)."""
     core = build_core(pieces, sums, result, j)
-    scale = scale_from_moments(pieces.moments, pieces.design.outcome,
-                               pieces.design.instruments, _reduced_form_coef(pieces))
+    scale = scale_of_pieces(pieces)
     if dset is None:
         dset = resolve_ranges(ranges, scale)
     scales = np.linspace(0.0, 1.0, points)

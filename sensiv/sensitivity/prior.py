@@ -31,7 +31,7 @@ from sensiv.estimation.inference import Progress
 from sensiv.sensitivity.bounds import CAUTION
 from sensiv.sensitivity.linear_core import Core, build_core, focus_block, focus_index
 from sensiv.sensitivity.direct_sets import scale_of_pieces
-from sensiv.sensitivity.prior_laws import Prior, parse_prior, read_prior_file
+from sensiv.sensitivity.prior_laws import Prior, law_text, parse_prior, read_prior_file
 
 MC_DRAWS = 200_000
 MC_BATCHES = 20
@@ -270,8 +270,7 @@ def outcome_laws(laws: Sequence[Prior], pieces) -> tuple[list[Prior], tuple[str,
     scale = scale_of_pieces(pieces)
     out = [law.in_outcome_units(scale.to_outcome(k, 1.0, law.unit)) for k, law in
            enumerate(laws)]
-    texts = tuple(law.text() if law is new else f"{new.text()} (given as {law.text()})"
-                  for law, new in zip(laws, out))
+    texts = tuple(law_text(new, law) for law, new in zip(laws, out))
     return out, texts
 
 

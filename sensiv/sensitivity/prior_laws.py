@@ -100,6 +100,12 @@ class Prior:
         return Prior(self.kind, params)
 
 
+def law_text(law: Prior, given: Prior) -> str:
+    """How a law reads in the output: ``law`` (outcome units) alone when it was given in
+    outcome units, else with the law as given, ``"normal:0:0.00462 (given as normal:0:0.1rf)"``."""
+    return law.text() if given.unit == "outcome" else f"{law.text()} (given as {given.text()})"
+
+
 def parse_prior(text: str) -> Prior:
     """Parse ``normal:MEAN:SD``, ``uniform:LOW:HIGH`` or ``triangular:LOW:MODE:HIGH``, in
     outcome units or, with the suffix ``rf`` or ``sd`` as for ``--direct``, as a share of the

@@ -35,7 +35,7 @@ from sensiv.sensitivity.direct_sets import DirectSet, box_set
 from sensiv.sensitivity.frontier import Frontier, frontier_thresholds
 from sensiv.sensitivity.linear_core import Core
 from sensiv.sensitivity.prior import normal_interval, quadrature_interval
-from sensiv.sensitivity.prior_laws import Prior, parse_prior
+from sensiv.sensitivity.prior_laws import Prior, law_text, parse_prior
 from sensiv.sensitivity.published_covariance import (FOCUS, INSTRUMENT, METHOD_CLIPPED,
                                                      METHOD_WORST, Covariance, choose_covariance,
                                                      core_from, hull_breakdown, hull_curve,
@@ -361,9 +361,7 @@ class PublishedLaw:
     given: Prior
 
     def text(self) -> str:
-        if self.given.unit == "outcome":
-            return self.law.text()
-        return f"{self.law.text()} (given as {self.given.text()})"
+        return law_text(self.law, self.given)
 
 
 def _rf_factor(law: Prior, rep) -> float:
