@@ -14,6 +14,8 @@ from __future__ import annotations
 
 import json
 import os
+import subprocess
+import sys
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -105,6 +107,17 @@ def files(tmp_path_factory) -> dict[str, Path]:
     raw("polytope_bad", ".csv", b"q,bound\n1,0.1\n")
     raw("prior_bad", ".toml", b"mean = [0.0\n")
     raw("existing_file", ".txt", b"keep me\n")
+    out["foreign_dir"] = root / "my_notes"  # a folder of the user's: never replaced
+    out["foreign_dir"].mkdir()
+    (out["foreign_dir"] / "notes.txt").write_bytes(b"keep me\n")
+    dead = int(subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                              capture_output=True, text=True, check=True).stdout)
+    for name, tags in (("left_tmp", ("tmp",)), ("left_old", ("old", "tmp"))):
+        for tag in tags:  # what a run killed while publishing leaves beside its --out
+            (root / f".{name}.sensiv-{tag}-{dead}").mkdir()
+            (root / f".{name}.sensiv-{tag}-{dead}" / "part.json").write_text("{")
+        if "old" in tags:  # the moved-aside folder is a complete earlier bundle
+            (root / f".{name}.sensiv-old-{dead}" / ".sensiv-bundle").write_text("sensiv")
     return out
 
 
@@ -259,11 +272,14 @@ def out_cases() -> list[Case]:
                 ("out_file", "{existing_file}", ["existing file"]),
                 ("out_parent_file", "{existing_file}/sub", ["is a file"]),
                 ("out_too_long", "{root}/" + "n" * 300, ["shorter name"]),
-                ("out_empty", "", ["empty"])):
+                ("out_empty", "", ["empty"]),
+                ("out_foreign_dir", "{foreign_dir}", ["not a previous sensiv bundle"])):
             cases.append(Case(f"{command}-{name}", (command, *args, "--out", target), 2,
                               tuple(words), out=False))
     for name, target, words in (("out_file", "{existing_file}", ["existing file"]),
-                                ("out_empty", "", ["empty"])):
+                                ("out_empty", "", ["empty"]),
+                                ("out_foreign_dir", "{foreign_dir}", ["sensiv bundle"]),
+                                ("out_current_dir", ".", ["current folder"])):
         cases.append(Case(f"demo-{name}", ("demo", "--out", target), 2, tuple(words), out=False))
         cases.append(Case(f"run-{name}", ("run", "{recipe_ok}", "--out", target), 2,
                           tuple(words), out=False))
@@ -422,6 +438,10 @@ def awkward_successes() -> list[Case]:
              out=False),
         Case("run-bom_recipe", ("run", "{recipe_bom}", "--out", "{root}/bom_out"), 0, (),
              out=False),
+        Case("run-leftover_tmp", ("run", "{recipe_ok}", "--out", "{root}/left_tmp"), 0,
+             ("note: removed", "unfinished new bundle"), out=False),
+        Case("run-leftover_old", ("run", "{recipe_ok}", "--out", "{root}/left_old"), 0,
+             ("note: restored", "note: removed"), out=False),
     ]
     return cases
 
@@ -464,6 +484,8 @@ def check(result, case: Case, out: Path | None) -> None:
     if case.code == 0:
         json.loads(result.stdout)  # exactly one JSON document on stdout
         assert "overflow" not in result.stderr, (case.name, result.stderr[:300])
+        for word in case.words:  # notes a success must give (e.g. a repaired leftover)
+            assert word in result.stderr, (case.name, word, result.stderr)
         return
     assert result.stdout == "", (case.name, result.stdout[:200])  # --json stdout stays clean
     message = result.stderr
@@ -473,7 +495,8 @@ def check(result, case: Case, out: Path | None) -> None:
         assert word.lower() in message.lower(), (case.name, word, message)
     if out is not None:
         assert not out.exists(), case.name
-        assert not [p for p in out.parent.iterdir() if p.name.startswith(f".{out.name}-")]
+        assert not [p for p in out.parent.iterdir()
+                    if p.name.startswith((f".{out.name}-", f".{out.name}.sensiv-"))]
 
 
 def test_the_table_is_large_enough():
@@ -535,3 +558,15 @@ def test_sweep_never_a_traceback(files, low, high, points, level, threshold, uni
         json.loads(result.stdout)
     else:
         assert result.stdout == "" and result.stderr.startswith("error: ")
+
+
+def test_foreign_folder_and_leftovers_after_the_table(files):
+    # the user's folder was refused by every command and is untouched; leftovers were repaired
+    root = files["root"]
+    assert sorted(p.name for p in files["foreign_dir"].iterdir()) == ["notes.txt"]
+    assert (files["foreign_dir"] / "notes.txt").read_bytes() == b"keep me\n"
+    for name in ("left_tmp", "left_old"):
+        if (root / name).exists():  # the table ran (not deselected)
+            assert not [p for p in root.iterdir() if p.name.startswith(f".{name}.sensiv-")]
+            assert (root / name / ".sensiv-bundle").is_file()
+

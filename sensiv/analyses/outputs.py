@@ -49,7 +49,8 @@ def table_files(results, stem: str | None = None) -> dict[str, str]:
 def summary_rows(results: Sequence) -> list:
     """Rows of a study's summary figure, in the order given: for each result the 2SLS and
     Anderson–Rubin rows of the fit it carries (if any), then its own rows; a row equal to an
-    earlier one is left out, and a kind that bounds no effect of the treatment adds none."""
+    earlier one within ``figures.summary.ROW_TOLERANCE`` is left out, and a kind that bounds
+    no effect of the treatment adds none."""
     items: list = []
     for res in results:
         if not is_tabled(res):
@@ -62,7 +63,7 @@ def summary_rows(results: Sequence) -> list:
             items += figures.fit_items(*carried)
         if kind.summary_rows is not None:
             items += kind.summary_rows(res)
-    return list(dict.fromkeys(items))
+    return figures.distinct_rows(items)
 
 
 def threshold_of(result) -> float | None:

@@ -10,6 +10,17 @@ from sensiv.cli.options import (FORMAT, JSON, check_out, emit, figure_formats, o
                                 write_files)
 
 
+# The README of a --figures-dir folder (the repository's figures/ is written this way, whole).
+FIGURES_README = """# Figures of the demo (invented data)
+
+These PNG files are the figures of `sensiv demo` on its three **invented** studies
+(`examples/demo.toml`). Regenerate them with
+
+```bash
+sensiv demo --out sensiv-demo --figures-dir figures
+```
+"""
+
 EXAMPLE = ("\b\n"
            "Example (on the invented demo data in examples/):\n"
            "  sensiv demo --out sensiv-demo")
@@ -26,6 +37,7 @@ def demo(
     """Run the main job on built-in INVENTED data: three studies, every analysis, one report."""
     check_out(out)
     check_out(figures_dir, "--figures-dir")
+    _check_distinct(out, figures_dir)
     import tempfile
 
     from sensiv import demo as demo_data
@@ -51,9 +63,9 @@ def demo(
                  **data_files}
     write_files(out, files)
     if figures_dir is not None:
-        write_files(figures_dir, {name.split("/", 1)[1]: data for name, data in files.items()
-                                   if name.startswith("figures/") and name.endswith(".png")},
-                    "--figures-dir")
+        pngs = {name.split("/", 1)[1]: data for name, data in files.items()
+                if name.startswith("figures/") and name.endswith(".png")}
+        write_files(figures_dir, {**pngs, "README.md": FIGURES_README}, "--figures-dir")
     truth = {"irrigation": demo_data.irrigation().truth["beta"],
              "nudge": demo_data.nudge().truth["beta"]}
     from sensiv.present.bundle import REPORT_CAUTION
@@ -82,6 +94,20 @@ def demo(
                  f"in {out}/figures, the recipe and data to re-run it in {out}/recipe.toml and "
                  f"{out}/data/ (sensiv run {out}/recipe.toml --out DIR).")
     emit(document, "\n".join(lines), as_json)
+
+
+def _check_distinct(out: Path, figures_dir: Optional[Path]) -> None:
+    """Two bundles, each published whole: neither folder may be the other or inside it."""
+    import os
+
+    from sensiv.core.errors import InputError
+
+    if figures_dir is None:
+        return
+    a, b = (Path(os.path.realpath(os.path.abspath(p))) for p in (out, figures_dir))
+    if a == b or a in b.parents or b in a.parents:
+        raise InputError(f"--figures-dir '{figures_dir}' and --out '{out}' overlap; each is "
+                         "written whole as its own bundle, so give two separate folders")
 
 
 def _covers(result, beta: float) -> bool | None:

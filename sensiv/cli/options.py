@@ -82,7 +82,9 @@ def _nearest_existing(path: Path) -> Path:
 def check_out(out: Optional[Path], option: str = "--out") -> None:
     """Refuse an output folder that cannot be written, before any work is done: an existing
     file, a parent that is a file, a name too long for the file system, a folder (or its
-    nearest existing parent) that is read-only."""
+    nearest existing parent) that is read-only, a folder holding files that are not a previous
+    sensiv bundle, the current folder.  Leftovers of a killed earlier run into the same folder
+    are repaired first (``sensiv.present.publish.recover``) and reported on stderr."""
     import tempfile
 
     from sensiv.core.errors import InputError
@@ -112,6 +114,24 @@ def check_out(out: Optional[Path], option: str = "--out") -> None:
     except OSError as exc:
         raise InputError(f"{option} '{out}': cannot write into '{anchor}' ({exc.strerror}); "
                          f"{fix} where you may write") from exc
+    _recover_and_check(out, option)
+
+
+def _recover_and_check(out: Path, option: str) -> None:
+    """Repair what a killed earlier run left beside ``out`` (reported on stderr), then refuse a
+    folder that a bundle may not replace (one holding files that sensiv did not write)."""
+    from sensiv.core.errors import InputError
+    from sensiv.present.publish import check_destination, recover
+
+    try:
+        for note in recover(out):
+            typer.echo(f"note: {note}", err=True)
+    except OSError as exc:
+        raise InputError(f"{option} '{out}': cannot repair what an earlier, stopped run left "
+                         f"beside it ({exc.strerror or exc}); remove the hidden folders "
+                         f"'.{Path(out).name}.sensiv-*' by hand or give another folder with "
+                         f"{option}") from exc
+    check_destination(out, option)
 
 
 def figure_formats(formats: Optional[list[str]]) -> tuple[str, ...]:
@@ -136,13 +156,15 @@ def write_outputs(out: Optional[Path], result, files: dict, formats: tuple[str, 
 
 
 def write_files(out: Path, files: dict, option: str = "--out") -> None:
-    """Write a bundle atomically; a failure of the file system becomes an :class:`InputError`
-    naming the folder (nothing is left behind)."""
+    """Publish a bundle whole (``sensiv.present.publish.publish``): ``out`` then holds the
+    complete new bundle or, after a failure or a kill, the complete old one; a failure of the
+    file system becomes an :class:`InputError` naming the folder (nothing is left behind)."""
     from sensiv.core.errors import InputError
-    from sensiv.present.writer import write_bundle
+    from sensiv.present.publish import publish
 
     try:
-        write_bundle(out, files)
+        publish(out, files, report=lambda note: typer.echo(f"note: {note}", err=True),
+                option=option)
     except OSError as exc:
         raise InputError(f"{option} '{out}': writing failed ({exc.strerror or exc}); give a "
                          f"folder where you may write with {option}") from exc

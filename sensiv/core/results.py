@@ -18,7 +18,7 @@ def json_number(value: float | None) -> float | None:
     value = float(value)
     if math.isinf(value) or math.isnan(value):
         return None
-    return value
+    return 0.0 if value == 0.0 else value  # never -0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -63,7 +63,16 @@ class Interval:
 
 
 def format_number(value: float, digits: int = 4) -> str:
-    """Readable number: ``-inf``/``inf`` spelled out, otherwise ``digits`` significant digits."""
+    """Readable number: ``-inf``/``inf`` spelled out, otherwise ``digits`` significant digits;
+    zero is ``0``, never ``-0``.
+
+    Examples
+    --------
+    >>> format_number(-0.0), format_number(-0.000123456), format_number(float("-inf"))
+    ('0', '-0.0001235', '-inf')
+    """
+    if value == 0.0:
+        return "0"
     if math.isnan(value):
         return "n/a"
     if math.isinf(value):

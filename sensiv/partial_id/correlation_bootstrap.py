@@ -107,8 +107,10 @@ def bootstrap(rows, layout, signs: Sequence[int], ratio: float, estimate: Interv
 def resample_rows(chunks, cluster: str | None):
     """Concatenate the clean chunks into ``(values, weights, codes)`` for resampling.
 
-    ``weights`` is ``None`` without a weight column and ``codes`` (integer cluster codes, in
-    order of first appearance) ``None`` without ``cluster``.
+    ``weights`` is ``None`` without a weight column and ``codes`` ``None`` without
+    ``cluster``.  Cluster codes follow the sorted cluster keys (not the order of first
+    appearance), so the same seed draws the same clusters, and gives the same interval, whatever
+    the order of the rows.
     """
     import pandas as pd
 
@@ -119,7 +121,11 @@ def resample_rows(chunks, cluster: str | None):
     codes = None
     if cluster is not None:
         labels = np.concatenate([np.asarray(c.clusters, dtype=object) for c in chunks])
-        codes, uniques = pd.factorize(labels, sort=False)
+        try:
+            codes, uniques = pd.factorize(labels, sort=True)
+        except TypeError:  # keys of mixed types: order them by type name and text
+            keyed = np.array([f"{type(v).__name__}:{v!r}" for v in labels], dtype=object)
+            codes, uniques = pd.factorize(keyed, sort=True)
         if len(uniques) < 2:
             raise InputError(f"cluster variable '{cluster}' has only {len(uniques)} group in "
                              "the rows used; a cluster bootstrap needs many groups: drop "

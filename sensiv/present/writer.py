@@ -1,18 +1,19 @@
 """Writing output files: one JSON document per result and atomic bundles of files.
 
-Files are written atomically: everything goes to a temporary folder beside the target first
-and is moved into place only when every file has been written, so a failure leaves no
-half-written output behind.
+A bundle is published as a whole (:mod:`sensiv.present.publish`): everything goes to a temporary
+folder beside the target first, which then replaces the target by directory renames, so a
+failure or a kill leaves either the complete old bundle or the complete new one.
 """
 
 from __future__ import annotations
 
 import json
 import os
-import shutil
-import tempfile
-from collections.abc import Mapping
+import sys
+from collections.abc import Callable, Mapping
 from pathlib import Path
+
+from sensiv.present.publish import publish
 
 
 def to_json(document: Mapping) -> str:
@@ -20,32 +21,19 @@ def to_json(document: Mapping) -> str:
     return json.dumps(document, indent=2, sort_keys=True, allow_nan=False) + "\n"
 
 
-def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes]) -> list[Path]:
-    """Write ``files`` (name → content) into ``directory`` atomically.
+def write_bundle(directory: str | os.PathLike, files: Mapping[str, str | bytes],
+                 report: Callable[[str], None] | None = None) -> list[Path]:
+    """Publish ``files`` (name → content) as the bundle ``directory``, whole or not at all.
 
-    All files are first written to a temporary folder next to ``directory``; only when every
-    write succeeded are they moved into place.  Names may contain ``/`` for subfolders.
+    The files are written into a temporary sibling folder and published with directory renames
+    (:func:`sensiv.present.publish.publish`): ``directory`` then holds the complete new bundle,
+    replacing an earlier sensiv bundle whole, or — after a failure or a kill — the complete
+    old one.  An existing folder that is neither empty nor a sensiv bundle is refused with
+    :class:`~sensiv.core.errors.InputError`.  Names may contain ``/`` for subfolders.  What was
+    repaired from a killed earlier run is passed to ``report`` (default: printed on stderr).
     Returns the final paths.
     """
-    target = Path(directory)
-    parent = target.resolve().parent
-    parent.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=f".{target.name}-", dir=parent))
-    try:
-        for name, content in files.items():
-            path = staging / name
-            path.parent.mkdir(parents=True, exist_ok=True)
-            if isinstance(content, bytes):
-                path.write_bytes(content)
-            else:
-                path.write_text(content, encoding="utf-8")
-        target.mkdir(parents=True, exist_ok=True)
-        out = []
-        for name in files:
-            final = target / name
-            final.parent.mkdir(parents=True, exist_ok=True)
-            os.replace(staging / name, final)
-            out.append(final)
-        return out
-    finally:
-        shutil.rmtree(staging, ignore_errors=True)
+    if report is None:
+        def report(note: str) -> None:
+            sys.stderr.write(f"note: {note}\n")
+    return publish(directory, files, report=report)

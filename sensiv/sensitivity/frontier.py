@@ -23,6 +23,29 @@ from sensiv.sensitivity.union import breakdown_scale, direct_breakdown
 FRONTIER_POINTS = 61
 FRONTIER_MARGIN = 0.25
 
+# Ties: a threshold within this share of the size of the interval at zero direct effect
+# (the largest of its width and the magnitudes of its ends) from one of its ends counts as that
+# end.  There the interval at zero direct effect touches the threshold, so the conclusion is
+# already at its breaking point: the row has no conclusion (side 0), breakdown scale 0 and
+# breakdown direct effects exactly 0 on both sides for every instrument — whatever the row
+# order or the units of the outcome, which move the computed roots only in their last bits.
+TIE_TOLERANCE = 1e-9
+
+
+def is_tie(threshold: float, base: Interval, tolerance: float = TIE_TOLERANCE) -> bool:
+    """Whether ``threshold`` equals an end of ``base`` within ``tolerance`` (see above).
+
+    Examples
+    --------
+    >>> base = Interval(0.8, 1.2)
+    >>> is_tie(0.8 + 1e-14, base), is_tie(0.8 + 1e-6, base), is_tie(1.2, base)
+    (True, False, True)
+    """
+    size = max((abs(v) for v in (base.low, base.high, base.width) if math.isfinite(v)),
+               default=0.0)
+    gap = min(abs(threshold - base.low), abs(threshold - base.high))
+    return gap <= tolerance * size
+
 
 @dataclass(frozen=True, slots=True)
 class Frontier:
@@ -62,7 +85,8 @@ def frontier_thresholds(union: Interval, threshold: float, base: Interval,
     """Thresholds for the frontier: symmetric about the estimate (the centre of ``base``, the
     interval at zero direct effect), reaching the union interval at scale 1 and the threshold
     with :data:`FRONTIER_MARGIN` of that reach to spare; plus ``threshold`` and the ends of
-    ``base`` (the frontier's corners).
+    ``base`` (the frontier's corners).  Values closer than :data:`TIE_TOLERANCE` times the
+    reach count as one: the threshold and the ends are kept, a grid point beside them dropped.
 
     Examples
     --------
@@ -76,13 +100,21 @@ def frontier_thresholds(union: Interval, threshold: float, base: Interval,
         reach = max(abs(centre), 1.0)
     reach *= 1.0 + FRONTIER_MARGIN
     grid = np.linspace(centre - reach, centre + reach, points)
+    # values within TIE_TOLERANCE of the reach are one threshold: the exact threshold and ends
+    # of ``base`` are kept over a grid point next to them (so that rounding of the grid, which
+    # moves with the row order, never adds or drops a row)
+    tol = TIE_TOLERANCE * reach
+    ends = [threshold] + [e for e in ends[1:] if abs(e - threshold) > tol]
+    grid = [g for g in grid if all(abs(g - e) > tol for e in ends)]
     return np.unique(np.concatenate([grid, ends]))
 
 
 def breakdown_frontier(core: Core, vertices: np.ndarray, thresholds: np.ndarray, *,
                        uninformative: bool = False) -> Frontier:
     """The breakdown scale and the per-instrument breakdown direct effects for every threshold
-    (exact roots, as for the single threshold of the sweep).
+    (exact roots, as for the single threshold of the sweep).  A threshold at an end of the
+    interval at zero direct effect (within :data:`TIE_TOLERANCE`) is a tie: side 0, scale 0
+    and breakdown direct effects 0.
 
     With an ``uninformative`` first stage the union interval is unbounded at every scale, so
     the breakdown scale is 0 throughout (as in :func:`sensiv.sensitivity.bounds.analyse`).
@@ -103,6 +135,9 @@ def breakdown_frontier(core: Core, vertices: np.ndarray, thresholds: np.ndarray,
     upper = np.empty((thresholds.size, k))
     for i, theta in enumerate(thresholds):
         theta = float(theta)
+        if is_tie(theta, base):
+            scale[i], lower[i], upper[i] = 0.0, 0.0, 0.0
+            continue
         if not base.contains(theta):
             side[i] = 1 if base.low > theta else -1
         t_star = 0.0 if uninformative else breakdown_scale(core, vertices, theta)

@@ -42,7 +42,8 @@ def test_readme_sweep_example(tmp_path):
     assert "Caution" in result.stdout
     assert {p.name for p in out.iterdir()} == {
         "sweep.json", "sweep.md", "curve.csv", "sweep-table.md", "sweep-table.tex",
-        "sweep-table.csv", "sweep-table.json", "sweep-curve.png", "sweep-frontier.png"}
+        "sweep-table.csv", "sweep-table.json", "sweep-curve.png", "sweep-frontier.png",
+        ".sensiv-bundle"}  # the marker of a bundle sensiv wrote whole
     assert (out / "sweep-curve.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     curve = pd.read_csv(out / "curve.csv")
     assert len(curve) == 101 and list(curve.columns) == ["scale", "lower", "upper", "id_lower",

@@ -459,6 +459,22 @@ def test_bootstrap_deterministic_and_covers_set():
     assert doc["ci"] == a.ci.to_list() and doc["n_failed_reps"] == 0
 
 
+def test_cluster_bootstrap_ignores_row_order():
+    # Common practice, no source: clusters are coded by their sorted keys, so permuting the rows
+    # (and so the order in which clusters first appear) leaves a seeded interval unchanged.
+    frame = imperfect_iv(900, [0.3], seed=21)
+    rng = np.random.default_rng(4)
+    frame["g"] = np.array([f"village-{i:02d}" for i in rng.integers(0, 40, len(frame))])
+    shuffled = frame.sample(frac=1.0, random_state=11).reset_index(drop=True)
+    a = run(frame, ["z1"], ["w"], max_ratio=0.3, reps=40, seed=8, cluster="g")
+    b = run(shuffled, ["z1"], ["w"], max_ratio=0.3, reps=40, seed=8, cluster="g")
+    assert a.bootstrap.clusters == b.bootstrap.clusters == 40
+    for x, y in ((a.bootstrap.se_lower, b.bootstrap.se_lower),
+                 (a.bootstrap.se_upper, b.bootstrap.se_upper),
+                 (a.ci.low, b.ci.low), (a.ci.high, b.ci.high)):
+        assert close(x, y, 1e-9), (x, y)  # equal up to the order of floating-point sums
+
+
 def test_bootstrap_counts_unbounded_replicates():
     # Common practice, no source: near the pole some replicates become unbounded; they are
     # counted and left out.
@@ -568,7 +584,8 @@ def test_cli_text_and_out_dir(data, tmp_path):
     assert "Identified set" in result.stdout and "Caution" in result.stdout
     assert {p.name for p in out.iterdir()} == {
         "corrbound.json", "corrbound.md", "corrbound-table.md", "corrbound-table.tex",
-        "corrbound-table.csv", "corrbound-table.json", "corrbound-curve.png"}
+        "corrbound-table.csv", "corrbound-table.json", "corrbound-curve.png",
+        ".sensiv-bundle"}  # the marker of a bundle sensiv wrote whole
     doc = json.loads((out / "corrbound.json").read_text())
     assert doc["endogeneity"] == "positive"
     md = (out / "corrbound.md").read_text()

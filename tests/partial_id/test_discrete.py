@@ -583,7 +583,8 @@ def test_cli_counts_table_and_out_dir(tmp_path):
     assert first["bounds"] == second["bounds"] and first["ci"] == second["ci"]
     assert {p.name for p in out.iterdir()} == {
         "discrete.json", "discrete.md", "discrete-table.md", "discrete-table.tex",
-        "discrete-table.csv", "discrete-table.json", "discrete-curve.png"}
+        "discrete-table.csv", "discrete-table.json", "discrete-curve.png",
+        ".sensiv-bundle"}  # the marker of a bundle sensiv wrote whole
     assert json.loads((out / "discrete.json").read_text())["bounds"] == second["bounds"]
     markdown = (out / "discrete.md").read_text()
     assert "| budget |" in markdown and "Caution" in markdown

@@ -658,3 +658,43 @@ def test_new_figures_save_to_identical_bytes(extra, draw, name):
     second = figures.save_figure(draw(extra[name]), figures.FORMATS)
     assert first == second
     assert first["png"].startswith(b"\x89PNG") and first["pdf"].startswith(b"%PDF-")
+
+
+# ------------------------------------------------------------------ duplicate rows, stable bytes
+def test_rows_equal_but_for_the_last_bits_are_drawn_once():
+    # Common practice, no source: the same set computed twice differs only in rounding.
+    low, high = -0.1234567, 0.75
+    twin = figures.SummaryItem("Anderson–Rubin 95% set", (Interval(low, high),), "exact")
+    close = figures.SummaryItem("Anderson–Rubin 95% set",
+                                (Interval(np.nextafter(low, 0.0), np.nextafter(high, 2.0)),),
+                                "exact")
+    apart = figures.SummaryItem("Anderson–Rubin 95% set", (Interval(low, high * 1.001),),
+                                "exact")
+    other = figures.SummaryItem("2SLS, 95% CI", (Interval(low, high),), "exact")
+    assert close != twin and figures.distinct_rows([twin, close]) == [twin]
+    assert figures.distinct_rows([twin, apart, other, close]) == [twin, apart, other]
+    unbounded = figures.SummaryItem("AR", (Interval(-math.inf, 1.0),), "exact")
+    assert figures.distinct_rows([unbounded, unbounded]) == [unbounded]
+    assert len(figures.distinct_rows(
+        [unbounded, figures.SummaryItem("AR", (Interval(-1e300, 1.0),), "exact")])) == 2
+
+
+def test_figures_are_byte_identical_across_processes(tmp_path):
+    # Two separate runs (different hash seeds) give the same PNG, SVG and PDF bytes.
+    import os
+
+    root = Path(__file__).resolve().parents[2]
+    bundles = []
+    for hash_seed in ("1", "2"):
+        out = tmp_path / f"run{hash_seed}"
+        env = {**os.environ, "PYTHONHASHSEED": hash_seed, "PYTHONPATH": os.pathsep.join(
+            [str(root), *filter(None, [os.environ.get("PYTHONPATH")])])}
+        subprocess.run([sys.executable, "-m", "sensiv", "published", "--estimate", "1",
+                        "--se", "0.2", "--first-stage", "1", "--first-stage-f", "20",
+                        "--direct=0:0.1", "--points", "5", "--out", str(out), "--format", "png",
+                        "--format", "svg", "--format", "pdf"], env=env, check=True,
+                       capture_output=True)
+        bundles.append({p.name: p.read_bytes() for p in sorted(out.iterdir())})
+    names = set(bundles[0])
+    assert {n.rsplit(".", 1)[-1] for n in names} >= {"png", "svg", "pdf"}
+    assert bundles[0] == bundles[1]

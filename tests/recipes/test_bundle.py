@@ -155,7 +155,8 @@ def test_demo_runs_three_invented_studies(tmp_path):
     assert (out / "data" / "irrigation.csv").read_bytes() == (
         ROOT / "examples" / "irrigation.csv").read_bytes()
     assert sorted(p.name for p in figures.iterdir()) == sorted(
-        p.name for p in (out / "figures").iterdir() if p.suffix == ".png")
+        [".sensiv-bundle", "README.md", *(p.name for p in (out / "figures").iterdir()
+                                          if p.suffix == ".png")])
     # the bundle re-runs from its own recipe copy
     again = run("run", out / "recipe.toml", "--out", tmp_path / "again")
     assert again.exit_code == 0, again.stderr

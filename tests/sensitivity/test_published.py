@@ -604,7 +604,7 @@ def test_readme_published_example(tmp_path):
     assert {p.name for p in out.iterdir()} == {
         "published.json", "published.md", "published-table.md", "published-table.tex",
         "published-table.csv", "published-table.json", "published-curve.png",
-        "published-frontier.png"}
+        "published-frontier.png", ".sensiv-bundle"}  # the marker of a bundle sensiv wrote whole
     doc = json.loads((out / "published.json").read_text())
     assert doc["reported"]["n"] == 212
     assert doc["prior"]["method"] == "closed-form"

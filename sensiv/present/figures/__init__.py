@@ -43,10 +43,11 @@ from sensiv.present.figures.frontier import breakdown_frontier
 from sensiv.present.figures.prior_map import prior_map
 from sensiv.present.figures.style import FORMATS, save_figure
 from sensiv.present.figures.summary import (SummaryItem, correlation_items, discrete_items,
-                                            fit_items, prior_items, published_items,
-                                            summary_intervals, sweep_items)
+                                            distinct_rows, fit_items, prior_items,
+                                            published_items, summary_intervals, sweep_items)
 
 __all__ = ["FORMATS", "SummaryItem", "breakdown_frontier", "calibration_yardsticks",
            "correlation_curve", "correlation_items", "discrete_curve", "discrete_items",
+           "distinct_rows",
            "fit_items", "prior_items", "prior_map", "published_items", "save_figure",
            "sensitivity_curve", "summary_intervals", "sweep_items"]

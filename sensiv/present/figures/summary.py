@@ -52,6 +52,47 @@ class SummaryItem:
     point: float | None = None
 
 
+# Two rows are the same row when their texts agree and every number agrees within this share of
+# the largest finite magnitude in the two rows (the same interval computed twice, e.g. the
+# Anderson–Rubin set carried by two results, can differ in the last bits).
+ROW_TOLERANCE = 1e-9
+
+
+def _numbers(item: SummaryItem) -> list[float]:
+    values = [v for p in item.pieces for v in (p.low, p.high)]
+    return values + ([] if item.point is None else [item.point])
+
+
+def same_row(a: SummaryItem, b: SummaryItem, tolerance: float = ROW_TOLERANCE) -> bool:
+    """Whether two rows draw the same thing (texts equal, numbers within ``tolerance``).
+
+    Examples
+    --------
+    >>> row = SummaryItem("AR", (Interval(0.1, 0.30000000000000004),), "exact")
+    >>> same_row(row, SummaryItem("AR", (Interval(0.1, 0.3),), "exact"))
+    True
+    >>> same_row(row, SummaryItem("AR", (Interval(0.1, 0.3001),), "exact"))
+    False
+    """
+    if (a.label, a.assumption, a.family, a.kind, len(a.pieces), a.point is None) != (
+            b.label, b.assumption, b.family, b.kind, len(b.pieces), b.point is None):
+        return False
+    xs, ys = _numbers(a), _numbers(b)
+    finite = [abs(v) for v in xs + ys if math.isfinite(v)]
+    scale = max(finite, default=0.0)
+    return all(x == y or (math.isfinite(x) and math.isfinite(y)
+                          and abs(x - y) <= tolerance * scale) for x, y in zip(xs, ys))
+
+
+def distinct_rows(items: Sequence[SummaryItem]) -> list[SummaryItem]:
+    """``items`` in order without a row that is :func:`same_row` as an earlier one."""
+    kept: list[SummaryItem] = []
+    for item in items:
+        if not any(same_row(item, k) for k in kept):
+            kept.append(item)
+    return kept
+
+
 FAMILY_COLOURS = {"exclusion": INK, "direct effect": BLUE, "partial identification": ORANGE}
 FAMILY_WORDS = {"exclusion": "exclusion assumed exact",
                 "direct effect": "direct effect bounded / prior",
