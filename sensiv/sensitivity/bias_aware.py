@@ -53,6 +53,7 @@ from sensiv.partial_id.solver import solve
 from sensiv.sensitivity.direct_sets import DirectSet
 from sensiv.sensitivity.linear_core import Core
 from sensiv.sensitivity.union import SCALE_MAX
+from sensiv.sensitivity.union_sets import largest_se_set
 
 WEIGHTING = "2sls"
 SE_RULE = "largest standard error over the set"
@@ -218,7 +219,7 @@ def bias_aware(cores: Sequence[Core], dset: DirectSet, confidence_level: float, 
     point = scale * centre.point
     bias = scale * max_bias(cores[0].slope, dset, centre)
     estimate = float(cores[0].beta(point)[0])
-    s = largest_se(cores, scale * dset.vertices)
+    s = largest_se_set(cores, dset, scale)
     half, cv = _half_width(s, bias, confidence_level)
     ci = (Interval(-math.inf, math.inf) if unbounded
           else Interval(estimate - half, estimate + half))
