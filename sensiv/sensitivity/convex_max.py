@@ -40,7 +40,7 @@ import numpy as np
 CORNER_LIMIT = 12           # free coordinates whose corners are enumerated outright
 LEAF_CORNERS = 8            # a sub-box with this many free coordinates is enumerated
 GAP = 1e-9                  # default relative gap at which branch and bound stops
-MAX_NODES = 20_000          # sub-boxes explored before an outer bound is reported
+MAX_NODES = 2_000           # sub-boxes explored before an outer bound is reported
 CHUNK_ROWS = 4096           # corners evaluated at a time
 _LOCAL_ITER = 30            # iterations of the bounded ascent on the over-estimator
 

@@ -28,13 +28,17 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.core.results import Interval
-from sensiv.sensitivity.convex_max import (CORNER_LIMIT, GAP, Maximum, Objective, corners,
-                                           fixed_coordinates, maximise)
+from sensiv.sensitivity.convex_max import (CORNER_LIMIT, GAP, MAX_NODES, Maximum, Objective,
+                                           corners, fixed_coordinates, maximise)
 from sensiv.sensitivity.direct_sets import DirectSet
 from sensiv.sensitivity.linear_core import Core
 from sensiv.sensitivity.union import SCALE_MAX, breakdown_scale, union_curve
 
 BISECTION_TOL = 1e-12       # relative tolerance of a bisected breakdown scale
+# Branch and bound explores MAX_NODES sub-boxes for the stated set (scale 1) and this many for
+# every other curve point and bisection step (their ends are then outer bounds, flagged in
+# ``curve_exact``), so a hard design costs seconds per point, not minutes.
+SIDE_NODES = 100
 CORNERS = "corners"
 BRANCH_AND_BOUND = "branch_and_bound"
 
@@ -95,12 +99,14 @@ def candidate_vertices(core: Core, dset: DirectSet,
 
 
 def union_at(core: Core, dset: DirectSet, scale: float, *, gap: float = GAP,
-             corner_limit: int = CORNER_LIMIT) -> tuple[Interval, Maximum, Maximum]:
+             corner_limit: int = CORNER_LIMIT, max_nodes: int = MAX_NODES
+             ) -> tuple[Interval, Maximum, Maximum]:
     """Union interval over ``scale·Γ`` (a box) with the two maxima behind its ends."""
     lows, highs = box_limits(dset)
     lows, highs = scale * lows, scale * highs
     ends = [maximise(Objective.of(sign * core.slope, core.critical, core.quad), lows, highs,
-                     gap=gap, corner_limit=corner_limit) for sign in (1.0, -1.0)]
+                     gap=gap, corner_limit=corner_limit, max_nodes=max_nodes)
+            for sign in (1.0, -1.0)]
     return Interval(core.estimate - ends[0].value, core.estimate + ends[1].value), *ends
 
 
@@ -117,8 +123,9 @@ def union_curve_set(core: Core, dset: DirectSet, scales: np.ndarray, *, gap: flo
     all_exact = True
     low_end = high_end = None
     for i, t in enumerate(scales):
-        interval, low_end, high_end = union_at(core, dset, float(t), gap=gap,
-                                               corner_limit=corner_limit)
+        interval, low_end, high_end = union_at(
+            core, dset, float(t), gap=gap, corner_limit=corner_limit,
+            max_nodes=MAX_NODES if t == 1.0 else SIDE_NODES)
         lo[i], hi[i] = interval.low, interval.high
         all_exact = all_exact and low_end.exact and high_end.exact
     if scales.size == 0 or scales[-1] != 1.0:
@@ -155,7 +162,8 @@ def breakdown_scale_set(core: Core, dset: DirectSet, threshold: float, *, gap: f
         return 0.0
 
     def reached(t: float) -> bool:
-        interval = union_at(core, dset, t, gap=gap, corner_limit=corner_limit)[0]
+        interval = union_at(core, dset, t, gap=gap, corner_limit=corner_limit,
+                            max_nodes=SIDE_NODES)[0]
         return interval.contains(threshold)
 
     low, high = 0.0, 1.0
@@ -173,7 +181,8 @@ def breakdown_scale_set(core: Core, dset: DirectSet, threshold: float, *, gap: f
 
 
 def largest_se_set(cores: Sequence[Core], dset: DirectSet, scale: float = 1.0, *,
-                   gap: float = GAP, corner_limit: int = CORNER_LIMIT) -> float:
+                   gap: float = GAP, corner_limit: int = CORNER_LIMIT,
+                   max_nodes: int = SIDE_NODES) -> float:
     """``max`` over the cores and ``γ ∈ scale·Γ`` of ``√q(γ)`` (convex, so at a vertex): the
     vertices of a polytope; for a box the certified maximum of
     :func:`~sensiv.sensitivity.convex_max.maximise` (an upper bound when the gap stays open)."""
@@ -183,4 +192,5 @@ def largest_se_set(cores: Sequence[Core], dset: DirectSet, scale: float = 1.0, *
     lows, highs = box_limits(dset)
     zero = np.zeros(len(lows))
     return max(maximise(Objective.of(zero, 1.0, core.quad), scale * lows, scale * highs,
-                        gap=gap, corner_limit=corner_limit).value for core in cores)
+                        gap=gap, corner_limit=corner_limit, max_nodes=max_nodes).value
+               for core in cores)
