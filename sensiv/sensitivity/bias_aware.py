@@ -7,7 +7,9 @@ variance quadratic of :mod:`sensiv.sensitivity.linear_core`.  Its bias for any t
 is ``−a'(γ − γ_c)``, at most ``B = max_{γ∈Γ} |a'(γ − γ_c)|`` in absolute value.  The
 paper's local misspecification keeps the standard error the same over Γ; here Γ is not local
 and the 2SLS variance changes with ``γ`` (the residual does), so ``s`` is the largest standard
-error over Γ, ``s = max_{γ∈Γ} √q(γ)`` (at a vertex: ``q`` is convex), which keeps the
+error over Γ, ``s = max_{γ∈Γ} √q(γ)`` (at a vertex: ``q`` is convex; for a box found by
+:func:`~sensiv.sensitivity.union_sets.largest_se_set` without enumerating its corners, an
+upper bound when its branch and bound stops early), which keeps the
 guarantee whichever ``γ ∈ Γ`` is true — with ``s = √q(γ_c)`` a simulation with the true
 direct effect at a corner covered 93% for a nominal 95% (n = 250, robust errors); the standard
 error at the centre is reported as ``se_centre``.  The interval
@@ -53,6 +55,7 @@ from sensiv.partial_id.solver import solve
 from sensiv.sensitivity.direct_sets import DirectSet
 from sensiv.sensitivity.linear_core import Core
 from sensiv.sensitivity.union import SCALE_MAX
+from sensiv.sensitivity.union_sets import largest_se_set
 
 WEIGHTING = "2sls"
 SE_RULE = "largest standard error over the set"
@@ -218,7 +221,7 @@ def bias_aware(cores: Sequence[Core], dset: DirectSet, confidence_level: float, 
     point = scale * centre.point
     bias = scale * max_bias(cores[0].slope, dset, centre)
     estimate = float(cores[0].beta(point)[0])
-    s = largest_se(cores, scale * dset.vertices)
+    s = largest_se_set(cores, dset, scale)
     half, cv = _half_width(s, bias, confidence_level)
     ci = (Interval(-math.inf, math.inf) if unbounded
           else Interval(estimate - half, estimate + half))

@@ -42,8 +42,9 @@ from sensiv.sensitivity.frontier import Frontier, breakdown_frontier, frontier_t
 from sensiv.sensitivity.linear_core import (Core, build_core, first_stage_is_uninformative,
                                             focus_block, focus_index)
 from sensiv.sensitivity.robust_set import reduced_form, robust_set
-from sensiv.sensitivity.union import (SCALE_MAX, breakdown_scale, direct_breakdown,
-                                      identified_curve, identified_set_lp, union_curve)
+from sensiv.sensitivity.union import SCALE_MAX, direct_breakdown, identified_set_lp
+from sensiv.sensitivity.union_sets import (UnionMethod, breakdown_scale_set,
+                                           identified_curve_set, union_curve_set)
 
 DEFAULT_POINTS = 101
 # The weak-IV-robust set "differs materially" from the Wald union when their hulls differ by
@@ -131,6 +132,7 @@ class SweepResult:
     curve_extended: Curve | None = None
     adaptive: AdaptiveResult | None = None  # with ``adaptive=True``
     bias_aware: BiasAware | None = None
+    union_method: UnionMethod | None = None
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -165,6 +167,8 @@ class SweepResult:
             "identified_set": self.identified_set.to_list(),
             "union_ci": self.union_ci.to_list(),
             "union_ci_wald": self.union_ci_wald.to_list(),
+            "union_method": (self.union_method.to_dict()
+                             if self.union_method is not None else None),
             "bias_aware": self.bias_aware.to_dict() if self.bias_aware is not None else None,
             "breakdown": self.breakdown.to_dict(),
             "curve": self.curve.to_list(),
@@ -260,8 +264,8 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
     if dset is None:
         dset = resolve_ranges(ranges, scale)
     scales = np.linspace(0.0, 1.0, points)
-    lo, hi = union_curve(core, dset.vertices, scales)
-    id_lo, id_hi = identified_curve(core, dset.vertices, scales)
+    lo, hi, method = union_curve_set(core, dset, scales)
+    id_lo, id_hi = identified_curve_set(core, dset, scales)
     if dset.box is None:
         ident = identified_set_lp(core, dset)
     else:
@@ -308,7 +312,8 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         identified_set=ident, union_ci=union, union_ci_wald=wald, breakdown=breakdown,
         curve=Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi), ar_set=ar,
         ar_method=ar_method, scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)),
-        frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba)
+        frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba,
+        union_method=method)
 
 
 def differs_materially(ar: tuple[Interval, ...], wald: Interval) -> bool:
@@ -331,9 +336,8 @@ def _breakdown_part(core: Core, dset: DirectSet, threshold: float, wald: Interva
                     ) -> tuple[Breakdown, Curve | None, Frontier]:
     """Breakdown of the conclusion at ``threshold`` (union and bias-aware), the curve run on
     past a breakdown beyond the stated set, and the frontier over thresholds."""
-    vertices = dset.vertices
     lower, upper = direct_breakdown(core, threshold)
-    t_star = 0.0 if uninformative else breakdown_scale(core, vertices, threshold)
+    t_star = 0.0 if uninformative else breakdown_scale_set(core, dset, threshold)
     grid = np.linspace(0.0, 1.0, points)
     t_ba = 0.0 if uninformative else bias_aware_scale([core], dset, threshold,
                                                       level, grid)
@@ -343,7 +347,7 @@ def _breakdown_part(core: Core, dset: DirectSet, threshold: float, wald: Interva
         extended = _curve(core, dset,
                           np.linspace(0.0, min(EXTEND_FACTOR * t_star, SCALE_MAX), points),
                           uninformative, level)
-    frontier = breakdown_frontier(core, vertices, frontier_thresholds(wald, threshold, base),
+    frontier = breakdown_frontier(core, dset, frontier_thresholds(wald, threshold, base),
                                   uninformative=uninformative)
     conclusion = conclusion_text(core.focus, base, threshold, uninformative)
     breakdown = Breakdown(threshold, t_star, tuple(lower), tuple(upper), conclusion, t_ba)
@@ -354,9 +358,9 @@ def _curve(core: Core, dset: DirectSet, scales: np.ndarray, uninformative: bool,
            level: float) -> Curve:
     """Union interval, identified set and bias-aware interval over ``scales`` (union and
     bias-aware interval unbounded when ``uninformative``)."""
-    lo, hi = union_curve(core, dset.vertices, scales)
+    lo, hi, _ = union_curve_set(core, dset, scales)
     if uninformative:
         lo, hi = np.full_like(lo, -np.inf), np.full_like(hi, np.inf)
-    id_lo, id_hi = identified_curve(core, dset.vertices, scales)
+    id_lo, id_hi = identified_curve_set(core, dset, scales)
     ba_lo, ba_hi = bias_aware_curve([core], dset, scales, level, unbounded=uninformative)
     return Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi)

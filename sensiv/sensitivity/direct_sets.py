@@ -24,6 +24,7 @@ from sensiv.core.results import Interval
 from sensiv.estimation import linalg
 from sensiv.estimation.moments import Moments
 from sensiv.partial_id.solver import solve
+from sensiv.sensitivity.convex_max import CORNER_LIMIT
 
 VERTEX_TOL = 1e-9           # feasibility slack when enumerating polytope vertices
 MAX_VERTEX_RANK = 8         # enumerating vertices by active sets is for small k_z
@@ -105,24 +106,28 @@ class Scale:
 class DirectSet:
     """A convex polytope Γ of direct effects (one coordinate per instrument).
 
-    ``vertices`` are its extreme points; ``constraints``/``rhs`` describe it as
-    ``constraints @ γ ≤ rhs``; ``box`` is set when Γ is a product of ranges.
+    ``vertices`` are its extreme points — ``None`` for a box with more than
+    :data:`~sensiv.sensitivity.convex_max.CORNER_LIMIT` ranges, whose ``2^k`` corners are never
+    stored (:mod:`sensiv.sensitivity.union_sets` works from the ranges); ``constraints``/``rhs``
+    describe it as ``constraints @ γ ≤ rhs``; ``box`` is set when Γ is a product of ranges.
     """
 
     instruments: tuple[str, ...]
-    vertices: np.ndarray
+    vertices: np.ndarray | None
     constraints: np.ndarray
     rhs: np.ndarray
     box: tuple[Interval, ...] | None = None
 
     @property
     def bounding_box(self) -> tuple[Interval, ...]:
+        if self.box is not None:
+            return self.box
         return tuple(Interval(float(lo), float(hi))
                      for lo, hi in zip(self.vertices.min(axis=0), self.vertices.max(axis=0)))
 
     @property
     def is_zero(self) -> bool:
-        return bool(np.all(self.vertices == 0.0))
+        return all(b.low == 0.0 and b.high == 0.0 for b in self.bounding_box)
 
 
 def check_range_count(count: int, instruments: Sequence[str]) -> None:
@@ -134,7 +139,8 @@ def check_range_count(count: int, instruments: Sequence[str]) -> None:
 
 
 def box_set(instruments: Sequence[str], ranges: Sequence[tuple[float, float]]) -> DirectSet:
-    """Γ = ``[low₁, high₁] × … × [low_k, high_k]`` in outcome units.
+    """Γ = ``[low₁, high₁] × … × [low_k, high_k]`` in outcome units (corners stored only
+    for at most :data:`~sensiv.sensitivity.convex_max.CORNER_LIMIT` ranges).
 
     Examples
     --------
@@ -147,9 +153,11 @@ def box_set(instruments: Sequence[str], ranges: Sequence[tuple[float, float]]) -
     highs = np.array([r[1] for r in ranges], float)
     if np.any(lows > highs):
         raise InputError("a direct-effect range has LOW above HIGH; swap them")
-    corners = np.array(list(itertools.product(*[(lo, hi) for lo, hi in zip(lows, highs)])))
-    corners = np.unique(corners, axis=0)
     k = len(instruments)
+    corners = None
+    if k <= CORNER_LIMIT:
+        corners = np.array(list(itertools.product(*[(lo, hi) for lo, hi in zip(lows, highs)])))
+        corners = np.unique(corners, axis=0)
     constraints = np.vstack([np.eye(k), -np.eye(k)])
     rhs = np.concatenate([highs, -lows])
     return DirectSet(instruments, corners, constraints, rhs,

@@ -13,8 +13,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.core.results import Interval, json_number
+from sensiv.sensitivity.direct_sets import DirectSet
 from sensiv.sensitivity.linear_core import Core
 from sensiv.sensitivity.union import breakdown_scale, direct_breakdown
+from sensiv.sensitivity.union_sets import breakdown_scale_set, candidate_vertices
 
 # The breakdown frontier runs over thresholds symmetric about the estimate that reach the union
 # interval at scale 1 and the threshold, with this share of the reach to spare, on this many
@@ -109,12 +111,17 @@ def frontier_thresholds(union: Interval, threshold: float, base: Interval,
     return np.unique(np.concatenate([grid, ends]))
 
 
-def breakdown_frontier(core: Core, vertices: np.ndarray, thresholds: np.ndarray, *,
-                       uninformative: bool = False) -> Frontier:
+def breakdown_frontier(core: Core, vertices: np.ndarray | DirectSet, thresholds: np.ndarray,
+                       *, uninformative: bool = False) -> Frontier:
     """The breakdown scale and the per-instrument breakdown direct effects for every threshold
     (exact roots, as for the single threshold of the sweep).  A threshold at an end of the
     interval at zero direct effect (within :data:`TIE_TOLERANCE`) is a tie: side 0, scale 0
     and breakdown direct effects 0.
+
+    ``vertices`` are the points of Γ among which the union's ends lie, or the set itself (then
+    its candidate corners, :func:`~sensiv.sensitivity.union_sets.candidate_vertices`, or — for
+    a box with too many free coordinates — the bisection of
+    :func:`~sensiv.sensitivity.union_sets.breakdown_scale_set`).
 
     With an ``uninformative`` first stage the union interval is unbounded at every scale, so
     the breakdown scale is 0 throughout (as in :func:`sensiv.sensitivity.bounds.analyse`).
@@ -127,6 +134,9 @@ def breakdown_frontier(core: Core, vertices: np.ndarray, thresholds: np.ndarray,
     ([1, 0, -1], [1.608, 0.0, 1.608])
     """
     thresholds = np.asarray(thresholds, float)
+    dset = None
+    if isinstance(vertices, DirectSet):
+        dset, vertices = vertices, candidate_vertices(core, vertices)
     k = len(core.instruments)
     base = core.interval(np.zeros(k))
     scale = np.empty(thresholds.size)
@@ -140,7 +150,12 @@ def breakdown_frontier(core: Core, vertices: np.ndarray, thresholds: np.ndarray,
             continue
         if not base.contains(theta):
             side[i] = 1 if base.low > theta else -1
-        t_star = 0.0 if uninformative else breakdown_scale(core, vertices, theta)
+        if uninformative:
+            t_star = 0.0
+        elif vertices is None:
+            t_star = breakdown_scale_set(core, dset, theta)
+        else:
+            t_star = breakdown_scale(core, vertices, theta)
         scale[i] = math.inf if t_star is None else t_star
         lo, hi = direct_breakdown(core, theta)
         lower[i] = [-math.inf if v is None else v for v in lo]

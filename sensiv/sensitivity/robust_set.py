@@ -76,7 +76,10 @@ def _ar_minimiser(rf: ReducedForm, dset: DirectSet):
     def whitened(beta0: float) -> tuple[np.ndarray, np.ndarray]:
         a = rf.rho - beta0 * rf.pi
         v = rf.v_rr - beta0 * (rf.v_rp + rf.v_rp.T) + beta0**2 * rf.v_pp
-        whiten = linalg.scaled_cholesky(v).whiten(np.eye(k))
+        chol = linalg.scaled_cholesky(v)
+        # L⁻¹D⁻¹ (= chol.whiten(I)) by numpy's inverse: a threaded triangular solve with k
+        # right-hand sides can cost 100x more on a busy machine, once per β₀
+        whiten = np.linalg.inv(chol.factor) / chol.scale[None, :]
         return whiten, whiten @ a
 
     if dset.box is not None:
@@ -125,8 +128,7 @@ def robust_set(rf: ReducedForm, dset: DirectSet) -> tuple[tuple[Interval, ...], 
     programme per ``β₀``; the set's boundary is located on a grid and refined by root finding.
     """
     if len(rf.rho) == 1:
-        lo = float(dset.vertices.min())
-        hi = float(dset.vertices.max())
+        lo, hi = dset.bounding_box[0].low, dset.bounding_box[0].high
         pieces = []
         for g in (lo, hi):
             pieces.extend(linalg.quadratic_ratio_set(rf.rho - g, rf.pi, rf.v_rr, rf.v_rp,
@@ -141,6 +143,23 @@ def robust_set(rf: ReducedForm, dset: DirectSet) -> tuple[tuple[Interval, ...], 
     return _robust_set_numeric(rf, dset), "grid with root refinement"
 
 
+def locating_points(dset: DirectSet) -> np.ndarray:
+    """Points of Γ whose exact AR sets locate the robust set: the vertices, or — for a box whose
+    corners are not stored — its centre and the centres of its ``2k`` faces."""
+    if dset.vertices is not None:
+        return dset.vertices
+    lows = np.array([b.low for b in dset.box])
+    highs = np.array([b.high for b in dset.box])
+    centre = 0.5 * (lows + highs)
+    rows = [centre]
+    for j in range(len(lows)):
+        for end in (lows[j], highs[j]):
+            row = centre.copy()
+            row[j] = end
+            rows.append(row)
+    return np.array(rows)
+
+
 def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...]:
     from scipy.optimize import brentq
 
@@ -152,7 +171,7 @@ def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...
     # Exact pieces at the vertices locate the region; the set is unbounded exactly when the
     # first-stage Wald statistic π'V_ππ⁻¹π is at most the critical value.
     vertex_pieces = []
-    for v in dset.vertices:
+    for v in locating_points(dset):
         vertex_pieces.extend(linalg.quadratic_ratio_set(rf.rho - v, rf.pi, rf.v_rr, rf.v_rp,
                                                         rf.v_pp, rf.critical))
     unbounded = linalg.wald_statistic(rf.pi, rf.v_pp) <= rf.critical

@@ -30,6 +30,10 @@ SLOWEST_IMPORTS = 12
 
 HELP = [sys.executable, "-m", "sensiv.cli", "--help"]
 BARE = [sys.executable, "-c", "pass"]
+TYPER = [sys.executable, "-c", "import typer"]
+TYPER_TARGET = 1.5            # every command's --help within this multiple of a bare import typer
+COMMANDS = ("fit", "sweep", "prior", "corrbound", "discrete", "published", "calibrate", "run",
+            "demo")
 
 
 def best_time(command: list[str], repeats: int) -> float:
@@ -74,6 +78,13 @@ def main(argv: list[str] | None = None) -> int:
           f"{_design.verdict(ok)}")
     print(f"  ratio --help / bare interpreter {t_help / t_bare:7.1f}x   "
           f"(sensiv's own start-up: {t_help - t_bare:.3f} s)")
+    t_typer = best_time(TYPER, args.repeats)
+    print(f"  python -c 'import typer'        {t_typer:7.3f} s")
+    for command in COMMANDS:
+        t_command = best_time([*HELP[:-1], command, "--help"], args.repeats)
+        ratio = t_command / t_typer
+        print(f"  sensiv {command:<10} --help        {t_command:7.3f} s   {ratio:5.2f}x import typer"
+              f"   target <= {TYPER_TARGET:g}x   {_design.verdict(ratio <= TYPER_TARGET)}")
     if args.imports or not ok:
         print("  slowest top-level imports of --help (cumulative, one run of -X importtime):")
         for seconds, name in slowest_imports(SLOWEST_IMPORTS):

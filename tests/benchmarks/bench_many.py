@@ -1,0 +1,143 @@
+"""Direct-effect sweep with many instruments: no ``2^k`` corners.
+
+Design (invented data, generated here): ``n`` rows, one treatment, ``k`` instruments
+``z1..zk`` (independent standard normals, first-stage coefficient ``0.5/√k`` each), ten
+numeric controls, an error correlated with the treatment and heteroskedastic in ``z1``;
+robust (HC0) standard errors; ``--direct=-0.05:0.05`` for every instrument; a 101-point curve
+with its breakdown scale, frontier and bias-aware interval (``bounds.sweep``, everything).
+
+Timed in one process (best of ``--repeats`` after an untimed warm-up): the sweep with 1, 20
+and 50 instruments on the same number of rows.  Peak memory: a fresh child process runs the
+50-instrument sweep and reports ``ru_maxrss``, beside a child that only builds the data and
+fits (so the sensitivity part's own memory is the difference).
+
+Targets: 20 instruments ≤ 2× the 1-instrument sweep; 50 instruments ≤ 60 s with both union
+ends certified (relative gap ≤ 1e-6) and peak memory ≤ 1 GB.
+
+Usage: ``python tests/benchmarks/bench_many.py [--n 1000000] [--repeats 1]``; exit code 0.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import subprocess
+import sys
+import time
+import warnings
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import _design  # noqa: E402
+
+DEFAULT_N = 1_000_000
+DIRECT = "-0.05:0.05"
+RATIO_TARGET = 2.0
+TIME_TARGET_S = 60.0
+GAP_TARGET = 1e-6
+MEMORY_TARGET_MB = 1024.0
+SEED = 20261202
+
+
+def frame(n: int, k: int):
+    import numpy as np
+    import pandas as pd
+
+    rng = np.random.default_rng([SEED, k])
+    w = rng.standard_normal((n, _design.N_CONTROLS))
+    z = rng.standard_normal((n, k))
+    shock = rng.standard_normal(n)
+    x = z @ np.full(k, 0.5 / np.sqrt(k)) + 0.2 * w[:, 0] + shock
+    noise = rng.standard_normal(n) * (1.0 + np.abs(z[:, 0]))
+    y = 1.0 + 2.0 * x + 0.3 * w[:, 1] + 0.8 * shock + noise
+    data = {"y": y, "x": x, **{f"z{j + 1}": z[:, j] for j in range(k)},
+            **{f"w{j + 1}": w[:, j] for j in range(_design.N_CONTROLS)}}
+    return pd.DataFrame(data)
+
+
+def spec(k: int):
+    from sensiv.data import Spec
+
+    return Spec(outcome="y", treatments=("x",), instruments=tuple(f"z{j + 1}" for j in range(k)),
+                controls=tuple(f"w{j + 1}" for j in range(_design.N_CONTROLS)))
+
+
+def run_sweep(df, k: int):
+    from sensiv.core.errors import WeakInstrumentWarning
+    from sensiv.data import from_frame
+    from sensiv.sensitivity import bounds
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", WeakInstrumentWarning)
+        return bounds.sweep(from_frame(df, spec(k)), direct=[DIRECT] * k, se="robust",
+                            points=101)
+
+
+def child(n: int, k: int, fit_only: bool) -> None:
+    import resource
+
+    df = frame(n, k)
+    if fit_only:
+        from sensiv.data import from_frame
+        from sensiv.estimation import iv
+
+        iv.fit(from_frame(df, spec(k)), se="robust")
+    else:
+        run_sweep(df, k)
+    print(json.dumps({"peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
+
+
+def peak_mb(n: int, k: int, fit_only: bool) -> float:
+    done = subprocess.run([sys.executable, __file__, "--child", str(k), "--n", str(n),
+                           *(["--fit-only"] if fit_only else [])],
+                          capture_output=True, text=True, check=True)
+    return json.loads(done.stdout.strip().splitlines()[-1])["peak_mb"]
+
+
+def main(argv=None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--n", type=int, default=DEFAULT_N)
+    parser.add_argument("--repeats", type=int, default=1)
+    parser.add_argument("--child", type=int, default=None, help=argparse.SUPPRESS)
+    parser.add_argument("--fit-only", action="store_true", help=argparse.SUPPRESS)
+    args = parser.parse_args(argv)
+    if args.child is not None:
+        child(args.n, args.child, args.fit_only)
+        return 0
+
+    run_sweep(frame(2_000, 20), 20)                  # warm-up: imports
+    times, results = {}, {}
+    for k in (1, 20, 50):
+        df = frame(args.n, k)
+        best = float("inf")
+        for _ in range(args.repeats):
+            start = time.perf_counter()
+            results[k] = run_sweep(df, k)
+            best = min(best, time.perf_counter() - start)
+        times[k] = best
+        del df
+    memory = peak_mb(args.n, 50, False)
+    memory_fit = peak_mb(args.n, 50, True)
+    method = results[50].union_method
+    gap = max(method.lower_gap, method.upper_gap)
+    ratio = times[20] / times[1]
+    print(f"bench_many: n={args.n:,}, 1 treatment, {_design.N_CONTROLS} controls, robust SEs, "
+          f"--direct={DIRECT} per instrument, 101 curve points; best of {args.repeats}")
+    for k in (1, 20, 50):
+        m = results[k].union_method
+        print(f"  sweep, {k:2d} instrument(s)   {times[k]:8.2f} s   union ends: {m.lower} / "
+              f"{m.upper}, exact {m.exact}, curve exact {m.curve_exact}")
+    print(f"  20 / 1 instruments: {ratio:.2f}   target <= {RATIO_TARGET}   "
+          f"{_design.verdict(ratio <= RATIO_TARGET)}")
+    print(f"  50 instruments: {times[50]:.1f} s   target <= {TIME_TARGET_S:g} s   "
+          f"{_design.verdict(times[50] <= TIME_TARGET_S)}")
+    print(f"  50 instruments: relative gap {gap:.1e}   target <= {GAP_TARGET:g}   "
+          f"{_design.verdict(gap <= GAP_TARGET and method.exact)}")
+    print(f"  50 instruments: peak RSS {memory:.0f} MB (data and fit alone {memory_fit:.0f} MB)"
+          f"   target <= {MEMORY_TARGET_MB:g} MB   {_design.verdict(memory <= MEMORY_TARGET_MB)}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
