@@ -24,6 +24,15 @@ class SensivGroup(TyperGroup):
     """The command group: usage errors of the option parser (a missing option, ``--level
     abc``) are printed as one paragraph in sensiv's own format (``error: ...``), exit code 2."""
 
+    def get_help_option(self, ctx):
+        """The help flag, defaulting to ``False`` rather than ``None``: typer coerces a
+        ``None`` flag through a pydantic adapter, and importing pydantic for a flag nobody gave
+        doubled the time of every ``sensiv CMD --help``."""
+        option = super().get_help_option(ctx)
+        if option is not None and option.default is None:
+            option.default = False
+        return option
+
     def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True,
              **extra):
         if not standalone_mode:
