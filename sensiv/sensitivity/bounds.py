@@ -28,7 +28,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
-from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
+from sensiv.core.results import Interval, Presentable, describe, intervals_to_lists, json_number
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.moments import ScoreSums
@@ -101,7 +101,7 @@ class Curve:
 
 
 @dataclass(frozen=True, slots=True)
-class SweepResult:
+class SweepResult(Presentable):
     """Direct-effect sensitivity of the focus coefficient over a set Γ and its scalings."""
 
     focus: str

@@ -24,7 +24,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_DRAWS, check_count, check_seed
-from sensiv.core.results import Interval, describe, json_number
+from sensiv.core.results import Interval, Presentable, describe, json_number
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.inference import Progress
@@ -136,7 +136,7 @@ def prior_map(core: Core, mean: np.ndarray, cov: np.ndarray, threshold: float,
 
 
 @dataclass(frozen=True, slots=True)
-class PriorResult:
+class PriorResult(Presentable):
     """Interval for the focus coefficient under a prior law of the direct effect."""
 
     focus: str
