@@ -100,7 +100,7 @@ def sweep(data, spec=None, *, direct: Any = None, polytope: str | None = None,
 def prior(data, spec=None, *, prior: Any = None, prior_file: str | None = None,
           se: str | None = None, level: float = 0.95, small: bool | None = None,
           focus: str | None = None, draws: int = prior_layer.MC_DRAWS, seed: int | None = 0,
-          threshold: float = 0.0, chunk_rows: int | None = None,
+          threshold: float = 0.0, chunk_rows: int | None = None, progress: bool = True,
           **roles) -> prior_layer.PriorResult:
     """Prior interval (:func:`sensiv.sensitivity.prior.prior_analysis`); ``prior`` is one law
     per instrument, e.g. ``"normal:0:0.01"`` or a list."""
@@ -109,7 +109,7 @@ def prior(data, spec=None, *, prior: Any = None, prior_file: str | None = None,
         return prior_layer.prior_analysis(
             data, spec, priors=prior_laws(prior), prior_file=prior_file, se=se,
             confidence_level=level_of(level), small=small, focus=focus, draws=draws,
-            seed=seed, chunk_rows=chunk_rows, threshold=threshold)
+            seed=seed, chunk_rows=chunk_rows, threshold=threshold, progress=progress)
 
 
 def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = None,
