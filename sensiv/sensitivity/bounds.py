@@ -228,6 +228,8 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     if (direct is None) == (polytope is None):
         raise InputError("give either one --direct range per instrument or --direct-polytope "
                          "FILE (not both, not neither)")
+    if isinstance(direct, (str, RangeSpec)):
+        direct = [direct]  # one range, not its characters
     ranges = [parse_range(r) if isinstance(r, str) else r for r in (direct or [])]
     check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):
