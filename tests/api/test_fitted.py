@@ -152,3 +152,16 @@ def test_roles_or_another_covariance_beside_a_model_are_refused(card):
         sensiv.sweep(fitted, outcome="lwage", direct="-0.01:0.01")
     with pytest.raises(InputError, match="se='classic' differs from the fitted model"):
         sensiv.sweep(fitted, se="classic", direct="-0.01:0.01")
+
+
+def test_linearmodels_formula_terms_and_missing_rows(card):
+    # C(...) dummies and rows dropped for a missing IQ are the model's own
+    # (reference library: linearmodels 7.1)
+    frame = card.assign(region=card.reg661.astype(str))
+    fitted = linearmodels_iv.IV2SLS.from_formula(
+        "lwage ~ 1 + exper + IQ + C(region) + [educ ~ nearc4]", frame,
+        weights=frame.weight).fit(cov_type="robust")
+    result = quiet_sweep(fitted)
+    assert result.n == fitted.nobs < len(card)
+    assert result.estimate == pytest.approx(fitted.params["educ"], abs=TOLERANCE)
+    assert result.se == pytest.approx(fitted.std_errors["educ"], abs=TOLERANCE)
