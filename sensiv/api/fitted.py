@@ -127,11 +127,7 @@ def _from_pyfixest(result: Any) -> FittedModel:
     if not result._is_iv:
         raise InputError("this pyfixest result is not an IV regression; fit it with "
                          "feols('y ~ controls | treatment ~ instruments', ...)")
-    if result._has_fixef and "absorb" not in Spec.__dataclass_fields__:
-        raise InputError(f"this pyfixest result absorbs fixed effects ({result._fixef}); this "
-                         "version of sensiv cannot absorb them: refit with the effects as "
-                         "dummies (C(name) in the formula is not read; add the indicator "
-                         "columns to the frame) or pass the DataFrame with categorical=")
+    absorb = _pyfixest_absorbed(result)
     detail = str(result._vcov_type_detail)
     if detail not in PYFIXEST_SE:
         raise InputError(f"the covariance type '{detail}' of this pyfixest result is not one "
@@ -160,8 +156,27 @@ def _from_pyfixest(result: Any) -> FittedModel:
     spec = Spec(outcome=str(result._depvar), treatments=tuple(treatments),
                 instruments=tuple(instruments), controls=tuple(exog),
                 cluster=clusters[0] if clusters else None, weight=result._weights_name,
-                constant=constant)
+                constant=constant, **({"absorb": absorb} if absorb else {}))
     return FittedModel(frame, spec, PYFIXEST_SE[detail], _pyfixest_small(result), "pyfixest")
+
+
+def _pyfixest_absorbed(result: Any) -> tuple[str, ...]:
+    """The fixed effects a pyfixest model absorbs (``f1+f2``), refused where sensiv cannot
+    absorb them (no ``Spec.absorb``) or for interactions (``f1^f2``)."""
+    if not result._has_fixef:
+        return ()
+    text = str(result._fixef)
+    if "absorb" not in Spec.__dataclass_fields__:
+        raise InputError(f"this pyfixest result absorbs fixed effects ({text}); this "
+                         "version of sensiv cannot absorb them: refit with the effects as "
+                         "indicator columns in the frame, or pass the DataFrame with "
+                         "categorical=")
+    names = tuple(name.strip() for name in text.split("+"))
+    if any("^" in name for name in names):
+        raise InputError(f"this pyfixest result absorbs interacted fixed effects ({text}); "
+                         "sensiv absorbs plain columns: add the interaction as a column and "
+                         "refit")
+    return names
 
 
 def _pyfixest_small(result: Any) -> bool:

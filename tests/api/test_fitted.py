@@ -165,3 +165,16 @@ def test_linearmodels_formula_terms_and_missing_rows(card):
     assert result.n == fitted.nobs < len(card)
     assert result.estimate == pytest.approx(fitted.params["educ"], abs=TOLERANCE)
     assert result.se == pytest.approx(fitted.std_errors["educ"], abs=TOLERANCE)
+
+
+def test_pyfixest_round_trip_with_absorbed_fixed_effects(card):
+    # reference library: pyfixest 0.60; runs once sensiv's Spec can absorb fixed effects
+    from sensiv.data import Spec
+
+    if "absorb" not in Spec.__dataclass_fields__:
+        pytest.skip("this version of sensiv has no absorb= (fixed effects are refused)")
+    fitted = pf.feols("lwage ~ exper + black | reg661 | educ ~ nearc4", data=card,
+                      vcov="hetero")
+    result = quiet_sweep(fitted)
+    assert result.estimate == pytest.approx(fitted.coef()["educ"], abs=TOLERANCE)
+    assert result.se == pytest.approx(fitted.se()["educ"], abs=TOLERANCE)
