@@ -6,13 +6,17 @@ instant::
 
     import sensiv
     fit = sensiv.fit(source)                      # 2SLS with diagnostics
-    res = sensiv.sweep(source, direct=["-0.01:0.01"])
-    pri = sensiv.prior(source, priors=["normal:0:0.005"])
+    res = sensiv.sweep(frame, outcome="y", treatment="x", instruments="z",
+                       direct="-0.01:0.01")          # a DataFrame (pandas, polars) or a path
+    res = sensiv.sweep(fitted, direct=(-0.01, 0.01))  # a fitted linearmodels / pyfixest IV model
+    pri = sensiv.prior(frame, outcome="y", treatment="x", instruments="z",
+                       prior="normal:0:0.005")
 
 ``fit``, ``sweep``, ``prior``, ``corrbound``, ``discrete``, ``published``, ``calibrate`` and
-``run_recipe`` are the analyses of the command line; ``sensiv.data`` reads the data
+``run_recipe`` are the analyses of the command line, with the CLI's option names and value
+syntax as keywords (:mod:`sensiv.api`); ``sensiv.data`` reads the data
 (``Spec``, ``from_file``, ``from_frame``).  The layers, lowest first: ``core``, ``data``,
-``estimation``, ``partial_id``, ``sensitivity``, ``present``, ``analyses``, ``recipes``, ``cli``.
+``estimation``, ``partial_id``, ``sensitivity``, ``present``, ``analyses``, ``api``, ``recipes``, ``cli``.
 """
 
 from __future__ import annotations
@@ -23,13 +27,13 @@ from sensiv.core.version import __version__
 
 # public name -> (module, attribute); resolved on first use
 _PUBLIC = {
-    "fit": ("sensiv.estimation.iv", "fit"),
-    "sweep": ("sensiv.sensitivity.bounds", "sweep"),
-    "prior": ("sensiv.sensitivity.prior", "prior_analysis"),
-    "corrbound": ("sensiv.partial_id.correlation", "correlation_bounds"),
+    "fit": ("sensiv.api.functions", "fit"),
+    "sweep": ("sensiv.api.functions", "sweep"),
+    "prior": ("sensiv.api.functions", "prior"),
+    "corrbound": ("sensiv.api.functions", "corrbound"),
     "discrete": ("sensiv.partial_id.discrete", "discrete_bounds"),
     "published": ("sensiv.sensitivity.published", "published_analysis"),
-    "calibrate": ("sensiv.sensitivity.calibrate", "calibrate"),
+    "calibrate": ("sensiv.api.functions", "calibrate"),
     "run_recipe": ("sensiv.recipes.run", "run_recipe"),
 }
 

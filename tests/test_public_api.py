@@ -10,11 +10,12 @@ from pathlib import Path
 import pytest
 
 import sensiv
+from sensiv.api import functions
 from sensiv.data import Spec, from_file
 from sensiv.estimation import iv
-from sensiv.partial_id import correlation, discrete
+from sensiv.partial_id import discrete
 from sensiv.recipes import run
-from sensiv.sensitivity import bounds, calibrate, prior, published
+from sensiv.sensitivity import bounds, published
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -28,9 +29,9 @@ def test_importing_sensiv_loads_no_numerical_library():
 
 
 @pytest.mark.parametrize("name, function", [
-    ("fit", iv.fit), ("sweep", bounds.sweep), ("prior", prior.prior_analysis),
-    ("corrbound", correlation.correlation_bounds), ("discrete", discrete.discrete_bounds),
-    ("published", published.published_analysis), ("calibrate", calibrate.calibrate),
+    ("fit", functions.fit), ("sweep", functions.sweep), ("prior", functions.prior),
+    ("corrbound", functions.corrbound), ("discrete", discrete.discrete_bounds),
+    ("published", published.published_analysis), ("calibrate", functions.calibrate),
     ("run_recipe", run.run_recipe)])
 def test_public_names_are_the_analyses(name, function):
     assert getattr(sensiv, name) is function
@@ -62,3 +63,16 @@ def test_run_recipe_takes_a_path(tmp_path):
     result = sensiv.run_recipe(tmp_path / "r.toml")
     assert [r.analysis.kind for r in result.runs] == ["fit"]
     assert isinstance(result.runs[0].result, iv.IVFit)
+
+
+def test_public_sweep_is_the_layer_sweep_with_keyword_roles():
+    # the API only normalises arguments: the same numbers as the layer function (common
+    # practice, no source)
+    spec = Spec("maize_yield", ["irrigation_hours"], ["height_m"],
+                controls=["plot_ha", "soil"], cluster="village")
+    path = ROOT / "examples" / "irrigation.csv"
+    layer = bounds.sweep(from_file(path, spec), direct=["-0.005:0.005"])
+    public = sensiv.sweep(path, outcome="maize_yield", treatment="irrigation_hours",
+                          instruments="height_m", controls=["plot_ha", "soil"],
+                          cluster="village", direct="-0.005:0.005")
+    assert public.to_dict() == layer.to_dict()

@@ -78,7 +78,7 @@ def corrbound(
     check_one_treatment(spec)
     result = correlation_bounds(from_file(data, spec), max_ratio=max_ratio,
                                 endogeneity=endogeneity, threshold=threshold, points=points,
-                                reps=reps, seed=seed, confidence_level=level, progress=True)
+                                reps=reps, seed=seed, confidence_level=level, progress=not as_json)
     document = result.to_dict()
     if out is not None:
         write_outputs(out, result, {"corrbound.json": to_json(document),

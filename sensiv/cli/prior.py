@@ -67,7 +67,7 @@ def prior(
     result = prior_layer.prior_analysis(
         source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
         se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed,
-        threshold=threshold)
+        threshold=threshold, progress=not as_json)
     if out is not None:
         write_outputs(out, result, prior_files(result), chosen)
     emit(result.to_dict(), str(result), as_json)

@@ -22,7 +22,7 @@ EXAMPLE = ("\b\n"
 def run(
     recipe: Path = typer.Argument(..., metavar="RECIPE",
         help="Recipe file (TOML): data, roles, analyses."),
-    out: Path = out_option("Folder for report.md, report.html, tables and figures.", ...),
+    out: Path = out_option("Folder for report.md, report.html, report.docx, tables and figures.", ...),
     formats: Optional[list[str]] = FORMAT,
     as_json: bool = JSON,
 ) -> None:
@@ -48,7 +48,14 @@ def run(
             f"stud{'y' if len(parsed.studies) == 1 else 'ies'}"]
     text += [f"  {r.study} / {r.analysis.label} ({r.analysis.kind})" for r in result.runs]
     text += study_tables(parsed, result)
-    text.append(f"Written to {out}/: report.md, report.html, tables/, figures/, results/")
+    word = "report.docx" in files
+    text.append(f"Written to {out}/: report.md, report.html, "
+                f"{'report.docx, ' if word else ''}tables/, figures/, results/")
+    if not word:
+        from sensiv.present.word import WORD_HINT
+
+        document["notes"] = [WORD_HINT]
+        text.append(WORD_HINT)
     emit(document, "\n".join(text), as_json)
 
 

@@ -100,3 +100,36 @@ def describe(result: object) -> str:
     import importlib
 
     return importlib.import_module(REGISTRY_MODULE).describe(result)
+
+
+# The same hook for notebooks: HTML table, figure and DataFrame of a result, built in the
+# presentation layer and found through the registry at call time.
+NOTEBOOK_MODULE = "sensiv.analyses.notebook"
+
+
+class Presentable:
+    """Mixin of the analysis results for notebooks (no state: ``__slots__`` is empty).
+
+    ``_repr_html_`` renders the results table in Jupyter, :meth:`plot` returns the matplotlib
+    Figure of one of the result's figure kinds and :meth:`to_frame` its curve or table as a
+    pandas DataFrame.
+    """
+
+    __slots__ = ()
+
+    def _repr_html_(self) -> str:
+        return _notebook().html(self)
+
+    def plot(self, name: str | None = None):
+        """The matplotlib Figure ``name`` of this result (its first figure when ``None``)."""
+        return _notebook().plot(self, name)
+
+    def to_frame(self):
+        """The curve (or, without one, the results table) as a pandas DataFrame."""
+        return _notebook().to_frame(self)
+
+
+def _notebook():
+    import importlib
+
+    return importlib.import_module(NOTEBOOK_MODULE)

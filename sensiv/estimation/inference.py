@@ -1,17 +1,11 @@
-"""Inference helpers shared by the bound-producing layers: the Imbens–Manski interval and a
-quiet progress indicator for long resampling runs."""
+"""Inference helpers shared by the bound-producing layers: the Imbens–Manski interval (the
+progress bar of long resampling runs is :class:`sensiv.core.progress.Progress`)."""
 
 from __future__ import annotations
 
 import math
-import sys
-import time
-from dataclasses import dataclass
 
 from sensiv.core.results import Interval
-
-# Seconds a loop must have run before a progress line is shown.
-PROGRESS_AFTER = 2.0
 
 
 def imbens_manski(lower: float, upper: float, se_lower: float, se_upper: float,
@@ -51,34 +45,3 @@ def imbens_manski(lower: float, upper: float, se_lower: float, se_upper: float,
 
     c = brentq(gap, 0.0, float(ndtri(0.5 + 0.5 * confidence_level)) + 1.0)
     return Interval(lower - c * se_lower, upper + c * se_upper)
-
-
-@dataclass
-class Progress:
-    """Progress on stderr for long loops: silent unless the loop has run for a while and stderr
-    is a terminal, so JSON output and logs stay clean."""
-
-    total: int
-    label: str = "resampling"
-    enabled: bool = True
-
-    def __post_init__(self) -> None:
-        self._start = time.monotonic()
-        self._shown = False
-        self._tty = self.enabled and hasattr(sys.stderr, "isatty") and sys.stderr.isatty()
-
-    def update(self, done: int) -> None:
-        if not self._tty:
-            return
-        elapsed = time.monotonic() - self._start
-        if elapsed < PROGRESS_AFTER:
-            return
-        eta = elapsed / max(done, 1) * (self.total - done)
-        sys.stderr.write(f"\r{self.label}: {done}/{self.total} ({eta:.0f} s left)   ")
-        sys.stderr.flush()
-        self._shown = True
-
-    def close(self) -> None:
-        if self._shown:
-            sys.stderr.write("\r" + " " * 60 + "\r")
-            sys.stderr.flush()

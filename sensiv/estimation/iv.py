@@ -28,7 +28,8 @@ from typing import Literal
 import numpy as np
 
 from sensiv.core.errors import FewClustersWarning, InputError, WeakInstrumentWarning
-from sensiv.core.results import Interval, describe, format_number, intervals_to_lists, json_number
+from sensiv.core.results import (Interval, Presentable, describe, format_number,
+                                 intervals_to_lists, json_number)
 from sensiv.data.readers import load
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import distributions as dist
@@ -71,7 +72,7 @@ class Coefficients:
 
 
 @dataclass(frozen=True, slots=True)
-class IVFit:
+class IVFit(Presentable):
     """A 2SLS fit with its diagnostics.
 
     Attributes

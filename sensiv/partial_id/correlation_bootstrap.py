@@ -15,8 +15,9 @@ from collections.abc import Sequence
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.progress import Progress
 from sensiv.core.results import Interval
-from sensiv.estimation.inference import Progress, imbens_manski
+from sensiv.estimation.inference import imbens_manski
 from sensiv.estimation.moments import chunk_moments
 from sensiv.partial_id.correlation_moments import (PartialCorrelations, eliminate,
                                                    partial_correlations)

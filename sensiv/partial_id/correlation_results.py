@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from sensiv.core.results import Interval, describe, format_number, json_number
+from sensiv.core.results import Interval, Presentable, describe, format_number, json_number
 from sensiv.data.where import filter_assumptions
 
 CAUTION = ("Caution: these bounds hold only under the stated correlation restriction (each "
@@ -78,7 +78,7 @@ class BootstrapSummary:
 
 
 @dataclass(frozen=True, slots=True)
-class CorrelationBounds:
+class CorrelationBounds(Presentable):
     """Identified set for the treatment effect under the Nevo & Rosen (2012) restriction.
 
     Attributes

@@ -37,8 +37,9 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.core.limits import check_seed
+from sensiv.core.progress import Progress
 from sensiv.core.results import Interval
-from sensiv.estimation.inference import Progress, imbens_manski
+from sensiv.estimation.inference import imbens_manski
 from sensiv.partial_id.discrete_data import CountsTable, plain_number
 from sensiv.partial_id.discrete_programme import Programmes, curve
 from sensiv.partial_id.discrete_results import (CAUTION, Bootstrap, ContrastBounds,

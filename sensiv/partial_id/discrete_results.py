@@ -6,7 +6,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from sensiv.partial_id.discrete_data import CountsTable, plain_number
-from sensiv.core.results import Interval, describe, json_number
+from sensiv.core.results import Interval, Presentable, describe, json_number
 
 CAUTION = ("Caution: these bounds hold only under the stated assumptions — a randomised "
            "instrument and at most the stated share of units whose outcome the instrument "
@@ -83,7 +83,7 @@ class Bootstrap:
 
 
 @dataclass(frozen=True, slots=True)
-class DiscreteBounds:
+class DiscreteBounds(Presentable):
     """Result of :func:`discrete_bounds`.
 
     ``bounds``, ``ci``, ``curve`` and ``breakdown_budget`` describe the focus contrast: the

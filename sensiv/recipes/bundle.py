@@ -13,6 +13,7 @@ from sensiv.analyses.outputs import figure_files, results_table, summary_figure,
 from sensiv.analyses.registry import entry, is_tabled
 from sensiv.present import figures
 from sensiv.present.bundle import REPORT_CAUTION, Block, render_html, render_markdown
+from sensiv.present.word import render_docx, word_available
 from sensiv.present.writer import to_json
 from sensiv.sensitivity.bounds import CAUTION
 
@@ -21,7 +22,8 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
               ) -> dict[str, str | bytes]:
     """Every file of a recipe run, name → content, ready for ``report.write_bundle``.
 
-    Layout: ``report.md``, ``report.html``, ``recipe.toml`` (the recipe as run),
+    Layout: ``report.md``, ``report.html``, ``report.docx`` (when python-docx is installed:
+    the extra ``sensiv[word]``), ``recipe.toml`` (the recipe as run),
     ``results/<study>-<n>-<kind>.json`` (every result in full), ``tables/…`` (Markdown, LaTeX,
     CSV and JSON per analysis and per study) and ``figures/…`` in every requested format.
     """
@@ -58,6 +60,8 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
             files[f"results/{r.stem}.json"] = to_json(r.result.to_dict())
     files["report.md"] = render_markdown(blocks)
     files["report.html"] = render_html(blocks, run.recipe.title)
+    if word_available():
+        files["report.docx"] = render_docx(blocks, run.recipe.title)
     return files
 
 

@@ -75,7 +75,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from sensiv.core.errors import InaccurateSolveWarning, InputError
-from sensiv.core.results import Interval, describe, format_number, json_number
+from sensiv.core.results import Interval, Presentable, describe, format_number, json_number
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import iv
 from sensiv.sensitivity.adaptive_programmes import (UNITS, Units, check_reduced_form,
@@ -117,7 +117,7 @@ class SingleInstrument:
 
 
 @dataclass(frozen=True, slots=True)
-class AdaptiveResult:
+class AdaptiveResult(Presentable):
     """Falsification adaptive set and the smallest relaxation that reconciles the instruments.
 
     Attributes

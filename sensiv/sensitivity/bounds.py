@@ -28,7 +28,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
-from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
+from sensiv.core.results import Interval, Presentable, describe, intervals_to_lists, json_number
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.moments import ScoreSums
@@ -102,7 +102,7 @@ class Curve:
 
 
 @dataclass(frozen=True, slots=True)
-class SweepResult:
+class SweepResult(Presentable):
     """Direct-effect sensitivity of the focus coefficient over a set Γ and its scalings."""
 
     focus: str
@@ -232,6 +232,8 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     if (direct is None) == (polytope is None):
         raise InputError("give either one --direct range per instrument or --direct-polytope "
                          "FILE (not both, not neither)")
+    if isinstance(direct, (str, RangeSpec)):
+        direct = [direct]  # one range, not its characters
     ranges = [parse_range(r) if isinstance(r, str) else r for r in (direct or [])]
     check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):

@@ -36,7 +36,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
 from sensiv.core.errors import InputError
-from sensiv.core.results import describe, format_number, json_number
+from sensiv.core.results import Presentable, describe, format_number, json_number
 from sensiv.data import read_table
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
@@ -84,7 +84,7 @@ def parse_groups(texts: Sequence[str]) -> dict[str, tuple[str, ...]]:
 
 # ============================================================================ the result
 @dataclass(frozen=True, slots=True)
-class Calibration:
+class Calibration(Presentable):
     """Reference magnitudes for direct effects: scale, leave-one-out yardsticks, zero first stage."""
 
     outcome: str

@@ -24,10 +24,10 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_DRAWS, check_count, check_seed
-from sensiv.core.results import Interval, describe, json_number
+from sensiv.core.progress import Progress
+from sensiv.core.results import Interval, Presentable, describe, json_number
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
-from sensiv.estimation.inference import Progress
 from sensiv.sensitivity.bounds import CAUTION
 from sensiv.sensitivity.linear_core import Core, build_core, focus_block, focus_index
 from sensiv.sensitivity.direct_sets import scale_of_pieces
@@ -136,7 +136,7 @@ def prior_map(core: Core, mean: np.ndarray, cov: np.ndarray, threshold: float,
 
 
 @dataclass(frozen=True, slots=True)
-class PriorResult:
+class PriorResult(Presentable):
     """Interval for the focus coefficient under a prior law of the direct effect."""
 
     focus: str
@@ -239,21 +239,23 @@ def quadrature_interval(core: Core, prior: Prior, level: float) -> tuple[Interva
 
 
 def simulated_interval(core: Core, priors: Sequence[Prior], level: float, draws: int,
-                       seed: int | None) -> tuple[Interval, float, float]:
-    """Monte Carlo interval with its Monte Carlo error (largest batch-means SE of the ends)."""
+                       seed: int | None, progress: bool = True
+                       ) -> tuple[Interval, float, float]:
+    """Monte Carlo interval with its Monte Carlo error (largest batch-means SE of the ends);
+    ``progress`` allows a progress bar on a terminal's stderr."""
     rng = np.random.default_rng(seed)
     sigma = math.sqrt(core.quad[0, 0])
     per_batch = max(draws // MC_BATCHES, 1)
     p_lo, p_hi = _tail_probabilities(level)
     samples, ends = [], []
-    progress = Progress(MC_BATCHES, label="simulating the prior interval")
+    bar = Progress(MC_BATCHES, label="simulating the prior interval", enabled=progress)
     for b in range(MC_BATCHES):
         gamma = np.column_stack([p.sample(rng, per_batch) for p in priors])
         s = gamma @ core.slope + sigma * rng.standard_normal(per_batch)
         samples.append(s)
         ends.append(np.quantile(s, [p_lo, p_hi]))
-        progress.update(b + 1)
-    progress.close()
+        bar.update(b + 1)
+    bar.close()
     s = np.concatenate(samples)
     q_lo, q_hi = np.quantile(s, [p_lo, p_hi])
     ends = np.array(ends)
@@ -278,7 +280,8 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
                    prior_file: str | None = None, se: str | None = None,
                    confidence_level: float = 0.95, small: bool = False,
                    focus: str | None = None, draws: int = MC_DRAWS, seed: int | None = 0,
-                   chunk_rows: int | None = None, threshold: float = 0.0) -> PriorResult:
+                   chunk_rows: int | None = None, threshold: float = 0.0,
+                   progress: bool = True) -> PriorResult:
     """Prior interval for the focus coefficient from data (two passes over the rows).
 
     Parameters
@@ -289,6 +292,8 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
     prior_file : path, optional
         TOML/JSON with a mean vector and covariance (multivariate normal), instead of ``priors``.
     draws, seed : Monte Carlo settings (used only for non-normal laws with several instruments).
+    progress : bool
+        Allow a progress bar on a terminal's stderr during the Monte Carlo simulation.
     threshold : float
         The effect size examined by the prior map (:func:`prior_map`): over a grid of normal
         priors around the given one, whether the interval excludes it.
@@ -334,7 +339,7 @@ def prior_analysis(data, spec=None, *, priors: Sequence[Prior | str] | None = No
         texts = given
     else:
         interval, center, mc_error = simulated_interval(core, laws, confidence_level, draws,
-                                                        seed)
+                                                        seed, progress)
         method = "simulation"
         used_draws, used_seed = draws, seed
         texts = given

@@ -25,7 +25,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError, WeakInstrumentWarning
 from sensiv.core.limits import MAX_POINTS, check_count, overflow_guard
-from sensiv.core.results import Interval, describe, intervals_to_lists, json_number
+from sensiv.core.results import Interval, Presentable, describe, intervals_to_lists, json_number
 from sensiv.estimation import distributions as dist
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
                                            bias_aware_scale)
@@ -68,7 +68,7 @@ class PriorPart:
 
 
 @dataclass(frozen=True, slots=True)
-class PublishedResult:
+class PublishedResult(Presentable):
     """Direct-effect sensitivity of a published IV estimate, from its printed numbers only.
 
     ``to_dict()`` carries the keys of ``sensiv sweep --json`` at top level (``estimate``,

@@ -468,3 +468,18 @@ def test_coverage_500_replications():
     union, prior_cov = _coverage(500, 1000, seed=12)
     assert union >= _binomial_floor(0.95, 500)
     assert abs(prior_cov - 0.95) <= 3 * math.sqrt(0.95 * 0.05 / 500)
+
+
+def test_one_range_as_a_string_is_one_range_not_its_characters():
+    # issue 15: direct="-0.01:0.01" was iterated character by character (common practice)
+    from pathlib import Path
+
+    from sensiv.data import Spec, from_file
+
+    root = Path(__file__).resolve().parents[2]
+    spec = Spec("maize_yield", ["irrigation_hours"], ["height_m"],
+                controls=["plot_ha", "soil"], cluster="village")
+    source = from_file(root / "examples" / "irrigation.csv", spec)
+    one = bounds.sweep(source, direct="-0.005:0.005")
+    listed = bounds.sweep(source, direct=["-0.005:0.005"])
+    assert one.to_dict() == listed.to_dict()
