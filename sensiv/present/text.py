@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
+from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
 from sensiv.sensitivity import bounds
 
@@ -29,7 +30,7 @@ def fit_summary(fit) -> str:
         f"(instruments: {', '.join(fit.instruments)})",
         f"n = {fit.n} (dropped {fit.n_dropped} with missing values"
         + (f"; {fit.n_filtered} filtered out by {fit.where!r}" if fit.where else "") + ")"
-        + (f", clusters = {fit.n_clusters}" if fit.n_clusters is not None else "")
+        + (f", clusters = {cluster_count_text(fit)}" if fit.n_clusters is not None else "")
         + f", covariance: {se_label}" + (", weighted" if fit.weighted else ""),
         "",
     ]
