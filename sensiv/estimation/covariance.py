@@ -200,3 +200,13 @@ def psd_fix_note(sums: ScoreSums | None) -> str | None:
     return ("two-way clustering: the combined covariance V_A + V_B - V_(A and B) was not "
             "positive semi-definite; its negative eigenvalues were set to zero (Cameron, "
             "Gelbach & Miller 2011), which can only enlarge the standard errors")
+
+
+def two_way_keys(result) -> dict:
+    """JSON keys of two-way clustering (none for one-way): ``clusters``, per-variable
+    ``n_clusters`` under ``cluster_counts`` and ``psd_fix``."""
+    if not result.cluster_counts:
+        return {}
+    names = list(result.cluster)
+    return {"clusters": names, "cluster_counts": dict(zip(names, result.cluster_counts[:2])),
+            "n_intersections": result.cluster_counts[2], "psd_fix": result.psd_fix}

@@ -35,7 +35,8 @@ from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
 from sensiv.estimation.covariance import (check_clusters, coefficient_covariance,
                                           combine_two_way, few_clusters_notes,
-                                          normalise_weights, psd_fix_note, score_blocks)
+                                          normalise_weights, psd_fix_note, score_blocks,
+                                          two_way_keys)
 from sensiv.estimation.design import CONSTANT, Design, build_design, check_design
 from sensiv.estimation.diagnostics import OverId, anderson_rubin_set, overid_test
 from sensiv.estimation.first_stage import FirstStage, first_stage_covariance, first_stages
@@ -110,6 +111,7 @@ class IVFit:
     cluster: str | tuple[str, ...] | None = None
     cluster_counts: tuple[int, ...] = ()
     psd_fix: bool = False
+    bootstrap: object | None = None  # sensiv.estimation.wild_bootstrap.WildBootstrap
 
     @property
     def caution(self) -> str:
@@ -150,7 +152,8 @@ class IVFit:
             "the treatment (see the first-stage F)",
             "linear model with a constant effect of the treatment",
             se_words[self.se_type] + (", with small-sample corrections" if self.small else ""),
-        ] + filter_assumptions(self.where, self.n_filtered)
+        ] + filter_assumptions(self.where, self.n_filtered) + (
+            self.bootstrap.assumptions() if self.bootstrap is not None else [])
 
     def to_dict(self) -> dict:
         names = self.reported_names()
@@ -183,20 +186,12 @@ class IVFit:
         }
         if self.ar_set is not None:
             out["ar_set"] = intervals_to_lists(self.ar_set)
+        if self.bootstrap is not None:
+            out["bootstrap"] = self.bootstrap.to_dict()
         return out
 
     def __str__(self) -> str:
         return describe(self)
-
-
-def two_way_keys(result: IVFit) -> dict:
-    """JSON keys of two-way clustering (none for one-way): ``clusters``, per-variable
-    ``n_clusters`` under ``cluster_counts`` and ``psd_fix``."""
-    if not result.cluster_counts:
-        return {}
-    names = list(result.cluster)
-    return {"clusters": names, "cluster_counts": dict(zip(names, result.cluster_counts[:2])),
-            "n_intersections": result.cluster_counts[2], "psd_fix": result.psd_fix}
 
 
 # ----------------------------------------------------------------------------- the fit

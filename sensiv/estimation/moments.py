@@ -337,6 +337,27 @@ def _encode_ways(indices: list[_ClusterIndex], labels: np.ndarray) -> list[tuple
     return [(a, n_a), (b, n_b), pair]
 
 
+def cluster_sums(chunks: Iterable, mean: np.ndarray, block: ScoreBlock) -> np.ndarray:
+    """Per-cluster sums ``s_g = Σ_{i∈g} wᵢ vec(aᵢ ⊗ eᵢ)`` of one block, shape ``(G, size)``.
+
+    Rows of the result follow the clusters' order of first appearance; the chunks must carry
+    one column of cluster labels.  The wild cluster bootstrap
+    (:mod:`sensiv.estimation.wild_bootstrap`) needs these sums themselves, not only
+    ``Σ_g s_g s_g'``."""
+    maps = _RowMaps([block], mean)
+    index = _ClusterIndex()
+    acc = np.zeros((0, block.size))
+    for chunk in chunks:
+        codes, n_groups = index.encode(chunk.clusters)
+        ((a, e),) = maps.apply(chunk.values)
+        g = _block_scores(block, a, e, chunk.weights)
+        if acc.shape[0] < n_groups:
+            acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], block.size))])
+        for j in range(block.size):
+            acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
+    return acc
+
+
 def count_clusters(chunks: Iterable) -> tuple[int, ...]:
     """Distinct cluster labels per cluster variable (one, or two for two-way) in ``chunks``."""
     indices: list[_ClusterIndex] = []

@@ -5,6 +5,7 @@ from __future__ import annotations
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
 from sensiv.present.text_clusters import cluster_count_text
+from sensiv.present.text_fit_extras import bootstrap_lines
 from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
 from sensiv.sensitivity import bounds
 
@@ -62,6 +63,7 @@ def fit_summary(fit) -> str:
                      f"on {o.df} df, p = {format_number(o.p_value, 3)}")
     else:
         lines.append("Overidentification: not testable (exactly identified)")
+    lines += bootstrap_lines(fit)
     for note in fit.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in fit.assumptions()]
