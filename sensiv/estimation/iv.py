@@ -41,6 +41,7 @@ from sensiv.estimation.design import CONSTANT, Design, build_design, check_desig
 from sensiv.estimation.diagnostics import OverId, anderson_rubin_set, overid_test
 from sensiv.estimation.first_stage import FirstStage, first_stage_covariance, first_stages
 from sensiv.estimation.least_squares import LinearFit, solve_linear
+from sensiv.estimation.tf import TF, tf_interval
 from sensiv.estimation.moments import Moments, ScoreSums, accumulate, check_rows, score_sums
 
 SEType = Literal["classic", "robust", "cluster"]
@@ -112,6 +113,7 @@ class IVFit:
     cluster_counts: tuple[int, ...] = ()
     psd_fix: bool = False
     bootstrap: object | None = None  # sensiv.estimation.wild_bootstrap.WildBootstrap
+    tf: TF | None = None  # one treatment and one instrument only
 
     @property
     def caution(self) -> str:
@@ -186,6 +188,8 @@ class IVFit:
         }
         if self.ar_set is not None:
             out["ar_set"] = intervals_to_lists(self.ar_set)
+        if self.tf is not None:
+            out["tf"] = self.tf.to_dict()
         if self.bootstrap is not None:
             out["bootstrap"] = self.bootstrap.to_dict()
         return out
@@ -306,7 +310,9 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         notes=tuple(notes), n_filtered=pieces.moments.n_filtered, where=where,
         cluster=cluster if se == "cluster" else None,
         cluster_counts=sums.cluster_counts if sums is not None and se == "cluster" else (),
-        psd_fix=bool(sums is not None and sums.psd_fix))
+        psd_fix=bool(sums is not None and sums.psd_fix),
+        tf=tf_interval(tsls.value(d.treatments[0]), tsls.std_error(d.treatments[0]),
+                       stages[0].f, confidence_level) if d.z.shape[1] == 1 else None)
 
 
 def check_options(se: str, cluster: str | None, confidence_level: float) -> None:

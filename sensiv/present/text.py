@@ -5,7 +5,7 @@ from __future__ import annotations
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
 from sensiv.present.text_clusters import cluster_count_text
-from sensiv.present.text_fit_extras import bootstrap_lines
+from sensiv.present.text_fit_extras import bootstrap_lines, tf_lines
 from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
 from sensiv.sensitivity import bounds
 
@@ -57,6 +57,7 @@ def fit_summary(fit) -> str:
     if fit.ar_set is not None:
         pieces = " U ".join(str(p) for p in fit.ar_set) if fit.ar_set else "empty"
         lines += ["", f"Anderson-Rubin {pct} set for {fit.treatments[0]}: {pieces}"]
+    lines += tf_lines(fit)
     if fit.overid is not None:
         o = fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} "
