@@ -39,7 +39,7 @@ def calibrate(
     categorical: Optional[list[str]] = CATEGORICAL,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
-    cluster: Optional[str] = CLUSTER,
+    cluster: Optional[list[str]] = CLUSTER,
     weight: Optional[str] = WEIGHT,
     level: float = LEVEL,
     small: bool = SMALL,

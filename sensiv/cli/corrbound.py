@@ -42,7 +42,7 @@ def corrbound(
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
     where: Optional[str] = WHERE,
-    cluster: Optional[str] = CLUSTER,
+    cluster: Optional[list[str]] = CLUSTER,
     weight: Optional[str] = WEIGHT,
     max_ratio: float = MAX_RATIO,
     endogeneity: str = ENDOGENEITY,

@@ -9,9 +9,29 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.core.limits import MAX_REPS
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
+
+
+BOOTSTRAP = typer.Option(None, "--bootstrap", metavar="wild", help="Also run the wild restricted efficient cluster bootstrap (Davidson & MacKinnon 2010) of 'effect = threshold' and invert it into an interval; needs --cluster.")
+REPS = typer.Option(9999, "--reps", metavar="INTEGER", help=f"Bootstrap replicates, 1 to {MAX_REPS:,}.")
+SEED = typer.Option(None, "--seed", metavar="INTEGER", help="Seed of the bootstrap [default: drawn and reported].")
+THRESHOLD = typer.Option(0.0, "--threshold", metavar="NUMBER", help="Effect value tested by the bootstrap ('effect = threshold').")
+
+
+def bootstrapped_fit(source, method: str, *, se, level, small, threshold, reps, seed, progress):
+    """The fit with its bootstrap (``--bootstrap``), checked at the boundary."""
+    from sensiv.core.errors import InputError
+    from sensiv.estimation import wild_bootstrap
+
+    if method not in wild_bootstrap.BOOTSTRAP_METHODS:
+        raise InputError(f"--bootstrap '{method}' is not a bootstrap method; choose one of "
+                         f"{', '.join(wild_bootstrap.BOOTSTRAP_METHODS)}")
+    return wild_bootstrap.fit_with_bootstrap(source, se=se, confidence_level=level,
+                                             small=small, threshold=threshold, reps=reps,
+                                             seed=seed, progress=progress)
 
 
 EXAMPLE = ("\b\n"
@@ -31,7 +51,7 @@ def fit(
     categorical: Optional[list[str]] = CATEGORICAL,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
-    cluster: Optional[str] = CLUSTER,
+    cluster: Optional[list[str]] = CLUSTER,
     weight: Optional[str] = WEIGHT,
     level: float = LEVEL,
     small: bool = SMALL,
@@ -39,6 +59,10 @@ def fit(
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write fit.json, fit.md, tables and a figure here."),
     formats: Optional[list[str]] = FORMAT,
+    bootstrap: Optional[str] = BOOTSTRAP,
+    reps: int = REPS,
+    seed: Optional[int] = SEED,
+    threshold: float = THRESHOLD,
 ) -> None:
     """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
     check_out(out)
@@ -51,7 +75,12 @@ def fit(
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                              where, categorical)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
-    result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
+    if bootstrap is None:
+        result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
+    else:
+        result = bootstrapped_fit(from_file(data, spec), bootstrap, se=se or iv.default_se(spec),
+                                  level=level, small=small, threshold=threshold, reps=reps,
+                                  seed=seed, progress=not as_json)
     document = result.to_dict()
     if out is not None:
         write_outputs(out, result, {"fit.json": to_json(document), "fit.md": fit_markdown(result)},

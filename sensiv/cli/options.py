@@ -32,7 +32,7 @@ CATEGORICAL = typer.Option(None, "--categorical", metavar="COLUMN", help="Intege
 SE = typer.Option(None, "--se", metavar="classic|robust|cluster", help="Covariance: classic, robust or cluster [default: cluster if --cluster is given, else robust].")
 
 
-CLUSTER = typer.Option(None, "--cluster", metavar="COLUMN", help="Cluster column for one-way clustered covariance.")
+CLUSTER = typer.Option(None, "--cluster", metavar="COLUMN", help="Cluster column for a clustered covariance; give it twice (--cluster A --cluster B) for two-way clustering (Cameron, Gelbach & Miller 2011).")
 
 
 WEIGHT = typer.Option(None, "--weight", metavar="COLUMN", help="Column of positive analytic weights.")
@@ -170,12 +170,20 @@ def write_files(out: Path, files: dict, option: str = "--out") -> None:
                          f"folder where you may write with {option}") from exc
 
 
+def cluster_value(cluster):
+    """A repeated ``--cluster`` as the Spec takes it: ``None``, one name, or a list of two."""
+    if cluster is None or isinstance(cluster, str):
+        return cluster
+    names = list(cluster)
+    return None if not names else names[0] if len(names) == 1 else names
+
+
 def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                       where=None, categorical=None):
     from sensiv.data import Spec
 
     return Spec(outcome=outcome, treatments=tuple(treatment), instruments=tuple(instrument),
-                controls=tuple(control or ()), cluster=cluster, weight=weight,
+                controls=tuple(control or ()), cluster=cluster_value(cluster), weight=weight,
                 constant=constant, where=where, categorical=tuple(categorical or ()))
 
 

@@ -33,7 +33,7 @@ def prior(
     categorical: Optional[list[str]] = CATEGORICAL,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
-    cluster: Optional[str] = CLUSTER,
+    cluster: Optional[list[str]] = CLUSTER,
     weight: Optional[str] = WEIGHT,
     level: float = LEVEL,
     small: bool = SMALL,

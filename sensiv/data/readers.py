@@ -27,7 +27,7 @@ import numpy as np
 
 from sensiv.core.errors import InputError
 from sensiv.data.source import Source, build_source
-from sensiv.data.spec import Spec, read_columns
+from sensiv.data.spec import Spec, cluster_columns, read_columns
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -304,7 +304,7 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
         return [first]
 
     def make_frames(text: list[str]) -> Callable[[], Iterator[pd.DataFrame]]:
-        labels = [*text, spec.cluster] if spec.cluster is not None else text
+        labels = [*text, *cluster_columns(spec)]
         return _reader(resolved, fmt, used, rows, labels)
 
     return build_source(spec, resolved.name, available, samples, make_frames, eager=False)

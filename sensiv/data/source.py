@@ -39,7 +39,7 @@ from sensiv.core.errors import IdentifierWarning, InputError
 from sensiv.data.convert import (as_float, check_scale, data_row, dtype_kind, identifier_notes,
                                  level_index, level_strings, missing_mask, scan_levels, Tally,
                                  text_controls)
-from sensiv.data.spec import check_columns, roles, row_filter, Spec
+from sensiv.data.spec import check_columns, cluster_columns, roles, row_filter, Spec
 from sensiv.data.where import check_kinds, filter_columns, keep_mask, Node
 
 if TYPE_CHECKING:
@@ -75,7 +75,8 @@ class Chunk:
     (Fortran-contiguous: each column is one contiguous block, as the moments read them), finite.
 
     ``weights`` (all > 0) and ``clusters`` (no missing) are row-aligned with ``values`` or
-    ``None``; ``n_dropped`` counts rows of this chunk dropped for a missing value and
+    ``None``; ``clusters`` has shape ``(rows,)`` for one cluster variable and ``(rows, 2)``
+    for two-way clustering; ``n_dropped`` counts rows of this chunk dropped for a missing value and
     ``n_filtered`` the rows removed before that by the row filter (``Spec.where``).  A chunk
     may have zero rows when all of its rows were dropped.
     """
@@ -140,7 +141,7 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
     drop = np.zeros(len(frame), dtype=bool)
     numeric: dict[str, np.ndarray] = {}
     for role, name in roles(spec):
-        if name in source._levels or name == spec.cluster:
+        if name in source._levels or name in cluster_columns(spec):
             mask = missing_mask(frame[name])
         else:
             numeric[name] = as_float(frame[name], role, name, where, first_row)
@@ -222,8 +223,11 @@ def _clean_chunk(frame: pd.DataFrame, source: Source, tally: Tally, n_filtered: 
     weights = clusters = None
     if spec.weight is not None:
         weights = np.ascontiguousarray(numeric[spec.weight][keep], dtype=np.float64)
-    if spec.cluster is not None:
-        clusters = frame[spec.cluster].to_numpy()[keep]
+    names = cluster_columns(spec)
+    if len(names) == 1:
+        clusters = frame[names[0]].to_numpy()[keep]
+    elif names:  # two-way: one column of labels per cluster variable
+        clusters = frame[list(names)].to_numpy()[keep]
     return Chunk(values, weights, clusters, len(frame) - n_kept, n_filtered)
 
 
@@ -288,7 +292,7 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
     layout = Layout(spec.outcome, spec.treatments, spec.instruments, tuple(controls),
                     tuple((name, levels[name][1:]) for name in text), spec.constant)
     clash = {name for name in layout.columns if layout.columns.count(name) > 1}
-    clash |= set(controls) & {spec.cluster, spec.weight} - {None}
+    clash |= set(controls) & ({*cluster_columns(spec), spec.weight} - {None})
     if clash:
         raise InputError(
             f"indicator column name(s) {sorted(clash)} in {description} clash with other "

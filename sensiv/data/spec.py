@@ -65,8 +65,10 @@ class Spec:
         Excluded instruments ``Z`` (at least as many as treatments).
     controls : sequence of str, default ()
         Exogenous controls ``W``; text columns become indicator columns.
-    cluster : str or None
-        Column of cluster labels for cluster-robust inference.
+    cluster : str, pair of str, or None
+        Column of cluster labels for cluster-robust inference; two names (a list or tuple)
+        ask for two-way clustering (Cameron, Gelbach & Miller 2011).  One name is kept as a
+        string, two as a tuple; :func:`cluster_columns` gives the names as a tuple always.
     weight : str or None
         Column of positive analytic weights.
     constant : bool, default True
@@ -90,7 +92,7 @@ class Spec:
     treatments: tuple[str, ...]
     instruments: tuple[str, ...]
     controls: tuple[str, ...] = ()
-    cluster: str | None = None
+    cluster: str | tuple[str, ...] | None = None
     weight: str | None = None
     constant: bool = True
     where: str | None = None
@@ -105,9 +107,9 @@ class Spec:
         object.__setattr__(self, "controls", self.controls + extra)
         if self.where is not None:
             parse_filter(self.where)  # a syntax error is the caller's mistake, raised now
-        for role in ("cluster", "weight"):
-            if getattr(self, role) is not None:
-                _check_name(getattr(self, role), role)
+        object.__setattr__(self, "cluster", _cluster_value(self.cluster))
+        if self.weight is not None:
+            _check_name(self.weight, "weight")
         if not isinstance(self.constant, (bool, np.bool_)):
             raise InputError(f"constant must be True or False; got {self.constant!r}")
         object.__setattr__(self, "constant", bool(self.constant))
@@ -133,14 +135,43 @@ class Spec:
             seen[name] = role
 
 
+def _cluster_value(value: Any) -> str | tuple[str, ...] | None:
+    """One cluster name as a string, two as a tuple (two-way), none as ``None``."""
+    if value is None or isinstance(value, str):
+        if value is not None:
+            _check_name(value, "cluster")
+        return value
+    names = _names(value, "cluster")
+    if len(names) > 2 or len(set(names)) < len(names):
+        raise InputError(f"cluster takes one column or two different columns (two-way "
+                         f"clustering); got {list(names)!r}: give at most two distinct names")
+    if not names:
+        return None
+    return names[0] if len(names) == 1 else names
+
+
+def cluster_columns(spec: Spec) -> tuple[str, ...]:
+    """The cluster columns of ``spec``: ``()``, one name, or two for two-way clustering."""
+    if spec.cluster is None:
+        return ()
+    return (spec.cluster,) if isinstance(spec.cluster, str) else tuple(spec.cluster)
+
+
+def cluster_label(spec_or_cluster: Any) -> str:
+    """The cluster columns for messages: ``'village'`` or ``'village' and 'year'``."""
+    value = getattr(spec_or_cluster, "cluster", spec_or_cluster)
+    names = (value,) if isinstance(value, str) else tuple(value or ())
+    return " and ".join(f"'{name}'" for name in names)
+
+
 def roles(spec: Spec) -> list[tuple[str, str]]:
     """``(role, column)`` pairs for every used column, in a fixed order."""
     pairs = [("outcome", spec.outcome)]
     pairs += [("treatment", name) for name in spec.treatments]
     pairs += [("instrument", name) for name in spec.instruments]
     pairs += [("control", name) for name in spec.controls]
-    pairs += [(role, getattr(spec, role)) for role in ("cluster", "weight")
-              if getattr(spec, role) is not None]
+    pairs += [("cluster", name) for name in cluster_columns(spec)]
+    pairs += [("weight", spec.weight)] if spec.weight is not None else []
     return pairs
 
 

@@ -35,11 +35,14 @@ from sensiv.data.where import filter_assumptions
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
 from sensiv.estimation.covariance import (check_clusters, coefficient_covariance,
-                                          few_clusters_note, normalise_weights, score_blocks)
+                                          combine_two_way, few_clusters_notes,
+                                          normalise_weights, psd_fix_note, score_blocks,
+                                          two_way_keys)
 from sensiv.estimation.design import CONSTANT, Design, build_design, check_design
 from sensiv.estimation.diagnostics import OverId, anderson_rubin_set, overid_test
 from sensiv.estimation.first_stage import FirstStage, first_stage_covariance, first_stages
 from sensiv.estimation.least_squares import LinearFit, solve_linear
+from sensiv.estimation.tf import TF, tf_interval
 from sensiv.estimation.moments import Moments, ScoreSums, accumulate, check_rows, score_sums
 
 SEType = Literal["classic", "robust", "cluster"]
@@ -107,6 +110,11 @@ class IVFit(Presentable):
     notes: tuple[str, ...] = field(default=())
     n_filtered: int = 0
     where: str | None = None
+    cluster: str | tuple[str, ...] | None = None
+    cluster_counts: tuple[int, ...] = ()
+    psd_fix: bool = False
+    bootstrap: object | None = None  # sensiv.estimation.wild_bootstrap.WildBootstrap
+    tf: TF | None = None  # one treatment and one instrument only
 
     @property
     def caution(self) -> str:
@@ -135,6 +143,11 @@ class IVFit(Presentable):
         se_words = {"classic": "homoskedastic errors (classic covariance)",
                     "robust": "heteroskedasticity-robust covariance (HC0)",
                     "cluster": f"errors correlated within clusters ({self.n_clusters} clusters)"}
+        if self.cluster_counts:
+            se_words["cluster"] = ("errors correlated within clusters of either of two "
+                                   "variables (two-way, Cameron, Gelbach & Miller 2011; "
+                                   f"{self.cluster_counts[0]} and {self.cluster_counts[1]} "
+                                   "clusters)")
         return [
             "exclusion restriction: the instruments move the outcome only through the "
             "treatment (assumed to hold exactly in this fit)",
@@ -142,7 +155,8 @@ class IVFit(Presentable):
             "the treatment (see the first-stage F)",
             "linear model with a constant effect of the treatment",
             se_words[self.se_type] + (", with small-sample corrections" if self.small else ""),
-        ] + filter_assumptions(self.where, self.n_filtered)
+        ] + filter_assumptions(self.where, self.n_filtered) + (
+            self.bootstrap.assumptions() if self.bootstrap is not None else [])
 
     def to_dict(self) -> dict:
         names = self.reported_names()
@@ -167,6 +181,7 @@ class IVFit(Presentable):
             "small": self.small,
             "confidence_level": self.confidence_level,
             "n_clusters": self.n_clusters,
+            **two_way_keys(self),
             "weighted": self.weighted,
             "notes": list(self.notes),
             "assumptions": self.assumptions(),
@@ -174,6 +189,10 @@ class IVFit(Presentable):
         }
         if self.ar_set is not None:
             out["ar_set"] = intervals_to_lists(self.ar_set)
+        if self.tf is not None:
+            out["tf"] = self.tf.to_dict()
+        if self.bootstrap is not None:
+            out["bootstrap"] = self.bootstrap.to_dict()
         return out
 
     def __str__(self) -> str:
@@ -244,11 +263,13 @@ def _coefficients(design: Design, fit: LinearFit, cov_star: np.ndarray) -> Coeff
 
 def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
                      confidence_level: float, small: bool, weighted: bool,
-                     where: str | None = None, data_notes: tuple[str, ...] = ()) -> IVFit:
+                     where: str | None = None, data_notes: tuple[str, ...] = (),
+                     cluster=None) -> IVFit:
     """Assemble the fit and its diagnostics from pass-1 pieces and pass-2 sums.
 
     ``where`` is the row filter the data went through (reported in the assumptions);
-    ``data_notes`` are the data layer's notes (:attr:`sensiv.data.Source.notes`).
+    ``data_notes`` are the data layer's notes (:attr:`sensiv.data.Source.notes`);
+    ``cluster`` the cluster column(s), named in the few-clusters notes of two-way clustering.
     """
     n_clusters = sums.n_clusters if sums is not None else None
     meats = sums.meats if sums is not None else {}
@@ -266,10 +287,11 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
     if len(d.treatments) == 1:
         ar = anderson_rubin_set(pieces, joint, coef, confidence_level, small)
     notes = list(data_notes)
-    few = few_clusters_note(n_clusters) if se == "cluster" else None
-    if few is not None:
+    for few in few_clusters_notes(sums, cluster) if se == "cluster" else []:
         notes.append(few)
         warnings.warn(few, FewClustersWarning, stacklevel=3)
+    if se == "cluster" and psd_fix_note(sums):
+        notes.append(psd_fix_note(sums))
     for fs in stages:
         strength = fs.effective_f if fs.effective_f is not None else fs.f
         label = "effective first-stage F" if fs.effective_f is not None else "first-stage F"
@@ -286,7 +308,12 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         n_dropped=pieces.moments.n_dropped, n_clusters=n_clusters, se_type=se, small=small,
         confidence_level=confidence_level, weighted=weighted, tsls=tsls, ols=ols,
         first_stages=stages, ar_set=ar, overid=overid_test(pieces, sums, se),
-        notes=tuple(notes), n_filtered=pieces.moments.n_filtered, where=where)
+        notes=tuple(notes), n_filtered=pieces.moments.n_filtered, where=where,
+        cluster=cluster if se == "cluster" else None,
+        cluster_counts=sums.cluster_counts if sums is not None and se == "cluster" else (),
+        psd_fix=bool(sums is not None and sums.psd_fix),
+        tf=tf_interval(tsls.value(d.treatments[0]), tsls.std_error(d.treatments[0]),
+                       stages[0].f, confidence_level) if d.z.shape[1] == 1 else None)
 
 
 def check_options(se: str, cluster: str | None, confidence_level: float) -> None:
@@ -332,9 +359,10 @@ def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
             score_sums(source.chunks(), moments.mean, blocks, cluster=(se == "cluster")),
             moments)
         check_clusters(sums, spec.cluster)
+        sums = combine_two_way(sums, small)
     result = fit_from_moments(pieces, sums, layout, se=se, confidence_level=confidence_level,
                               small=small, weighted=spec.weight is not None, where=spec.where,
-                              data_notes=getattr(source, "notes", ()))
+                              data_notes=getattr(source, "notes", ()), cluster=spec.cluster)
     return result, pieces, sums
 
 

@@ -190,11 +190,19 @@ class ScoreBlock:
 class ScoreSums:
     """Result of pass 2: one ``(size, size)`` matrix per requested block.
 
-    ``n_clusters`` is the number of distinct cluster labels (``None`` for robust sums).
+    ``n_clusters`` is the number of distinct cluster labels (``None`` for robust sums).  For
+    two-way clustering ``meats`` holds ``M_A + M_B − M_{A∩B}`` (Cameron, Gelbach & Miller
+    2011), ``n_clusters`` the smaller of ``G_A`` and ``G_B``, ``cluster_counts`` the three
+    ``(G_A, G_B, G_{A∩B})`` and ``parts`` the three one-way meats (sign, meats, groups) that
+    :func:`sensiv.estimation.covariance.combine_two_way` rescales and repairs; ``psd_fix``
+    says whether that repair clipped a negative eigenvalue.
     """
 
     meats: dict[str, np.ndarray]
     n_clusters: int | None
+    cluster_counts: tuple[int, ...] = ()
+    parts: tuple[tuple[int, dict[str, np.ndarray], int], ...] = ()
+    psd_fix: bool = False
 
 
 def _block_scores(block: ScoreBlock, a: np.ndarray, e: np.ndarray,
@@ -269,7 +277,8 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
         ``Moments.mean`` from pass 1, defining the augmented centred rows.
     blocks : sequence of ScoreBlock
     cluster : bool
-        Sum scores within clusters first (one-way clustering) when true.
+        Sum scores within clusters first when true: one-way when the chunks' ``clusters``
+        are one column, two-way (``A``, ``B`` and their pairs) when they are two.
 
     Returns
     -------
@@ -285,24 +294,80 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
                 meats[b.name] += g.T @ g
         return ScoreSums({k: 0.5 * (v + v.T) for k, v in meats.items()}, None)
 
-    index = _ClusterIndex()
-    sums = {b.name: np.zeros((0, b.size)) for b in blocks}
+    first = True
+    indices: list[_ClusterIndex] = []
+    sums: list[dict[str, np.ndarray]] = []
     for chunk in chunks:
         if chunk.clusters is None:
             raise ValueError("cluster sums requested but the chunks carry no cluster labels")
+        if first:
+            ways = 3 if np.ndim(chunk.clusters) == 2 else 1
+            indices = [_ClusterIndex() for _ in range(ways)]
+            sums = [{b.name: np.zeros((0, b.size)) for b in blocks} for _ in range(ways)]
+            first = False
+        coded = _encode_ways(indices, chunk.clusters)
+        mapped = maps.apply(chunk.values)
+        for (codes, n_groups), acc_by_block in zip(coded, sums):
+            for b, (a, e) in zip(blocks, mapped):
+                g = _block_scores(b, a, e, chunk.weights)
+                acc = acc_by_block[b.name]
+                if acc.shape[0] < n_groups:
+                    acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], b.size))])
+                for j in range(b.size):
+                    acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
+                acc_by_block[b.name] = acc
+    if not sums:  # no chunk at all
+        return ScoreSums(meats, 0)
+    outer = [{b.name: acc[b.name].T @ acc[b.name] for b in blocks} for acc in sums]
+    if len(outer) == 1:
+        return ScoreSums(outer[0], len(indices[0]))
+    counts = tuple(len(index) for index in indices)
+    combined = {b.name: outer[0][b.name] + outer[1][b.name] - outer[2][b.name] for b in blocks}
+    parts = tuple(zip((1, 1, -1), outer, counts))
+    return ScoreSums(combined, min(counts[:2]), counts, parts)
+
+
+def _encode_ways(indices: list[_ClusterIndex], labels: np.ndarray) -> list[tuple[np.ndarray, int]]:
+    """Codes of one chunk for each way: one-way, or ``A``, ``B`` and the pair ``A∩B``."""
+    if len(indices) == 1:
+        return [indices[0].encode(labels)]
+    a, n_a = indices[0].encode(labels[:, 0])
+    b, n_b = indices[1].encode(labels[:, 1])
+    pair = indices[2].encode(a * np.int64(2**32) + b)
+    return [(a, n_a), (b, n_b), pair]
+
+
+def cluster_sums(chunks: Iterable, mean: np.ndarray, block: ScoreBlock) -> np.ndarray:
+    """Per-cluster sums ``s_g = Σ_{i∈g} wᵢ vec(aᵢ ⊗ eᵢ)`` of one block, shape ``(G, size)``.
+
+    Rows of the result follow the clusters' order of first appearance; the chunks must carry
+    one column of cluster labels.  The wild cluster bootstrap
+    (:mod:`sensiv.estimation.wild_bootstrap`) needs these sums themselves, not only
+    ``Σ_g s_g s_g'``."""
+    maps = _RowMaps([block], mean)
+    index = _ClusterIndex()
+    acc = np.zeros((0, block.size))
+    for chunk in chunks:
         codes, n_groups = index.encode(chunk.clusters)
-        for b, (a, e) in zip(blocks, maps.apply(chunk.values)):
-            g = _block_scores(b, a, e, chunk.weights)
-            acc = sums[b.name]
-            if acc.shape[0] < n_groups:
-                acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], b.size))])
-            for j in range(b.size):
-                acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
-            sums[b.name] = acc
-    for b in blocks:
-        s = sums[b.name]
-        meats[b.name] = s.T @ s
-    return ScoreSums(meats, len(index))
+        ((a, e),) = maps.apply(chunk.values)
+        g = _block_scores(block, a, e, chunk.weights)
+        if acc.shape[0] < n_groups:
+            acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], block.size))])
+        for j in range(block.size):
+            acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
+    return acc
+
+
+def count_clusters(chunks: Iterable) -> tuple[int, ...]:
+    """Distinct cluster labels per cluster variable (one, or two for two-way) in ``chunks``."""
+    indices: list[_ClusterIndex] = []
+    for chunk in chunks:
+        labels = chunk.clusters
+        columns = [labels] if np.ndim(labels) == 1 else [labels[:, j] for j in range(2)]
+        indices = indices or [_ClusterIndex() for _ in columns]
+        for index, column in zip(indices, columns):
+            index.encode(column)
+    return tuple(len(index) for index in indices)
 
 
 def check_rows(moments: Moments, n_parameters: int) -> None:

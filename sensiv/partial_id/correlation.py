@@ -45,16 +45,18 @@ a hundred times faster than a cvxpy solve; the tests check it against the progra
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
 
-from sensiv.core.errors import InputError
+from sensiv.core.errors import FewClustersWarning, InputError
 from sensiv.core.limits import MAX_POINTS, MAX_REPS, check_count, check_seed
 from sensiv.core.results import Interval, format_number
 from sensiv.data import Layout, Spec, load
+from sensiv.estimation.covariance import count_notes
 from sensiv.estimation.iv import prepare
 from sensiv.estimation.moments import Moments, accumulate
 from sensiv.partial_id.correlation_bootstrap import bootstrap, resample_rows
@@ -216,6 +218,10 @@ def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepare
     """Load and check the data, fit 2SLS and OLS, and take the partial correlations."""
     source = data if hasattr(data, "chunks") else load(data, spec, chunk_rows=chunk_rows)
     check_one_treatment(source.spec)
+    if not isinstance(source.spec.cluster, (str, type(None))):
+        raise InputError(f"corrbound resamples whole clusters of one variable; got two cluster "
+                         f"variables {list(source.spec.cluster)}: give one --cluster (two-way "
+                         "clustering is available in fit, sweep, prior and calibrate)")
     layout = source.layout
     chunks = list(source.chunks()) if keep_rows else None
     moments = accumulate(chunks if chunks is not None else source.chunks(), layout.columns)
@@ -258,6 +264,12 @@ def _inference(prepared: _Prepared, signs: Sequence[int], max_ratio: float,
         if seed is None:
             seed = int(np.random.SeedSequence().generate_state(1)[0])
         rows = resample_rows(prepared.chunks, prepared.spec.cluster)
+        if rows[2] is not None:
+            for note in count_notes((int(rows[2].max()) + 1,), prepared.spec.cluster):
+                notes.append(note.replace("cluster-robust standard errors are then biased "
+                                          "downwards", "a bootstrap of whole clusters is "
+                                          "then unreliable"))
+                warnings.warn(notes[-1], FewClustersWarning, stacklevel=3)
         boot = bootstrap(rows, prepared.layout, signs, max_ratio, hull, int(reps), int(seed),
                          confidence_level, progress)
         if boot.n_failed:

@@ -6,6 +6,7 @@ from __future__ import annotations
 from sensiv.core.results import format_number
 from sensiv.estimation import iv
 from sensiv.partial_id.discrete_data import plain_number
+from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.writer import to_json
 from sensiv.present.tables import markdown_table
 from sensiv.present.text_bias_aware import bias_aware_cells
@@ -31,7 +32,7 @@ def fit_markdown(fit) -> str:
         f"{f'; {fit.n_filtered} filtered out by the row filter {fit.where!r}' if fit.where else ''}"
         f"). Covariance: {fit.se_type}"
         f"{' with small-sample corrections' if fit.small else ''}"
-        f"{f', {fit.n_clusters} clusters' if fit.n_clusters is not None else ''}.\n",
+        f"{f', {cluster_count_text(fit)} clusters' if fit.n_clusters is not None else ''}.\n",
         markdown_table(["coefficient", "2SLS", "se", f"{pct} CI", "OLS", "OLS se"], rows),
         "\n## First stage\n",
         markdown_table(

@@ -7,6 +7,7 @@ from __future__ import annotations
 from sensiv.core.results import Interval, format_number
 from sensiv.estimation import iv
 from sensiv.partial_id import correlation_results, discrete_results
+from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.tables import NONE_TEXT, TableRow, end_text
 from sensiv.sensitivity import bounds, calibrate
 
@@ -23,7 +24,7 @@ def _ranges_text(names, boxes) -> str:
 def _covariance_text(fit) -> str:
     text = fit.se_type + (", small-sample" if fit.small else "")
     if fit.n_clusters is not None:
-        text += f", {fit.n_clusters} clusters"
+        text += f", {cluster_count_text(fit)} clusters"
     return text
 
 

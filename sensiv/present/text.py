@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
+from sensiv.present.text_clusters import cluster_count_text
+from sensiv.present.text_fit_extras import bootstrap_lines, tf_lines
 from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
 from sensiv.sensitivity import bounds
 
@@ -29,7 +31,7 @@ def fit_summary(fit) -> str:
         f"(instruments: {', '.join(fit.instruments)})",
         f"n = {fit.n} (dropped {fit.n_dropped} with missing values"
         + (f"; {fit.n_filtered} filtered out by {fit.where!r}" if fit.where else "") + ")"
-        + (f", clusters = {fit.n_clusters}" if fit.n_clusters is not None else "")
+        + (f", clusters = {cluster_count_text(fit)}" if fit.n_clusters is not None else "")
         + f", covariance: {se_label}" + (", weighted" if fit.weighted else ""),
         "",
     ]
@@ -55,12 +57,14 @@ def fit_summary(fit) -> str:
     if fit.ar_set is not None:
         pieces = " U ".join(str(p) for p in fit.ar_set) if fit.ar_set else "empty"
         lines += ["", f"Anderson-Rubin {pct} set for {fit.treatments[0]}: {pieces}"]
+    lines += tf_lines(fit)
     if fit.overid is not None:
         o = fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} "
                      f"on {o.df} df, p = {format_number(o.p_value, 3)}")
     else:
         lines.append("Overidentification: not testable (exactly identified)")
+    lines += bootstrap_lines(fit)
     for note in fit.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in fit.assumptions()]

@@ -53,7 +53,9 @@ class KeyLines:
         return InputError(f"{self.where(key, scope)}: {message}")
 
 
-def _type_name(kind: type) -> str:
+def _type_name(kind) -> str:
+    if isinstance(kind, tuple):
+        return " or ".join(_type_name(k) for k in kind)
     return {str: "a string", int: "an integer", float: "a number", bool: "true or false",
             list: "a list", dict: "a table"}[kind]
 
@@ -118,6 +120,9 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
         for key in ("treatments", "instruments", "controls", "categorical"):
             if key in data:
                 data = {**data, key: _strings(data[key], key, f"{where}.data", lines)}
+        if isinstance(data.get("cluster"), list):
+            data = {**data, "cluster": _strings(data["cluster"], "cluster", f"{where}.data",
+                                                lines)}
         if "where" in data:
             try:
                 parse_filter(data["where"])

@@ -18,7 +18,7 @@ the recipe file)::
     treatments = ["irrigation_hours"]
     instruments = ["height_m"]
     controls = ["plot_ha", "soil"] # optional
-    cluster = "village"            # optional
+    cluster = "village"            # optional; two-way: cluster = ["village", "year"]
     weight = "w"                   # optional
     constant = true                # optional
     where = "year >= 2000"         # optional: keep only the rows matching this row filter
@@ -46,14 +46,15 @@ from typing import Any
 FORMATS = ("png", "pdf", "svg")
 SE_CHOICES = ("classic", "robust", "cluster")
 
-# Allowed keys and their types per table; ``float`` accepts TOML integers too.  The keys of
-# each analysis kind are its registry entry's ``options``.
+# Allowed keys and their types per table; ``float`` accepts TOML integers too; a tuple of
+# types accepts any of them (``cluster``: one name, or a list of two for two-way
+# clustering).  The keys of each analysis kind are its registry entry's ``options``.
 TOP_KEYS = {"title": str, "seed": int, "formats": list, "study": list, "name": str,
             "description": str, "data": dict, "inference": dict, "analysis": list}
 STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
               "analysis": list}
 DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
-             "controls": list, "cluster": str, "weight": str, "constant": bool,
+             "controls": list, "cluster": (str, list), "weight": str, "constant": bool,
              "where": str, "categorical": list}
 INFERENCE_KEYS = {"se": str, "level": float, "small": bool}
 COMMON_KEYS = {"kind": str, "label": str, "seed": int}

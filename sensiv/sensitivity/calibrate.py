@@ -35,12 +35,13 @@ import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
-from sensiv.core.errors import InputError
+from sensiv.core.errors import FewClustersWarning, InputError
 from sensiv.core.results import Presentable, describe, format_number, json_number
 from sensiv.data import read_table
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
-from sensiv.estimation.moments import accumulate
+from sensiv.estimation.covariance import count_notes
+from sensiv.estimation.moments import accumulate, count_clusters
 from sensiv.sensitivity.yardsticks import (Yardstick, yardstick_groups, leave_one_out_yardsticks,
                                            instrument_coefficients)
 from sensiv.sensitivity.direct_sets import Scale, scale_from_moments
@@ -231,6 +232,10 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     scale = scale_from_moments(moments, layout.outcome, layout.instruments, full[:, k_x])
     yardsticks = leave_one_out_yardsticks(moments, layout, named, full, beta, scale)
     notes = list(getattr(source, "notes", ()))
+    if se == "cluster":  # the zero-first-stage covariance is clustered
+        for note in count_notes(count_clusters(source.chunks()), spec.cluster):
+            notes.append(note)
+            warnings.warn(note, FewClustersWarning, stacklevel=2)
     if not named:
         notes.append("no controls, so no leave-one-out yardsticks: add --control (or --group) to "
                      "compare the direct effect with an observed confounder")

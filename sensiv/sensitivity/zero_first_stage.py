@@ -16,8 +16,9 @@ import numpy as np
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, json_number
 from sensiv.data import from_frame
+from sensiv.data.spec import cluster_columns
 from sensiv.estimation import distributions as dist
-from sensiv.estimation.covariance import check_clusters, normalise_weights
+from sensiv.estimation.covariance import check_clusters, combine_two_way, normalise_weights
 from sensiv.estimation.design import CONSTANT, Design
 from sensiv.estimation.first_stage import first_stage_covariance
 from sensiv.estimation import iv, linalg
@@ -158,7 +159,8 @@ def subgroup_mask(frame, column: str) -> tuple[np.ndarray, int]:
 def check_role(spec, column: str) -> None:
     """InputError when the subgroup marker ``column`` already plays a role in ``spec``."""
     roles = {spec.outcome: "outcome", **{t: "treatment" for t in spec.treatments},
-             **{z: "instrument" for z in spec.instruments}, spec.cluster: "cluster",
+             **{z: "instrument" for z in spec.instruments},
+             **{c: "cluster" for c in cluster_columns(spec)},
              spec.weight: "weight"}
     if column in roles:
         raise InputError(f"--no-first-stage-group column {column!r} is the {roles[column]}; "
@@ -168,7 +170,7 @@ def check_role(spec, column: str) -> None:
 def _single_level_controls(sub, spec) -> list[str]:
     """Text controls with fewer than two levels among the subgroup's complete rows."""
     used = [spec.outcome, *spec.treatments, *spec.instruments, *spec.controls,
-            *(c for c in (spec.cluster, spec.weight) if c is not None)]
+            *cluster_columns(spec), *([spec.weight] if spec.weight is not None else [])]
     block = sub[used]
     keep = block.notna().all(axis=1).to_numpy().copy()
     for name in used:
@@ -295,6 +297,7 @@ def _subgroup_covariance(source, spec, moments: Moments, design: Design, gram: n
             check_clusters(sums, spec.cluster)
         except InputError as exc:
             raise InputError(f"in {where}: {exc}") from exc
+        sums = combine_two_way(sums, small)
     # Only the first-stage fields of Pieces are read by first_stage_covariance; the
     # subgroup's 2SLS (tsls, ols) is deliberately not formed.
     pieces = iv.Pieces(moments, design, gram, None, None, zt, residuals)
