@@ -85,6 +85,8 @@ class Chunk:
     clusters: np.ndarray | None
     n_dropped: int
     n_filtered: int = 0
+    groups: tuple[np.ndarray, ...] | None = None
+    """Labels of each absorbed fixed effect (``Spec.absorb``), row-aligned, or ``None``."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -140,7 +142,7 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
     drop = np.zeros(len(frame), dtype=bool)
     numeric: dict[str, np.ndarray] = {}
     for role, name in roles(spec):
-        if name in source._levels or name == spec.cluster:
+        if name in source._levels or name == spec.cluster or name in spec.absorb:
             mask = missing_mask(frame[name])
         else:
             numeric[name] = as_float(frame[name], role, name, where, first_row)
@@ -224,7 +226,10 @@ def _clean_chunk(frame: pd.DataFrame, source: Source, tally: Tally, n_filtered: 
         weights = np.ascontiguousarray(numeric[spec.weight][keep], dtype=np.float64)
     if spec.cluster is not None:
         clusters = frame[spec.cluster].to_numpy()[keep]
-    return Chunk(values, weights, clusters, len(frame) - n_kept, n_filtered)
+    groups = None
+    if spec.absorb:
+        groups = tuple(frame[name].to_numpy()[keep] for name in spec.absorb)
+    return Chunk(values, weights, clusters, len(frame) - n_kept, n_filtered, groups)
 
 
 def _filter_kinds(spec: Spec, samples: Sequence[pd.DataFrame], text: list[str],
