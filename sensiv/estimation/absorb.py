@@ -149,6 +149,11 @@ def demean_once(column: np.ndarray, codes: np.ndarray, totals: np.ndarray,
     return column - means[codes]
 
 
+def _dot(a: np.ndarray, b: np.ndarray) -> float:
+    # einsum, not BLAS: a threaded BLAS dot of one long vector is slow on a busy machine.
+    return float(np.einsum("i,i->", a, b))
+
+
 def _sweep(column, groups, weights):
     for codes, totals in groups:
         column = demean_once(column, codes, totals, weights)
@@ -165,7 +170,7 @@ def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndar
     step over the norm of the column demeaned by the first fixed effect).
     """
     x = _sweep(column - column[0], groups, weights)
-    scale = float(np.linalg.norm(x))
+    scale = np.sqrt(_dot(x, x))
     if scale == 0.0:
         return x, 1, 0.0
     change = np.inf
@@ -174,10 +179,11 @@ def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndar
         ffx = _sweep(fx, groups, weights)
         d1 = ffx - fx
         d2 = d1 - (fx - x)
-        denom = float(d2 @ d2)
+        denom = _dot(d2, d2)
         # Irons & Tuck (1969): extrapolate along the last difference; plain sweep if degenerate.
-        new = ffx - (float(d1 @ d2) / denom) * d1 if denom > 0 else ffx
-        change = float(np.linalg.norm(new - x)) / scale
+        new = ffx - (_dot(d1, d2) / denom) * d1 if denom > 0 else ffx
+        step_change = new - x
+        change = np.sqrt(_dot(step_change, step_change)) / scale
         x = new
         if change <= tolerance:
             return x, step, change
@@ -207,9 +213,11 @@ def demean_columns(values: np.ndarray, codes: Sequence[np.ndarray], levels: Sequ
 
 def spread(column: np.ndarray, weights: np.ndarray | None) -> float:
     """Weighted root sum of squares of ``column`` around its weighted mean."""
-    w = np.ones_like(column) if weights is None else weights
-    centred = column - (w @ column) / w.sum()
-    return float(np.sqrt(w @ centred**2))
+    if weights is None:
+        centred = column - column.mean()
+        return float(np.sqrt(_dot(centred, centred)))
+    centred = column - _dot(weights, column) / weights.sum()
+    return float(np.sqrt(_dot(weights * centred, centred)))
 
 
 def absorbed_by(column: np.ndarray, codes: Sequence[np.ndarray], levels: Sequence[int],
@@ -229,9 +237,8 @@ def components(codes_a: np.ndarray, n_a: int, codes_b: np.ndarray, n_b: int) -> 
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import connected_components
 
-    pairs = np.unique(codes_a * n_b + codes_b)
-    rows, cols = pairs // n_b, n_a + pairs % n_b
-    graph = coo_matrix((np.ones(pairs.size), (rows, cols)), shape=(n_a + n_b, n_a + n_b))
+    graph = coo_matrix((np.ones(codes_a.size), (codes_a, n_a + codes_b)),
+                       shape=(n_a + n_b, n_a + n_b))
     count, _ = connected_components(graph, directed=False)
     return int(count)
 
@@ -248,4 +255,8 @@ def counted_levels(codes: Sequence[np.ndarray], levels: Sequence[int]) -> tuple[
 def nested_in(codes: np.ndarray, n_levels: int, cluster_codes: np.ndarray,
               n_clusters: int) -> bool:
     """Whether every level of a fixed effect lies within a single cluster."""
-    return int(np.unique(codes * n_clusters + cluster_codes).size) == n_levels
+    low = np.full(n_levels, n_clusters)
+    high = np.full(n_levels, -1)
+    np.minimum.at(low, codes, cluster_codes)
+    np.maximum.at(high, codes, cluster_codes)
+    return bool(np.all(low == high))

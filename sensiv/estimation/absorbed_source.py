@@ -68,14 +68,18 @@ class AbsorbedSource:
                                  f"{self.description} has a level that was absent in the "
                                  "first pass; the data changed between passes: reload it")
             keep = s.counts[codes] > 1
-            codes = codes[keep]
-            values = chunk.values[keep][:, s.keep_columns]
-            values -= s.shift
-            values -= s.offset[codes]
-            yield Chunk(np.asfortranarray(values),
-                        None if chunk.weights is None else chunk.weights[keep],
-                        None if chunk.clusters is None else chunk.clusters[keep],
-                        chunk.n_dropped, chunk.n_filtered, None)
+            every = bool(keep.all())
+            if not every:
+                codes = codes[keep]
+            values = np.empty((codes.size, s.keep_columns.size), order="F")
+            for out, j in enumerate(s.keep_columns):
+                column = chunk.values[:, j] if every else chunk.values[keep, j]
+                np.subtract(column, s.shift[out], out=values[:, out])
+                values[:, out] -= s.offset[:, out][codes]
+            yield Chunk(values,
+                        chunk.weights if every or chunk.weights is None else chunk.weights[keep],
+                        chunk.clusters if every or chunk.clusters is None
+                        else chunk.clusters[keep], chunk.n_dropped, chunk.n_filtered, None)
 
 
 # ----------------------------------------------------------------------------- checks
@@ -160,7 +164,10 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
                          f"effect ({', '.join(spec.absorb)}); nothing is left to fit")
     codes, levels = zip(*(fe.recode(c) for c in codes))
     total = [fe.spread(values[:, j], weights) for j in range(values.shape[1])]
-    original = values.copy() if len(codes) > 1 else None
+    # Only the outcome, treatments and instruments are kept undemeaned (to name the fixed
+    # effect that absorbs one of them); controls are dropped whichever absorbs them.
+    n_core = 1 + len(layout.treatments) + len(layout.instruments)
+    original = values[:, :n_core].copy() if len(codes) > 1 else None
     values, steps, achieved = fe.demean_columns(values, codes, levels, weights, tolerance,
                                                 max_iterations)
     if len(codes) > 1 and achieved > tolerance:
@@ -202,12 +209,27 @@ def _grow(array: np.ndarray | None, rows: int, fill: float, width: int | None = 
     return block if array is None else np.concatenate([array, block])
 
 
-def _first_pass(source) -> tuple:
-    """Per-level counts, weight sums, weighted sums, minima and maxima of every column."""
+def _codes(index, labels: np.ndarray):
+    """Codes of ``labels`` in ``index`` (a pandas Index grown with the new labels)."""
     import pandas as pd
 
-    labels = pd.Index([])
+    local, uniques = pd.factorize(labels, sort=False)
+    found = np.asarray(index.get_indexer(uniques))
+    new = found < 0
+    if new.any():
+        found[new] = len(index) + np.arange(int(new.sum()))
+        index = index.append(pd.Index(uniques[new]))
+    return found[local], index
+
+
+def _first_pass(source) -> tuple:
+    """Per-level counts, weight sums, weighted sums, minima and maxima of every column, and
+    the smallest and largest cluster code met in each level (equal when nested)."""
+    import pandas as pd
+
+    labels, cluster_labels = pd.Index([]), pd.Index([])
     counts = totals = sums = lows = highs = None
+    c_low = c_high = None
     shift = None
     n_dropped = n_filtered = 0
     for chunk in source.chunks():
@@ -215,19 +237,18 @@ def _first_pass(source) -> tuple:
             continue
         if shift is None:
             shift = chunk.values[0].copy()
-        local, uniques = pd.factorize(chunk.groups[0], sort=False)
-        found = np.asarray(labels.get_indexer(uniques))
-        new = found < 0
-        if new.any():
-            found[new] = len(labels) + np.arange(int(new.sum()))
-            labels = labels.append(pd.Index(uniques[new]))
-        codes = found[local]
+        codes, labels = _codes(labels, chunk.groups[0])
         n, p = len(labels), chunk.values.shape[1]
         if counts is None or counts.size < n:
             grow = n - (0 if counts is None else counts.size)
             counts, totals = _grow(counts, grow, 0), _grow(totals, grow, 0.0)
             sums, lows = _grow(sums, grow, 0.0, p), _grow(lows, grow, np.inf, p)
             highs = _grow(highs, grow, -np.inf, p)
+            c_low, c_high = _grow(c_low, grow, np.inf), _grow(c_high, grow, -np.inf)
+        if chunk.clusters is not None:
+            cluster_codes, cluster_labels = _codes(cluster_labels, chunk.clusters)
+            np.minimum.at(c_low, codes, cluster_codes)
+            np.maximum.at(c_high, codes, cluster_codes)
         counts += np.bincount(codes, minlength=n)
         totals += fe.group_weights(codes, n, chunk.weights)
         for j in range(p):
@@ -236,12 +257,13 @@ def _first_pass(source) -> tuple:
             sums[:, j] += np.bincount(codes, weights=w_col, minlength=n)
             np.minimum.at(lows[:, j], codes, column)
             np.maximum.at(highs[:, j], codes, column)
-    return labels, counts, totals, sums, lows, highs, shift
+    nested = None if c_low is None or not len(cluster_labels) else c_low == c_high
+    return labels, counts, totals, sums, lows, highs, shift, nested
 
 
 def _streamed(source) -> AbsorbedSource:
     spec, layout = source.spec, source.layout
-    labels, counts, totals, sums, lows, highs, shift = _first_pass(source)
+    labels, counts, totals, sums, lows, highs, shift, nested_levels = _first_pass(source)
     kept = counts > 1
     n_singletons = int(counts[~kept].sum())
     if not kept.any():
@@ -250,32 +272,14 @@ def _streamed(source) -> AbsorbedSource:
     flat = np.all(highs[kept] - lows[kept] == 0.0, axis=0)
     absorbed = [j for j in range(flat.size) if flat[j]]
     keep_cols, new_layout, dropped, notes = _apply_drops(source, absorbed, layout, spec.absorb)
-    offset = (sums / np.where(totals > 0, totals, 1.0)[:, None])[:, keep_cols]
+    offset = np.asfortranarray((sums / np.where(totals > 0, totals, 1.0)[:, None])[:, keep_cols])
     levels = int(kept.sum())
-    nested = (False,)
-    if spec.cluster is not None:
-        nested = (_streamed_nested(source, labels, kept),)
+    nested = (nested_levels is not None and bool(np.all(nested_levels[kept])),)
     absorption = fe.Absorption(spec.absorb, (levels,), (levels - 1,), nested, n_singletons, 1,
                                0.0, fe.DEFAULT_TOLERANCE, dropped, streamed=True)
     stream = Stream(labels, counts, offset, shift[keep_cols], keep_cols)
     return AbsorbedSource(spec, new_layout, source.description, absorption,
                           tuple(getattr(source, "notes", ())) + notes, None, source, stream)
-
-
-def _streamed_nested(source, labels, kept: np.ndarray) -> bool:
-    """Whether each kept level meets a single cluster label (one more cheap pass)."""
-    import pandas as pd
-
-    pairs = set()
-    for chunk in source.chunks():
-        if chunk.values.shape[0] == 0:
-            continue
-        codes = np.asarray(labels.get_indexer(chunk.groups[0]))
-        frame = pd.DataFrame({"g": codes, "c": chunk.clusters}).drop_duplicates()
-        pairs.update(zip(frame["g"].tolist(), frame["c"].tolist()))
-    per_level = np.bincount(np.fromiter((g for g, _ in pairs), dtype=np.int64),
-                            minlength=kept.size)
-    return bool(np.all(per_level[kept] == 1))
 
 
 def absorb_source(source, *, tolerance: float = fe.DEFAULT_TOLERANCE,
