@@ -186,8 +186,11 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     keep_cols, new_layout, dropped, notes = _apply_drops(source, absorbed, layout, spec.absorb)
     if absorbed:
         values = np.asfortranarray(values[:, keep_cols])
+    counted = fe.counted_levels(codes, levels)
+    # Without a constant in the model the first fixed effect's levels all count.
+    counted = (counted[0] + int(not layout.constant), *counted[1:])
     absorption = fe.Absorption(
-        spec.absorb, tuple(int(n) for n in levels), fe.counted_levels(codes, levels),
+        spec.absorb, tuple(int(n) for n in levels), counted,
         _nested(codes, levels, clusters), n_singletons, steps, achieved, tolerance, dropped,
         streamed=False)
     chunk = Chunk(values, weights, clusters, n_dropped, n_filtered, None)
@@ -275,7 +278,8 @@ def _streamed(source) -> AbsorbedSource:
     offset = np.asfortranarray((sums / np.where(totals > 0, totals, 1.0)[:, None])[:, keep_cols])
     levels = int(kept.sum())
     nested = (nested_levels is not None and bool(np.all(nested_levels[kept])),)
-    absorption = fe.Absorption(spec.absorb, (levels,), (levels - 1,), nested, n_singletons, 1,
+    counted = (levels - int(layout.constant),)  # the constant, if any, takes one level
+    absorption = fe.Absorption(spec.absorb, (levels,), counted, nested, n_singletons, 1,
                                0.0, fe.DEFAULT_TOLERANCE, dropped, streamed=True)
     stream = Stream(labels, counts, offset, shift[keep_cols], keep_cols)
     return AbsorbedSource(spec, new_layout, source.description, absorption,

@@ -10,7 +10,7 @@ Measurements (each in a fresh child process; this parent imports only the standa
 so that a child's peak RSS is its own — Linux carries the peak RSS of the forking process
 across ``exec``):
 
-1. ``sensiv sweep DATA --absorb fe1 --absorb fe2 --cluster cl --points 1000`` as a whole
+1. ``sensiv sweep DATA --absorb fe1 --absorb fe2 --cluster cl --small --points 1000`` as a whole
    process (start-up, reading, absorbing, fitting, the 1,000-point curve, JSON out) against
    pyfixest's ``feols("y ~ w1+…+w5 | fe1 + fe2 | x ~ z", vcov={"CRV1": "cl"})`` as a whole
    process (start-up, ``pd.read_parquet``, fit).  Target: ratio ≤ 1.0.
@@ -198,7 +198,8 @@ def main() -> None:
                       "--treatment", "x", "--instrument", "z",
                       *[a for c in CONTROLS for a in ("--control", c)],
                       "--absorb", "fe1", "--absorb", "fe2", "--cluster", "cl",
-                      "--points", str(options.points), "--direct=-0.01:0.01", "--json"]
+                      "--points", str(options.points), "--direct=-0.01:0.01", "--small",
+                      "--json"]
         sweep_s, sweep_kb, sweep_out = measure(sweep_args)
         ref_s, ref_kb, ref_out = measure(me + ["pyfixest", str(data)])
         document, ref = json.loads(sweep_out), json.loads(ref_out)

@@ -133,3 +133,14 @@ def test_cluster_on_the_absorbed_column_is_allowed(data):
                     "--json")
     assert result.exit_code == 0, result.stderr
     assert json.loads(result.stdout)["n_clusters"] == 120
+
+
+def test_readme_absorb_example():
+    # the README's --absorb example runs as written (from the repository root)
+    root = Path(__file__).resolve().parents[2]
+    result = invoke("sweep", root / "examples" / "irrigation.csv", "--outcome", "maize_yield",
+                    "--treatment", "irrigation_hours", "--instrument", "height_m", "--control",
+                    "plot_ha", "--control", "soil", "--absorb", "village", "--cluster",
+                    "village", "--small", "--direct=-0.005:0.005")
+    assert result.exit_code == 0, result.stderr
+    assert "fixed effects of 'village' (60 levels) absorbed" in result.stdout

@@ -244,3 +244,30 @@ def test_nested_cluster_matches_pyfixest():
     got = quiet_fit(frame, Spec("y", ["x"], ["z"], controls=["w1"],
                                 absorb=["f1", "f2", "f3"], cluster="g"), small=True)
     assert got.tsls.std_error("x") == pytest.approx(ref.se()["x"], rel=1e-6)
+
+
+def test_without_constant_the_count_is_the_same_model():
+    # reference library: linearmodels with every dummy of f1 and no constant (the same column
+    # space as a constant and all but one dummy); debiased counts all of them
+    frame = simulated()
+    dummies = pd.get_dummies(frame["f1"]).astype(float)
+    ref = IV2SLS(frame["y"], pd.concat([frame[["w1"]], dummies], axis=1), frame[["x"]],
+                 frame[["z"]]).fit(cov_type="robust", debiased=True)
+    got = quiet_fit(frame, spec_of(("f1",), constant=False), small=True)
+    assert got.tsls.std_error("x") == pytest.approx(ref.std_errors["x"], rel=REL)
+
+
+def test_missing_fixed_effect_label_drops_the_row():
+    frame = simulated()
+    frame["f1"] = frame["f1"].astype(object)
+    frame.loc[[3, 8], "f1"] = None
+    out = quiet_fit(frame, spec_of(("f1",)))
+    assert out.n_dropped == 2 and out.n == len(frame) - 2
+
+
+def test_non_convergence_is_a_warning_with_the_numbers():
+    from sensiv.core.errors import AbsorbConvergenceWarning
+
+    source = from_frame(simulated(), spec_of(("f1", "f2")))
+    with pytest.warns(AbsorbConvergenceWarning, match=r"stopped after 1 steps"):
+        absorb_source(source, tolerance=1e-15, max_iterations=1)
