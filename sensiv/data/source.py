@@ -110,6 +110,11 @@ class Source:
     """Conditions found while reading the data that a report should carry (e.g. a control
     that looks like an identifier)."""
 
+    @property
+    def in_memory(self) -> bool:
+        """Whether the validated chunks are held in memory (a frame) rather than re-read."""
+        return self._cache is not None
+
     def keep(self, frame: pd.DataFrame) -> np.ndarray:
         """Mask of the rows of a raw frame that the row filter keeps (all without one)."""
         if self._filter is None:

@@ -297,6 +297,6 @@ def absorb_source(source, *, tolerance: float = fe.DEFAULT_TOLERANCE,
         return source
     if not (isinstance(tolerance, float) and 0.0 < tolerance < 1.0):
         raise InputError(f"absorb tolerance {tolerance!r} must be a number in (0, 1), e.g. 1e-10")
-    if len(source.spec.absorb) == 1 and source._cache is None:
+    if len(source.spec.absorb) == 1 and not getattr(source, "in_memory", True):
         return _streamed(source)
     return _in_memory(source, tolerance, max_iterations)

@@ -20,7 +20,7 @@ from sensiv.sensitivity import bounds, prior
 REL = 1e-8
 
 
-def simulated(n: int = 1200, seed: int = 4) -> pd.DataFrame:
+def simulated(n: int = 700, seed: int = 4) -> pd.DataFrame:
     rng = np.random.default_rng(seed)
     f1, f2 = rng.integers(0, 40, n), rng.integers(0, 9, n)
     a = rng.normal(size=40)[f1] + rng.normal(size=9)[f2]
