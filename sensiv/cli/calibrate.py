@@ -13,6 +13,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.options import ABSORB
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
@@ -37,6 +38,7 @@ def calibrate(
     instrument: list[str] = INSTRUMENT,
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
+    absorb: Optional[list[str]] = ABSORB,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[list[str]] = CLUSTER,
@@ -61,7 +63,7 @@ def calibrate(
     chosen = figure_formats(formats)
 
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
-                             where, categorical)
+                             where, categorical, absorb)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     groups = calibration.parse_groups(group or [])
     result = calibration.calibrate(data, spec, groups=groups,

@@ -12,6 +12,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.options import ABSORB
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, TREATMENT, WEIGHT, WHERE, check_out, emit,
                                 figure_formats, out_option, spec_from_options, write_outputs)
@@ -41,6 +42,7 @@ def corrbound(
     instrument: list[str] = INSTRUMENT,
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
+    absorb: Optional[list[str]] = ABSORB,
     where: Optional[str] = WHERE,
     cluster: Optional[list[str]] = CLUSTER,
     weight: Optional[str] = WEIGHT,
@@ -74,7 +76,7 @@ def corrbound(
     check_options(max_ratio=max_ratio, endogeneity=endogeneity, threshold=threshold,
                   points=points, reps=reps, seed=seed, confidence_level=level)
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
-                             where, categorical)
+                             where, categorical, absorb)
     check_one_treatment(spec)
     result = correlation_bounds(from_file(data, spec), max_ratio=max_ratio,
                                 endogeneity=endogeneity, threshold=threshold, points=points,

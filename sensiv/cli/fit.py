@@ -10,6 +10,7 @@ import typer
 
 from sensiv.cli.app import app, guarded
 from sensiv.core.limits import MAX_REPS
+from sensiv.cli.options import ABSORB
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
@@ -49,6 +50,7 @@ def fit(
     instrument: list[str] = INSTRUMENT,
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
+    absorb: Optional[list[str]] = ABSORB,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[list[str]] = CLUSTER,
@@ -73,7 +75,7 @@ def fit(
 
     chosen = figure_formats(formats)
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
-                             where, categorical)
+                             where, categorical, absorb)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     if bootstrap is None:
         result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)

@@ -29,6 +29,9 @@ WHERE = typer.Option(None, "--where", metavar="EXPR", help="Keep only the rows m
 CATEGORICAL = typer.Option(None, "--categorical", metavar="COLUMN", help="Integer-coded control to turn into indicators (first level dropped); repeat for several.")
 
 
+ABSORB = typer.Option(None, "--absorb", metavar="COLUMN", help="Categorical column (text or integer codes) whose fixed effects are partialled out of every other column, without indicator columns; repeat for several.")
+
+
 SE = typer.Option(None, "--se", metavar="classic|robust|cluster", help="Covariance: classic, robust or cluster [default: cluster if --cluster is given, else robust].")
 
 
@@ -179,12 +182,13 @@ def cluster_value(cluster):
 
 
 def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
-                      where=None, categorical=None):
+                      where=None, categorical=None, absorb=None):
     from sensiv.data import Spec
 
     return Spec(outcome=outcome, treatments=tuple(treatment), instruments=tuple(instrument),
                 controls=tuple(control or ()), cluster=cluster_value(cluster), weight=weight,
-                constant=constant, where=where, categorical=tuple(categorical or ()))
+                constant=constant, where=where, categorical=tuple(categorical or ()),
+                absorb=tuple(absorb or ()))
 
 
 def emit(document: dict, text: str, as_json: bool) -> None:
@@ -197,8 +201,8 @@ def emit(document: dict, text: str, as_json: bool) -> None:
 
 
 def data_source(data, outcome, treatment, instrument, control, cluster, weight, constant,
-                where=None, categorical=None):
+                where=None, categorical=None, absorb=None):
     from sensiv.data import from_file
 
     return from_file(data, spec_from_options(outcome, treatment, instrument, control, cluster,
-                                             weight, constant, where, categorical))
+                                             weight, constant, where, categorical, absorb))

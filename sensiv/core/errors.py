@@ -28,5 +28,10 @@ class FewClustersWarning(UserWarning):
     """Too few clusters for cluster-robust intervals to be trusted at their nominal level."""
 
 
+class AbsorbConvergenceWarning(UserWarning):
+    """Alternating projections for several absorbed fixed effects stopped before reaching the
+    requested tolerance."""
+
+
 class SolverError(RuntimeError):
     """An optimisation solver failed; the status is in the message."""

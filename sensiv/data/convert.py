@@ -37,7 +37,7 @@ def dtype_kind(dtype: Any) -> str:
 def text_controls(spec: Spec, samples: Sequence[pd.DataFrame], description: str) -> list[str]:
     """Check that numeric roles are numeric and return the controls to treat as text."""
     numeric_roles = [(role, name) for role, name in roles(spec)
-                     if role not in ("control", "cluster")]
+                     if role not in ("control", "cluster", "absorbed fixed effect")]
     for sample in samples:
         for role, name in numeric_roles:
             if dtype_kind(sample[name].dtype) != "numeric":

@@ -86,6 +86,8 @@ class Chunk:
     clusters: np.ndarray | None
     n_dropped: int
     n_filtered: int = 0
+    groups: tuple[np.ndarray, ...] | None = None
+    """Labels of each absorbed fixed effect (``Spec.absorb``), row-aligned, or ``None``."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -108,6 +110,11 @@ class Source:
     notes: tuple[str, ...] = ()
     """Conditions found while reading the data that a report should carry (e.g. a control
     that looks like an identifier)."""
+
+    @property
+    def in_memory(self) -> bool:
+        """Whether the validated chunks are held in memory (a frame) rather than re-read."""
+        return self._cache is not None
 
     def keep(self, frame: pd.DataFrame) -> np.ndarray:
         """Mask of the rows of a raw frame that the row filter keeps (all without one)."""
@@ -141,7 +148,7 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
     drop = np.zeros(len(frame), dtype=bool)
     numeric: dict[str, np.ndarray] = {}
     for role, name in roles(spec):
-        if name in source._levels or name in cluster_columns(spec):
+        if name in source._levels or name in cluster_columns(spec) or name in spec.absorb:
             mask = missing_mask(frame[name])
         else:
             numeric[name] = as_float(frame[name], role, name, where, first_row)
@@ -228,7 +235,10 @@ def _clean_chunk(frame: pd.DataFrame, source: Source, tally: Tally, n_filtered: 
         clusters = frame[names[0]].to_numpy()[keep]
     elif names:  # two-way: one column of labels per cluster variable
         clusters = frame[list(names)].to_numpy()[keep]
-    return Chunk(values, weights, clusters, len(frame) - n_kept, n_filtered)
+    groups = None
+    if spec.absorb:
+        groups = tuple(frame[name].to_numpy()[keep] for name in spec.absorb)
+    return Chunk(values, weights, clusters, len(frame) - n_kept, n_filtered, groups)
 
 
 def _filter_kinds(spec: Spec, samples: Sequence[pd.DataFrame], text: list[str],

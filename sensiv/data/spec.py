@@ -80,6 +80,10 @@ class Spec:
     categorical : sequence of str, default ()
         Numeric (integer-coded) controls to expand into indicators like text controls;
         a name not already among ``controls`` is added to them.
+    absorb : sequence of str, default ()
+        Categorical columns (text or integer codes) whose fixed effects are partialled out
+        of every other column (see :mod:`sensiv.estimation.absorb`) instead of entering as
+        indicator columns.
 
     Raises
     ------
@@ -97,10 +101,11 @@ class Spec:
     constant: bool = True
     where: str | None = None
     categorical: tuple[str, ...] = ()
+    absorb: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         _check_name(self.outcome, "outcome")
-        for role in ("treatments", "instruments", "controls", "categorical"):
+        for role in ("treatments", "instruments", "controls", "categorical", "absorb"):
             object.__setattr__(self, role, _names(getattr(self, role), role.rstrip("s")))
         object.__setattr__(self, "categorical", tuple(dict.fromkeys(self.categorical)))
         extra = tuple(name for name in self.categorical if name not in self.controls)
@@ -125,6 +130,8 @@ class Spec:
             )
         seen: dict[str, str] = {}
         for role, name in roles(self):
+            if {seen.get(name), role} == {"absorbed fixed effect", "cluster"}:
+                continue  # clustering on an absorbed fixed effect is a common design
             if name in seen:
                 where = f"twice as {role}" if seen[name] == role else (
                     f"both as {seen[name]} and as {role}")
@@ -170,14 +177,15 @@ def roles(spec: Spec) -> list[tuple[str, str]]:
     pairs += [("treatment", name) for name in spec.treatments]
     pairs += [("instrument", name) for name in spec.instruments]
     pairs += [("control", name) for name in spec.controls]
+    pairs += [("absorbed fixed effect", name) for name in spec.absorb]
     pairs += [("cluster", name) for name in cluster_columns(spec)]
     pairs += [("weight", spec.weight)] if spec.weight is not None else []
     return pairs
 
 
 def used_columns(spec: Spec) -> list[str]:
-    """Every column the model uses, in the order of :func:`roles`."""
-    return [name for _, name in roles(spec)]
+    """Every column the model uses, once each, in the order of :func:`roles`."""
+    return list(dict.fromkeys(name for _, name in roles(spec)))
 
 
 def row_filter(spec: Spec) -> Node | None:

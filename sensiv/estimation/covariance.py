@@ -50,13 +50,15 @@ def sandwich(se: str, bread: np.ndarray, sigma2: float | None, meat: np.ndarray 
 
 
 def coefficient_covariance(fit: LinearFit, gram: np.ndarray, n: int, meat: np.ndarray | None,
-                           se: str, small: bool, n_clusters: int | None) -> np.ndarray:
+                           se: str, small: bool, n_clusters: int | None,
+                           absorbed: int = 0) -> np.ndarray:
     """Covariance of a solve's parameters in solving coordinates.
 
     ``gram`` is the weighted Gram matrix of the augmented rows (weights of mean one) and
-    ``meat`` the pass-2 sum of the solve's scores (``None`` for classic covariances).
+    ``meat`` the pass-2 sum of the solve's scores (``None`` for classic covariances);
+    ``absorbed`` counts absorbed fixed-effect levels among the parameters.
     """
-    k = fit.params.size
+    k = fit.params.size + absorbed
     sigma2 = None
     if se == "classic":
         sigma2 = float(fit.residual @ gram @ fit.residual) / n

@@ -43,7 +43,7 @@ def anderson_rubin_set(pieces, joint: np.ndarray, coef: np.ndarray, level: float
     k_z = coef.shape[0]
     pi, rho = coef[:, 0], coef[:, 1]
     if small:
-        df2 = pieces.n - pieces.design.instrument_set.shape[1]
+        df2 = pieces.n - pieces.design.instrument_set.shape[1] - pieces.absorbed_parameters
         critical = k_z * dist.f_quantile(level, k_z, df2)
     else:
         critical = dist.chi2_quantile(level, k_z)

@@ -55,7 +55,7 @@ def first_stage_covariance(pieces, meat: np.ndarray | None, se: str, small: bool
     k_z = zt.shape[1]
     e = pieces.first_residuals
     k_e = e.shape[1]
-    k_q = pieces.design.instrument_set.shape[1]
+    k_q = pieces.design.instrument_set.shape[1] + pieces.absorbed_parameters
     factor = small_factor(se, small, pieces.n, k_q, n_clusters)
     if se == "classic":
         sigma = (e.T @ pieces.gram @ e) / pieces.n
@@ -79,7 +79,7 @@ def first_stages(pieces, joint: np.ndarray, se: str, small: bool) -> tuple[
     targets = np.column_stack([d.x, d.y])
     coef = linalg.sym_inv_psd(zz) @ (zt.T @ pieces.gram @ targets)  # (k_z, k_e)
     k_z = zt.shape[1]
-    k_q = d.instrument_set.shape[1]
+    k_q = d.instrument_set.shape[1] + pieces.absorbed_parameters
     df2 = pieces.n - k_q if small else None
     # Treatment variation left after the controls, for the partial R².
     w = d.w

@@ -34,6 +34,8 @@ from sensiv.data.readers import load
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
+from sensiv.estimation.absorb import Absorption
+from sensiv.estimation.absorbed_source import absorb_source
 from sensiv.estimation.covariance import (check_clusters, coefficient_covariance,
                                           combine_two_way, few_clusters_notes,
                                           normalise_weights, psd_fix_note, score_blocks,
@@ -115,6 +117,8 @@ class IVFit(Presentable):
     psd_fix: bool = False
     bootstrap: object | None = None  # sensiv.estimation.wild_bootstrap.WildBootstrap
     tf: TF | None = None  # one treatment and one instrument only
+    absorption: Absorption | None = None
+    absorbed_parameters: int = 0
 
     @property
     def caution(self) -> str:
@@ -122,7 +126,7 @@ class IVFit(Presentable):
 
     @property
     def df_resid(self) -> int:
-        return self.n - len(self.tsls.names)
+        return self.n - len(self.tsls.names) - self.absorbed_parameters
 
     def critical_value(self) -> float:
         """Two-sided critical value for Wald intervals: normal, or t(n − k) with ``small``."""
@@ -155,7 +159,7 @@ class IVFit(Presentable):
             "the treatment (see the first-stage F)",
             "linear model with a constant effect of the treatment",
             se_words[self.se_type] + (", with small-sample corrections" if self.small else ""),
-        ] + filter_assumptions(self.where, self.n_filtered) + (
+        ] + filter_assumptions(self.where, self.n_filtered) + absorb_assumptions(self) + (
             self.bootstrap.assumptions() if self.bootstrap is not None else [])
 
     def to_dict(self) -> dict:
@@ -193,10 +197,21 @@ class IVFit(Presentable):
             out["tf"] = self.tf.to_dict()
         if self.bootstrap is not None:
             out["bootstrap"] = self.bootstrap.to_dict()
-        return out
+        return out | absorb_keys(self)
 
     def __str__(self) -> str:
         return describe(self)
+
+
+def absorb_keys(result) -> dict:
+    """The JSON keys of the absorbed fixed effects (none when nothing is absorbed)."""
+    absorption = getattr(result, "absorption", None)
+    return absorption.to_dict() if absorption is not None else {}
+
+
+def absorb_assumptions(result) -> list[str]:
+    absorption = getattr(result, "absorption", None)
+    return absorption.assumptions() if absorption is not None else []
 
 
 # ----------------------------------------------------------------------------- the fit
@@ -211,21 +226,23 @@ class Pieces:
     ols: LinearFit
     z_partialled: np.ndarray
     first_residuals: np.ndarray
+    absorbed_parameters: int = 0
 
     @property
     def n(self) -> int:
         return self.moments.n
 
 
-def prepare(moments: Moments, layout) -> Pieces:
-    """Pass-1 algebra: design maps, checks, 2SLS, OLS and first-stage residual maps."""
+def prepare(moments: Moments, layout, absorbed: int = 0) -> Pieces:
+    """Pass-1 algebra: design maps, checks, 2SLS, OLS and first-stage residual maps
+    (``absorbed``: absorbed fixed-effect levels counted as parameters)."""
     if moments.n == 0:
         raise InputError("no rows left after dropping rows with missing values; check the "
                          "columns' missing values")
     design = build_design(moments, layout.outcome, layout.treatments, layout.instruments,
                           layout.controls, layout.constant)
     k_params = max(design.regressors.shape[1], design.instrument_set.shape[1])
-    check_rows(moments, k_params)
+    check_rows(moments, k_params + absorbed)
     gram = moments.augmented * (moments.n / moments.weight_sum)
     check_design(design, gram, moments)
     tsls = solve_linear(gram, design.y, design.regressors, design.instrument_set)
@@ -240,7 +257,7 @@ def prepare(moments: Moments, layout) -> Pieces:
     targets = np.column_stack([design.x, design.y])
     first_coef = tsls.instrument_chol.solve(q.T @ gram @ targets)
     first_residuals = targets - q @ first_coef
-    return Pieces(moments, design, gram, tsls, ols, z_partialled, first_residuals)
+    return Pieces(moments, design, gram, tsls, ols, z_partialled, first_residuals, absorbed)
 
 
 def _output_order(design: Design) -> np.ndarray:
@@ -264,7 +281,7 @@ def _coefficients(design: Design, fit: LinearFit, cov_star: np.ndarray) -> Coeff
 def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
                      confidence_level: float, small: bool, weighted: bool,
                      where: str | None = None, data_notes: tuple[str, ...] = (),
-                     cluster=None) -> IVFit:
+                     cluster=None, absorption: Absorption | None = None) -> IVFit:
     """Assemble the fit and its diagnostics from pass-1 pieces and pass-2 sums.
 
     ``where`` is the row filter the data went through (reported in the assumptions);
@@ -274,13 +291,13 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
     n_clusters = sums.n_clusters if sums is not None else None
     meats = sums.meats if sums is not None else {}
     d = pieces.design
-    n, gram = pieces.n, pieces.gram
+    n, gram, k_fe = pieces.n, pieces.gram, pieces.absorbed_parameters
     tsls = _coefficients(d, pieces.tsls,
                          coefficient_covariance(pieces.tsls, gram, n, meats.get("tsls"), se,
-                                                small, n_clusters))
+                                                small, n_clusters, k_fe))
     ols = _coefficients(d, pieces.ols,
                         coefficient_covariance(pieces.ols, gram, n, meats.get("ols"), se, small,
-                                               n_clusters))
+                                               n_clusters, k_fe))
     joint = first_stage_covariance(pieces, meats.get("first"), se, small, n_clusters)
     stages, coef, _ = first_stages(pieces, joint, se, small)
     ar = None
@@ -313,7 +330,8 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         cluster_counts=sums.cluster_counts if sums is not None and se == "cluster" else (),
         psd_fix=bool(sums is not None and sums.psd_fix),
         tf=tf_interval(tsls.value(d.treatments[0]), tsls.std_error(d.treatments[0]),
-                       stages[0].f, confidence_level) if d.z.shape[1] == 1 else None)
+                       stages[0].f, confidence_level) if d.z.shape[1] == 1 else None,
+        absorption=absorption, absorbed_parameters=k_fe)
 
 
 def check_options(se: str, cluster: str | None, confidence_level: float) -> None:
@@ -329,11 +347,14 @@ def check_options(se: str, cluster: str | None, confidence_level: float) -> None
                          "level such as 0.95")
 
 
-def as_source(data, spec=None, *, chunk_rows: int | None = None):
-    """A data-layer source from a source, a DataFrame or a path (with ``spec``)."""
-    if hasattr(data, "chunks"):
-        return data
-    return load(data, spec, chunk_rows=chunk_rows)
+def as_source(data, spec=None, *, chunk_rows: int | None = None,
+              absorb_tolerance: float | None = None):
+    """A data-layer source from a source, a DataFrame or a path (with ``spec``), with the
+    fixed effects of ``spec.absorb`` partialled out (to ``absorb_tolerance``, default 1e-10)."""
+    source = data if hasattr(data, "chunks") else load(data, spec, chunk_rows=chunk_rows)
+    if absorb_tolerance is None:
+        return absorb_source(source)
+    return absorb_source(source, tolerance=absorb_tolerance)
 
 
 def default_se(spec) -> str:
@@ -349,9 +370,11 @@ def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
     """
     spec = source.spec
     check_options(se, spec.cluster, confidence_level)
+    source = absorb_source(source)
+    absorption = getattr(source, "absorption", None)
     layout = source.layout
     moments = accumulate(source.chunks(), layout.columns)
-    pieces = prepare(moments, layout)
+    pieces = prepare(moments, layout, absorption.parameters(se) if absorption else 0)
     blocks = score_blocks(pieces, se) + (list(extra_blocks(pieces)) if extra_blocks else [])
     sums = None
     if blocks:
@@ -362,12 +385,14 @@ def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
         sums = combine_two_way(sums, small)
     result = fit_from_moments(pieces, sums, layout, se=se, confidence_level=confidence_level,
                               small=small, weighted=spec.weight is not None, where=spec.where,
-                              data_notes=getattr(source, "notes", ()), cluster=spec.cluster)
+                              data_notes=getattr(source, "notes", ()), cluster=spec.cluster,
+                              absorption=absorption)
     return result, pieces, sums
 
 
 def fit(data, spec=None, *, se: SEType | None = None, confidence_level: float = 0.95,
-        small: bool = False, chunk_rows: int | None = None) -> IVFit:
+        small: bool = False, chunk_rows: int | None = None,
+        absorb_tolerance: float | None = None) -> IVFit:
     """Fit 2SLS with diagnostics from a data source, a DataFrame or a file path.
 
     Parameters
@@ -382,12 +407,15 @@ def fit(data, spec=None, *, se: SEType | None = None, confidence_level: float = 
         Finite-sample corrections and t / F reference laws.
     chunk_rows : int, optional
         Rows per chunk when reading a file (memory does not grow with the file).
+    absorb_tolerance : float, optional
+        Relative tolerance of the alternating projections for several absorbed fixed
+        effects (default 1e-10).
 
     Returns
     -------
     IVFit
     """
-    source = as_source(data, spec, chunk_rows=chunk_rows)
+    source = as_source(data, spec, chunk_rows=chunk_rows, absorb_tolerance=absorb_tolerance)
     result, _, _ = fit_with_pieces(source, se=se or default_se(source.spec),
                                    confidence_level=confidence_level, small=small)
     return result

@@ -57,6 +57,8 @@ from sensiv.core.limits import MAX_POINTS, MAX_REPS, check_count, check_seed
 from sensiv.core.results import Interval, format_number
 from sensiv.data import Layout, Spec, load
 from sensiv.estimation.covariance import count_notes
+from sensiv.estimation.absorb import Absorption
+from sensiv.estimation.absorbed_source import absorb_source
 from sensiv.estimation.iv import prepare
 from sensiv.estimation.moments import Moments, accumulate
 from sensiv.partial_id.correlation_bootstrap import bootstrap, resample_rows
@@ -195,7 +197,8 @@ def correlation_bounds(data, spec=None, *, max_ratio: float = DEFAULT_MAX_RATIO,
         pieces=curve[-1].pieces, pieces_by_sign=by_sign, curve=curve,
         breakdown_ratio=breakdown_ratio(pc, signs, float(threshold)),
         min_ratio_consistent=min_ratio, bootstrap=boot, notes=tuple(notes),
-        n_filtered=prepared.moments.n_filtered, where=prepared.spec.where)
+        n_filtered=prepared.moments.n_filtered, where=prepared.spec.where,
+        absorption=prepared.absorption)
 
 
 @dataclass(frozen=True, slots=True)
@@ -212,11 +215,13 @@ class _Prepared:
     ols: float
     pc: PartialCorrelations
     notes: tuple[str, ...] = ()
+    absorption: Absorption | None = None
 
 
 def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepared:
     """Load and check the data, fit 2SLS and OLS, and take the partial correlations."""
-    source = data if hasattr(data, "chunks") else load(data, spec, chunk_rows=chunk_rows)
+    source = absorb_source(data if hasattr(data, "chunks")
+                           else load(data, spec, chunk_rows=chunk_rows))
     check_one_treatment(source.spec)
     if not isinstance(source.spec.cluster, (str, type(None))):
         raise InputError(f"corrbound resamples whole clusters of one variable; got two cluster "
@@ -225,13 +230,15 @@ def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepare
     layout = source.layout
     chunks = list(source.chunks()) if keep_rows else None
     moments = accumulate(chunks if chunks is not None else source.chunks(), layout.columns)
-    fitted = prepare(moments, layout)  # the data checks, 2SLS and OLS of iv.py
+    absorption = getattr(source, "absorption", None)
+    fitted = prepare(moments, layout, absorption.parameters("robust") if absorption else 0)
     pc = partial_correlations(moments, layout)
     if pc is None:
         raise InputError(f"outcome '{layout.outcome}' is fully explained by the controls (no "
                          "variation left after partialling them out); check the model")
     return _Prepared(source.spec, layout, chunks, moments, float(fitted.tsls.params[-1]),
-                     float(fitted.ols.params[-1]), pc, tuple(getattr(source, "notes", ())))
+                     float(fitted.ols.params[-1]), pc, tuple(getattr(source, "notes", ())),
+                     absorption)
 
 
 def _sets(pc: PartialCorrelations, signs: Sequence[int], max_ratio: float, points: int

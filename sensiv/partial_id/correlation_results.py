@@ -10,6 +10,7 @@ from dataclasses import dataclass
 
 from sensiv.core.results import Interval, Presentable, describe, format_number, json_number
 from sensiv.data.where import filter_assumptions
+from sensiv.estimation.absorb import Absorption
 
 CAUTION = ("Caution: these bounds hold only under the stated correlation restriction (each "
            "instrument correlated with the error in the treatment's direction and at most r̄ "
@@ -122,6 +123,7 @@ class CorrelationBounds(Presentable):
     notes: tuple[str, ...]
     n_filtered: int = 0
     where: str | None = None
+    absorption: Absorption | None = None
 
     @property
     def caution(self) -> str:
@@ -160,7 +162,8 @@ class CorrelationBounds(Presentable):
             f"{format_number(self.max_ratio)} times the treatment's in absolute value "
             "(r̄ = 0 is the exclusion restriction)",
             sign,
-        ] + filter_assumptions(self.where, self.n_filtered)
+        ] + filter_assumptions(self.where, self.n_filtered) + (
+            self.absorption.assumptions() if self.absorption is not None else [])
         if self.bootstrap is not None:
             unit = (f"whole clusters ({self.bootstrap.clusters})"
                     if self.bootstrap.clusters is not None else "rows")
@@ -212,7 +215,7 @@ class CorrelationBounds(Presentable):
             "notes": list(self.notes),
             "assumptions": self.assumptions(),
             "caution": CAUTION,
-        }
+        } | (self.absorption.to_dict() if self.absorption is not None else {})
         return out
 
     def __str__(self) -> str:

@@ -7,6 +7,7 @@ from sensiv.present.tables import table_cells
 from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.text_fit_extras import bootstrap_lines, tf_lines
 from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
+from sensiv.present.text_levels import absorbed_line, listed_names
 from sensiv.sensitivity import bounds
 
 
@@ -36,13 +37,15 @@ def fit_summary(fit) -> str:
         "",
     ]
     rows = []
-    for name in fit.tsls.names:
+    names, level_notes = listed_names(fit)
+    for name in names:
         ci = fit.conf_int(name)
         rows.append([name, format_number(fit.tsls.value(name)),
                      format_number(fit.tsls.std_error(name)),
                      f"[{format_number(ci.low)}, {format_number(ci.high)}]",
                      format_number(fit.ols.value(name)), format_number(fit.ols.std_error(name))])
     lines += _table(["coefficient", "2SLS", "se", f"{pct} CI", "OLS", "OLS se"], rows)
+    lines += level_notes + ([absorbed_line(fit)] if absorbed_line(fit) else [])
     lines.append("")
     lines.append("First stage (controls partialled out)")
     rows = [[fs.treatment, inst, format_number(fs.coef[inst]), format_number(fs.se[inst])]

@@ -117,7 +117,7 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
         for key in ("outcome", "treatments", "instruments"):
             if key not in data:
                 raise lines.fail("data", f"{where}.data lacks '{key}'")
-        for key in ("treatments", "instruments", "controls", "categorical"):
+        for key in ("treatments", "instruments", "controls", "categorical", "absorb"):
             if key in data:
                 data = {**data, key: _strings(data[key], key, f"{where}.data", lines)}
         if isinstance(data.get("cluster"), list):

@@ -23,7 +23,8 @@ def spec_of(roles: Mapping[str, Any]) -> Spec:
                 instruments=tuple(roles["instruments"]),
                 controls=tuple(roles.get("controls", ())), cluster=roles.get("cluster"),
                 weight=roles.get("weight"), constant=roles.get("constant", True),
-                where=roles.get("where"), categorical=tuple(roles.get("categorical", ())))
+                where=roles.get("where"), categorical=tuple(roles.get("categorical", ())),
+                absorb=tuple(roles.get("absorb", ())))
 
 
 def _context(study: Study, source, frame, spec, seed: int | None) -> RunContext:

@@ -23,6 +23,7 @@ the recipe file)::
     constant = true                # optional
     where = "year >= 2000"         # optional: keep only the rows matching this row filter
     categorical = ["district"]     # optional: integer-coded controls turned into indicators
+    absorb = ["county", "year"]    # optional: fixed effects partialled out (no indicators)
 
     [study.inference]              # optional
     se = "cluster"                 # classic | robust | cluster
@@ -55,7 +56,7 @@ STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
               "analysis": list}
 DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
              "controls": list, "cluster": (str, list), "weight": str, "constant": bool,
-             "where": str, "categorical": list}
+             "where": str, "categorical": list, "absorb": list}
 INFERENCE_KEYS = {"se": str, "level": float, "small": bool}
 COMMON_KEYS = {"kind": str, "label": str, "seed": int}
 

@@ -147,10 +147,11 @@ class SweepResult(Presentable):
             f"{100 * self.confidence_level:g}% intervals covers β at least at that rate when "
             "the true direct effect lies in the set",
             *(self.bias_aware.assumptions() if self.bias_aware is not None else []),
-        ] + filter_assumptions(self.fit.where, self.fit.n_filtered)
+        ] + filter_assumptions(self.fit.where, self.fit.n_filtered) + (
+            iv.absorb_assumptions(self.fit))
 
     def to_dict(self) -> dict:
-        return {
+        return iv.absorb_keys(self.fit) | {
             "focus": self.focus,
             "estimate": self.estimate,
             "se": self.se,

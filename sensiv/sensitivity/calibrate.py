@@ -40,6 +40,7 @@ from sensiv.core.results import Presentable, describe, format_number, json_numbe
 from sensiv.data import read_table
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
+from sensiv.estimation.absorb import Absorption
 from sensiv.estimation.covariance import count_notes
 from sensiv.estimation.moments import accumulate, count_clusters
 from sensiv.sensitivity.yardsticks import (Yardstick, yardstick_groups, leave_one_out_yardsticks,
@@ -102,6 +103,7 @@ class Calibration(Presentable):
     notes: tuple[str, ...] = field(default=())
     n_filtered: int = 0
     where: str | None = None
+    absorption: Absorption | None = None
 
     def assumptions(self) -> list[str]:
         out = [
@@ -124,7 +126,8 @@ class Calibration(Presentable):
                 "controls within the subgroup",
                 f"{self.zero_first_stage.se_type} covariance for the subgroup's reduced form",
             ]
-        return out + filter_assumptions(self.where, self.n_filtered)
+        return out + filter_assumptions(self.where, self.n_filtered) + (
+            self.absorption.assumptions() if self.absorption is not None else [])
 
     def suggestions(self) -> list[dict]:
         """Option strings for ``sweep`` and ``prior`` derived from each yardstick."""
@@ -168,7 +171,7 @@ class Calibration(Presentable):
             "notes": list(self.notes),
             "assumptions": self.assumptions(),
             "caution": CAUTION,
-        }
+        } | (self.absorption.to_dict() if self.absorption is not None else {})
 
     def __str__(self) -> str:
         return describe(self)
@@ -225,6 +228,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
         subgroup_mask(frame, no_first_stage_group)
 
     moments = accumulate(source.chunks(), layout.columns)
+    absorption = getattr(source, "absorption", None)
     pieces = iv.prepare(moments, layout)  # validates the design; gives the 2SLS estimate
     k_x = len(layout.treatments)
     beta = (pieces.design.transform @ pieces.tsls.params)[-k_x:]
@@ -254,7 +258,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
         confidence_level=confidence_level, scale=scale,
         estimate=dict(zip(layout.treatments, map(float, beta))), yardsticks=yardsticks,
         zero_first_stage=zfs, notes=tuple(notes), n_filtered=moments.n_filtered,
-        where=spec.where)
+        where=spec.where, absorption=absorption)
 
 
 def _source(data, spec, no_first_stage_group: str | None, chunk_rows: int | None):

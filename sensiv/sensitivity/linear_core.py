@@ -93,7 +93,7 @@ def build_core(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit, j: i
     """The linear/quadratic core of the focus coefficient from the fit's moments and sums."""
     slope, maps = _slope_and_residual_maps(pieces, j)
     n = pieces.n
-    k = pieces.tsls.params.size
+    k = pieces.tsls.params.size + pieces.absorbed_parameters
     se = result.se_type
     n_clusters = sums.n_clusters if sums is not None else None
     factor = small_factor(se, result.small, n, k, n_clusters)

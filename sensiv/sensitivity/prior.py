@@ -166,10 +166,11 @@ class PriorResult(Presentable):
             "approximately normal",
             "apart from the direct effect, the instruments are as good as randomly assigned "
             "given the controls",
-        ] + filter_assumptions(self.fit.where, self.fit.n_filtered)
+        ] + filter_assumptions(self.fit.where, self.fit.n_filtered) + (
+            iv.absorb_assumptions(self.fit))
 
     def to_dict(self) -> dict:
-        return {
+        return iv.absorb_keys(self.fit) | {
             "interval": self.interval.to_list(),
             "center": json_number(self.center),
             "method": self.method,

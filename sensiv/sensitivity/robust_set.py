@@ -57,7 +57,8 @@ def reduced_form(pieces: iv.Pieces, sums: ScoreSums | None, result: iv.IVFit) ->
     k_z = zt.shape[1]
     level = result.confidence_level
     if result.small:
-        critical = k_z * dist.f_quantile(level, k_z, pieces.n - d.instrument_set.shape[1])
+        df2 = pieces.n - d.instrument_set.shape[1] - pieces.absorbed_parameters
+        critical = k_z * dist.f_quantile(level, k_z, df2)
     else:
         critical = dist.chi2_quantile(level, k_z)
     e = coef.shape[1] - 1  # index of the outcome equation

@@ -18,6 +18,7 @@ from sensiv.core.results import Interval, json_number
 from sensiv.data import from_frame
 from sensiv.data.spec import cluster_columns
 from sensiv.estimation import distributions as dist
+from sensiv.estimation.absorbed_source import absorb_source
 from sensiv.estimation.covariance import check_clusters, combine_two_way, normalise_weights
 from sensiv.estimation.design import CONSTANT, Design
 from sensiv.estimation.first_stage import first_stage_covariance
@@ -207,13 +208,15 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
     dropped += _single_level_controls(sub, spec)
     sub_spec = replace(spec, controls=tuple(c for c in spec.controls if c not in dropped))
     try:
-        source = from_frame(sub, sub_spec)
+        source = absorb_source(from_frame(sub, sub_spec))
     except InputError as exc:
         raise InputError(f"in {where}: {exc}") from exc
     layout = source.layout
     moments = accumulate(source.chunks(), layout.columns)
     k_z = len(layout.instruments)
-    n_params = len(layout.controls) + k_z + int(layout.constant)
+    absorption = getattr(source, "absorption", None)
+    k_fe = absorption.parameters(se) if absorption is not None else 0
+    n_params = len(layout.controls) + k_z + int(layout.constant) + k_fe
     if moments.n <= n_params:
         raise InputError(
             f"{where} has only {moments.n} usable rows (after dropping {moments.n_dropped} "
@@ -225,10 +228,10 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
     zt = partialled(design.z, design.w, gram)
     targets = np.column_stack([design.x, design.y])
     joint = _subgroup_covariance(source, spec, moments, design, gram, zt, targets, se=se,
-                                 small=small, where=where)
+                                 small=small, where=where, absorbed=k_fe)
     coef = linalg.scaled_cholesky(zt.T @ gram @ zt).solve(zt.T @ gram @ targets)
     k_x = len(layout.treatments)
-    df2 = moments.n - design.instrument_set.shape[1] if small else None
+    df2 = moments.n - design.instrument_set.shape[1] - k_fe if small else None
     fs_coef, fs_f, fs_p = _first_stage_tests(design, layout, gram, coef, joint, df2)
     direct = coef[:, k_x]
     cov = joint[k_x, :, k_x, :]
@@ -282,7 +285,7 @@ def _subgroup_design(moments: Moments, layout, gram: np.ndarray,
 
 def _subgroup_covariance(source, spec, moments: Moments, design: Design, gram: np.ndarray,
                          zt: np.ndarray, targets: np.ndarray, *, se: str, small: bool,
-                         where: str) -> np.ndarray:
+                         where: str, absorbed: int = 0) -> np.ndarray:
     """Joint covariance of the subgroup's first-stage and reduced-form coefficients (the
     second pass over the subgroup's rows for robust and cluster covariances)."""
     q = design.instrument_set
@@ -300,7 +303,7 @@ def _subgroup_covariance(source, spec, moments: Moments, design: Design, gram: n
         sums = combine_two_way(sums, small)
     # Only the first-stage fields of Pieces are read by first_stage_covariance; the
     # subgroup's 2SLS (tsls, ols) is deliberately not formed.
-    pieces = iv.Pieces(moments, design, gram, None, None, zt, residuals)
+    pieces = iv.Pieces(moments, design, gram, None, None, zt, residuals, absorbed)
     n_clusters = sums.n_clusters if sums is not None else None
     return first_stage_covariance(pieces, sums.meats["first"] if sums else None, se,
                                      small, n_clusters)

@@ -254,3 +254,16 @@ def test_directory_is_reported_as_a_directory(folder):
     (folder / "data_dir").mkdir()
     with pytest.raises(InputError, match="is a directory"):
         parse_recipe(write(folder, STUDY.replace('"irrigation.csv"', '"data_dir"')))
+
+
+def test_absorb_key(folder):
+    # the recipe key gives the same fit as the Spec (common practice, no source: one path,
+    # two spellings)
+    text = GOOD.replace('cluster = "village"', 'cluster = "village"\nabsorb = ["village"]')
+    run = run_recipe(parse_recipe(write(folder, text)))
+    fitted = run.runs[0].result
+    spec = Spec("maize_yield", ("irrigation_hours",), ("height_m",),
+                controls=("plot_ha", "soil"), cluster="village", absorb=("village",))
+    direct = iv.fit(from_file(folder / "irrigation.csv", spec), se="cluster")
+    assert fitted.to_dict() == direct.to_dict()
+    assert "village" in fitted.to_dict()["absorbed"]
