@@ -9,7 +9,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
+from sensiv.cli.options import (ENGINE, SCHEDULER, engine_source, CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
 
@@ -23,7 +23,7 @@ EXAMPLE = ("\b\n"
 @app.command(epilog=EXAMPLE)
 @guarded
 def fit(
-    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file; a directory or glob of Parquet / CSV files (hive partitions give columns); or file.duckdb::table."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -36,6 +36,8 @@ def fit(
     level: float = LEVEL,
     small: bool = SMALL,
     constant: bool = CONSTANT,
+    engine: str = ENGINE,
+    scheduler: Optional[str] = SCHEDULER,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write fit.json, fit.md, tables and a figure here."),
     formats: Optional[list[str]] = FORMAT,
@@ -43,7 +45,6 @@ def fit(
     """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
     check_out(out)
     from sensiv.estimation import iv
-    from sensiv.data import from_file
     from sensiv.present.writer import to_json
     from sensiv.present.markdown import fit_markdown
 
@@ -51,7 +52,7 @@ def fit(
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                              where, categorical)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
-    result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
+    result = iv.fit(engine_source(data, spec, engine, scheduler), se=se, confidence_level=level, small=small)
     document = result.to_dict()
     if out is not None:
         write_outputs(out, result, {"fit.json": to_json(document), "fit.md": fit_markdown(result)},

@@ -27,7 +27,7 @@ Examples
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -107,6 +107,30 @@ class Source:
     notes: tuple[str, ...] = ()
     """Conditions found while reading the data that a report should carry (e.g. a control
     that looks like an identifier)."""
+    origin: Any = None
+    """Where the raw rows live (:class:`sensiv.data.datasets.Origin`) for engines that read
+    files themselves; ``None`` for in-memory frames and Stata files."""
+    engine: str = "numpy"
+    """The engine that runs the passes over the rows: ``numpy``, ``duckdb`` or ``dask``."""
+    scheduler: str | None = None
+    """Address of a running Dask scheduler (``engine="dask"``); ``None`` starts a local one."""
+    chunk_rows: int | None = None
+    """Rows per chunk when streaming from files."""
+
+    @property
+    def frames(self) -> Callable[[], Iterator[pd.DataFrame]]:
+        """Factory of raw frame iterators over the used columns (before any cleaning)."""
+        return self._frames
+
+    @property
+    def levels(self) -> dict[str, tuple[str, ...]]:
+        """All levels of each text control, sorted; the first is the baseline the layout drops."""
+        return dict(self._levels)
+
+    @property
+    def row_filter(self) -> tuple[Node, dict[str, str]] | None:
+        """The parsed row filter and the kind of each column it reads, or ``None``."""
+        return self._filter
 
     def keep(self, frame: pd.DataFrame) -> np.ndarray:
         """Mask of the rows of a raw frame that the row filter keeps (all without one)."""
@@ -127,9 +151,16 @@ class Source:
             yield from self._cache
             return
         tally = Tally(self.spec, self.description)
-        for frame in self._frames():
-            yield _to_chunk(frame, self, tally)
+        yield from clean_chunks(self, self._frames(), tally)
         tally.finish()
+
+
+def clean_chunks(source: Source, frames: Iterable[pd.DataFrame], tally: Tally
+                 ) -> Iterator[Chunk]:
+    """Clean chunks of raw ``frames`` of ``source`` (e.g. one partition), counted in
+    ``tally``; the checks over the whole data set (``tally.finish()``) are the caller's."""
+    for frame in frames:
+        yield _to_chunk(frame, source, tally)
 
 
 def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tuple[

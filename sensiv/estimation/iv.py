@@ -39,7 +39,8 @@ from sensiv.estimation.design import CONSTANT, Design, build_design, check_desig
 from sensiv.estimation.diagnostics import OverId, anderson_rubin_set, overid_test
 from sensiv.estimation.first_stage import FirstStage, first_stage_covariance, first_stages
 from sensiv.estimation.least_squares import LinearFit, solve_linear
-from sensiv.estimation.moments import Moments, ScoreSums, accumulate, check_rows, score_sums
+from sensiv.estimation.moments import Moments, ScoreSums, check_rows
+from sensiv.estimation.passes import moments_of, scores_of
 
 SEType = Literal["classic", "robust", "cluster"]
 SE_TYPES: tuple[str, ...] = ("classic", "robust", "cluster")
@@ -322,13 +323,13 @@ def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
     spec = source.spec
     check_options(se, spec.cluster, confidence_level)
     layout = source.layout
-    moments = accumulate(source.chunks(), layout.columns)
+    moments = moments_of(source, layout.columns)
     pieces = prepare(moments, layout)
     blocks = score_blocks(pieces, se) + (list(extra_blocks(pieces)) if extra_blocks else [])
     sums = None
     if blocks:
         sums = normalise_weights(
-            score_sums(source.chunks(), moments.mean, blocks, cluster=(se == "cluster")),
+            scores_of(source, moments.mean, blocks, cluster=(se == "cluster")),
             moments)
         check_clusters(sums, spec.cluster)
     result = fit_from_moments(pieces, sums, layout, se=se, confidence_level=confidence_level,

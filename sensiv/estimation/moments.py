@@ -232,6 +232,10 @@ class _ClusterIndex:
     def __len__(self) -> int:
         return len(self._codes)
 
+    def labels(self) -> list:
+        """The labels met so far, in the order of their codes."""
+        return list(self._codes)
+
 
 class _RowMaps:
     """All blocks' row maps applied in one product per chunk.
@@ -285,6 +289,19 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
                 meats[b.name] += g.T @ g
         return ScoreSums({k: 0.5 * (v + v.T) for k, v in meats.items()}, None)
 
+    labels, sums = cluster_score_sums(chunks, mean, blocks)
+    for b in blocks:
+        s = sums[b.name]
+        meats[b.name] = s.T @ s
+    return ScoreSums(meats, len(labels))
+
+
+def cluster_score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock]
+                       ) -> tuple[list, dict[str, np.ndarray]]:
+    """Per-cluster score sums ``s_g``: the cluster labels in order of first appearance and,
+    per block, an array ``(len(labels), size)``.  Sums over disjoint rows add by label, so
+    partitions can be summed apart and merged (a group-by sum)."""
+    maps = _RowMaps(blocks, mean)
     index = _ClusterIndex()
     sums = {b.name: np.zeros((0, b.size)) for b in blocks}
     for chunk in chunks:
@@ -299,10 +316,7 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
             for j in range(b.size):
                 acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
             sums[b.name] = acc
-    for b in blocks:
-        s = sums[b.name]
-        meats[b.name] = s.T @ s
-    return ScoreSums(meats, len(index))
+    return index.labels(), sums
 
 
 def check_rows(moments: Moments, n_parameters: int) -> None:

@@ -57,6 +57,7 @@ from sensiv.core.results import Interval, format_number
 from sensiv.data import Layout, Spec, load
 from sensiv.estimation.iv import prepare
 from sensiv.estimation.moments import Moments, accumulate
+from sensiv.estimation.passes import moments_of
 from sensiv.partial_id.correlation_bootstrap import bootstrap, resample_rows
 from sensiv.partial_id.correlation_moments import PartialCorrelations, partial_correlations
 from sensiv.partial_id.correlation_programme import (breakdown_ratio, compiled_programmes,
@@ -218,7 +219,8 @@ def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepare
     check_one_treatment(source.spec)
     layout = source.layout
     chunks = list(source.chunks()) if keep_rows else None
-    moments = accumulate(chunks if chunks is not None else source.chunks(), layout.columns)
+    moments = (accumulate(chunks, layout.columns) if chunks is not None
+               else moments_of(source, layout.columns))
     fitted = prepare(moments, layout)  # the data checks, 2SLS and OLS of iv.py
     pc = partial_correlations(moments, layout)
     if pc is None:

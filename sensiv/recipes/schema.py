@@ -23,6 +23,9 @@ the recipe file)::
     constant = true                # optional
     where = "year >= 2000"         # optional: keep only the rows matching this row filter
     categorical = ["district"]     # optional: integer-coded controls turned into indicators
+    engine = "duckdb"              # optional: numpy (default) | duckdb | dask; path may then
+                                   #   also be a directory or glob of files, or file.duckdb::table
+    scheduler = "tcp://host:8786"  # optional, with engine = "dask": a running Dask scheduler
 
     [study.inference]              # optional
     se = "cluster"                 # classic | robust | cluster
@@ -54,7 +57,7 @@ STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
               "analysis": list}
 DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
              "controls": list, "cluster": str, "weight": str, "constant": bool,
-             "where": str, "categorical": list}
+             "where": str, "categorical": list, "engine": str, "scheduler": str}
 INFERENCE_KEYS = {"se": str, "level": float, "small": bool}
 COMMON_KEYS = {"kind": str, "label": str, "seed": int}
 

@@ -40,7 +40,7 @@ from sensiv.core.results import describe, format_number, json_number
 from sensiv.data import read_table
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
-from sensiv.estimation.moments import accumulate
+from sensiv.estimation.passes import moments_of
 from sensiv.sensitivity.yardsticks import (Yardstick, yardstick_groups, leave_one_out_yardsticks,
                                            instrument_coefficients)
 from sensiv.sensitivity.direct_sets import Scale, scale_from_moments
@@ -223,7 +223,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
         check_role(spec, no_first_stage_group)
         subgroup_mask(frame, no_first_stage_group)
 
-    moments = accumulate(source.chunks(), layout.columns)
+    moments = moments_of(source, layout.columns)
     pieces = iv.prepare(moments, layout)  # validates the design; gives the 2SLS estimate
     k_x = len(layout.treatments)
     beta = (pieces.design.transform @ pieces.tsls.params)[-k_x:]
