@@ -221,8 +221,9 @@ def _table_reader(path: Path, table: str, used: list[str] | None, rows: int
         try:
             listed = ", ".join(quoted(c) for c in used) if used else "*"
             try:
-                reader = connection.execute(
-                    f"SELECT {listed} FROM {quoted(table)}").fetch_record_batch(rows)
+                result = connection.execute(f"SELECT {listed} FROM {quoted(table)}")
+                batches = getattr(result, "fetch_record_batch", None) or result.to_arrow_reader
+                reader = batches(rows)
             except duckdb.Error as exc:
                 raise InputError(f"could not read table {table!r} of '{path.name}': {exc}; "
                                  "check the table name") from exc
