@@ -35,9 +35,10 @@ CONNECT_SECONDS = 10
 _CLIENTS: dict[str | None, Any] = {}
 
 
-def _close_all() -> None:
-    for client in list(_CLIENTS.values()):
-        cluster = client.cluster
+def close_clients() -> None:
+    """Close every client this process opened (and the local clusters it started)."""
+    for scheduler, client in list(_CLIENTS.items()):
+        cluster = client.cluster if scheduler is None else None
         client.close()
         if cluster is not None:
             cluster.close()
@@ -66,7 +67,7 @@ def client_of(scheduler: str | None) -> Any:
                              "and give its address (tcp://host:8786), or drop --scheduler to "
                              "use a local cluster") from exc
     if not _CLIENTS:
-        atexit.register(_close_all)
+        atexit.register(close_clients)
     _CLIENTS[scheduler] = client
     return client
 
