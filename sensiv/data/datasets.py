@@ -57,6 +57,8 @@ class Origin:
     table: str | None = None
     hive: bool = False
     base: str | None = None
+    frame: Any = None
+    """The ``dask.dataframe.DataFrame`` of a source built by :func:`from_dask`."""
 
 
 def is_dataset(path: Any) -> bool:
@@ -81,7 +83,7 @@ def with_engine(source: Source, engine: str = "numpy", scheduler: str | None = N
     if scheduler is not None and engine != "dask":
         raise InputError(f"--scheduler {scheduler!r} is for --engine dask; add --engine dask "
                          "or drop --scheduler")
-    if engine == "duckdb" and source.origin is None:
+    if engine == "duckdb" and (source.origin is None or source.origin.kind == "dask"):
         raise InputError(f"--engine duckdb reads CSV and Parquet files, directories or globs "
                          f"of them and DuckDB tables; {source.description} is none of these: "
                          "convert it to Parquet or choose --engine numpy")
@@ -167,7 +169,7 @@ def partition_frames(source: Source) -> list[Callable[[], Iterator[pd.DataFrame]
     """One factory of frame iterators per partition (file) of a file-based source, reading
     the used columns; the engines that spread the work hand one partition to each task."""
     origin = source.origin
-    if origin is None or origin.kind == "duckdb":
+    if origin is None or origin.kind in ("duckdb", "dask"):
         return [source.frames]
     used = read_columns(source.spec)
     return [_dataset_reader([path], origin.kind, origin.base, used, source.chunk_rows)
@@ -245,6 +247,36 @@ def _table_columns(path: Path, table: str) -> list[str]:
                          "'::'") from exc
     finally:
         connection.close()
+
+
+# --------------------------------------------------------------------------- Dask frames
+def is_dask_frame(data: Any) -> bool:
+    """True for a ``dask.dataframe.DataFrame`` (checked without importing dask)."""
+    return type(data).__module__.startswith("dask") and hasattr(data, "npartitions")
+
+
+def from_dask(frame: Any, spec: Spec) -> Source:
+    """A source over a ``dask.dataframe.DataFrame``, read by the ``dask`` engine: each
+    partition is cleaned and reduced on the cluster (the leading rows decide the column kinds
+    here; text controls' levels take one pass)."""
+    used = read_columns(spec) if isinstance(spec, Spec) else []
+
+    def make_frames(labels: list[str]) -> Callable[[], Iterator[pd.DataFrame]]:
+        def frames() -> Iterator[pd.DataFrame]:
+            for k in range(frame.npartitions):
+                yield frame.get_partition(k)[used].compute()
+        return frames
+
+    def samples() -> list[pd.DataFrame]:
+        head = frame.head(_SAMPLE_ROWS, npartitions=-1)
+        if len(head) == 0:
+            raise InputError("the Dask DataFrame has columns but no rows; supply data with at "
+                             "least one row")
+        return [head]
+
+    source = build_source(spec, "Dask DataFrame", list(frame.columns), samples, make_frames,
+                          eager=False)
+    return dataclasses.replace(source, origin=Origin("dask", (), frame=frame), engine="dask")
 
 
 # --------------------------------------------------------------------------- the source

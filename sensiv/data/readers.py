@@ -27,7 +27,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sensiv.core.errors import InputError
-from sensiv.data.datasets import Origin, from_dataset, is_dataset
+from sensiv.data.datasets import Origin, from_dask, from_dataset, is_dask_frame, is_dataset
 from sensiv.data.source import Source, build_source
 from sensiv.data.spec import Spec, read_columns
 
@@ -320,10 +320,14 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
 
 
 def load(path_or_frame: Any, spec: Spec, *, chunk_rows: int | None = None) -> Source:
-    """A DataFrame goes to :func:`from_frame`, anything else is a path for :func:`from_file`."""
+    """A DataFrame goes to :func:`from_frame`, a ``dask.dataframe.DataFrame`` to
+    :func:`~sensiv.data.datasets.from_dask` (read by the ``dask`` engine), anything else is a
+    path for :func:`from_file`."""
     import pandas as pd
 
     if isinstance(path_or_frame, pd.DataFrame):
         return from_frame(path_or_frame, spec, chunk_rows=chunk_rows)
+    if is_dask_frame(path_or_frame):
+        return from_dask(path_or_frame, spec)
     return from_file(path_or_frame, spec,
                      chunk_rows=DEFAULT_CHUNK_ROWS if chunk_rows is None else chunk_rows)

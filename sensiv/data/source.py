@@ -132,6 +132,11 @@ class Source:
         """The parsed row filter and the kind of each column it reads, or ``None``."""
         return self._filter
 
+    def stripped(self) -> Source:
+        """A copy without its rows or readers (only what cleaning a frame needs), to send to
+        the workers of a cluster together with the frames of one partition."""
+        return dataclasses.replace(self, _frames=_no_frames, _cache=None, origin=None)
+
     def keep(self, frame: pd.DataFrame) -> np.ndarray:
         """Mask of the rows of a raw frame that the row filter keeps (all without one)."""
         if self._filter is None:
@@ -153,6 +158,10 @@ class Source:
         tally = Tally(self.spec, self.description)
         yield from clean_chunks(self, self._frames(), tally)
         tally.finish()
+
+
+def _no_frames() -> Iterator[pd.DataFrame]:
+    return iter(())
 
 
 def clean_chunks(source: Source, frames: Iterable[pd.DataFrame], tally: Tally

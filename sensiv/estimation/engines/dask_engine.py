@@ -26,6 +26,7 @@ from sensiv.core.errors import InputError
 from sensiv.data.convert import Tally
 from sensiv.data.datasets import missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
+from sensiv.data.spec import read_columns
 from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
                                        cluster_score_sums, empty_moments, score_sums as sums_of)
 
@@ -46,15 +47,20 @@ def close_clients() -> None:
 
 
 def client_of(scheduler: str | None) -> Any:
-    """A Dask client: connected to ``scheduler``, or to a local cluster started for this
-    process (one worker per core); InputError if the address does not answer."""
+    """A Dask client: connected to ``scheduler``; without one, the client the caller opened,
+    else a local cluster started for this process (one worker per core); InputError if the
+    address does not answer."""
     if scheduler in _CLIENTS:
         return _CLIENTS[scheduler]
     try:
-        from distributed import Client, LocalCluster
+        from distributed import Client, LocalCluster, default_client
     except ImportError as exc:
         raise missing_extra("dask") from exc
     if scheduler is None:
+        try:
+            return default_client()     # a client the caller opened already
+        except ValueError:
+            pass
         cluster = LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
                                processes=True, dashboard_address=None)
         client = Client(cluster)
@@ -72,15 +78,21 @@ def client_of(scheduler: str | None) -> Any:
     return client
 
 
-def _parts(source) -> list[tuple[Any, Callable | None]]:
-    """``(source, frames)`` per partition: the raw frames of one file each, or one clean
-    in-memory chunk each (``frames=None``) for sources without files."""
+def _parts(source, client: Any) -> list[tuple[Any, Any]]:
+    """``(source, frames)`` per partition: the raw frames of one file each, a partition of a
+    Dask DataFrame (a future of its frame) each, or one clean in-memory chunk each
+    (``frames=None``) for sources without files."""
+    if source.origin is not None and source.origin.kind == "dask":
+        frame = source.origin.frame[read_columns(source.spec)]
+        return [(source.stripped(), future) for future in client.compute(frame.to_delayed())]
     if source.origin is None or source.origin.kind == "duckdb":
         return [(chunk, None) for chunk in source.chunks()]
     return [(source, frames) for frames in partition_frames(source)]
 
 
-def _chunks(part: Any, frames: Callable | None, tally: Tally):
+def _chunks(part: Any, frames: Any, tally: Tally):
+    if hasattr(frames, "columns"):           # one partition of a Dask DataFrame
+        return clean_chunks(part, [frames], tally)
     if frames is None:
         tally.add(part.values.shape[0] + part.n_dropped, part.values.shape[0], {},
                   part.n_filtered)
@@ -119,12 +131,12 @@ def moments(source, columns: Sequence[str]) -> Moments:
     """Pass 1 on Dask; the same :class:`Moments` as the numpy stream."""
     client = client_of(source.scheduler)
     leaves = [client.submit(part_moments, part, frames, source.spec, source.description,
-                            tuple(columns), pure=False) for part, frames in _parts(source)]
+                            tuple(columns), pure=False) for part, frames in _parts(source, client)]
     if not leaves:
         return empty_moments(columns)
     total, (rows, kept, filtered, missing) = _tree(client, leaves, merge_moments)
     tally = Tally(source.spec, source.description)
-    if source.origin is not None and source.origin.kind != "duckdb":
+    if source.origin is not None and source.origin.kind != "duckdb":  # files, Dask frames
         tally.add(rows, kept, missing, filtered)
         tally.finish()
     return total
@@ -162,7 +174,7 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
     client = client_of(source.scheduler)
     leaves = [client.submit(part_scores, part, frames, source.spec, source.description, mean,
                             tuple(blocks), cluster, pure=False)
-              for part, frames in _parts(source)]
+              for part, frames in _parts(source, client)]
     merged = _tree(client, leaves, merge_scores)
     if not cluster:
         return ScoreSums({k: 0.5 * (v + v.T) for k, v in merged.items()}, None)

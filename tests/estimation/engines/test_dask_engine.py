@@ -123,3 +123,21 @@ def test_a_worker_closed_mid_run_still_gives_the_right_numbers(card_folder):
     finally:
         dask_engine.close_clients()
         cluster.close()
+
+
+def test_a_dask_dataframe_is_accepted_directly(scheduler):
+    import dask.dataframe as dd
+
+    from conftest import random_frame
+    from sensiv.data import from_frame, load
+
+    frame = random_frame()
+    spec = Spec("y", ["x"], ["z1", "z2"], controls=["w1", "sector"], cluster="g", weight="wt",
+                where="year != 2018")
+    source = load(dd.from_pandas(frame, npartitions=4), spec)
+    assert source.engine == "dask"
+    got = iv.fit(with_engine(source, "dask", scheduler))
+    want = iv.fit(from_frame(frame, spec))
+    assert (got.n, got.n_dropped) == (want.n, want.n_dropped)
+    np.testing.assert_allclose(got.tsls.estimate, want.tsls.estimate, rtol=1e-10)
+    np.testing.assert_allclose(got.tsls.covariance, want.tsls.covariance, rtol=1e-10)
