@@ -146,3 +146,19 @@ def test_stata_file_is_refused_by_the_duckdb_engine(tmp_path):
     run = invoke("fit", path, "--outcome", "lwage", "--treatment", "educ", "--instrument",
                  "nearc4", "--engine", "duckdb")
     assert run.exit_code == 2 and "--engine numpy" in run.output
+
+
+@pytest.mark.parametrize("command, extra", [
+    ("prior", ["--prior", "normal:0:0.01"]),
+    ("calibrate", []),
+    ("corrbound", ["--reps", "19", "--seed", "3"]),
+])
+def test_every_data_command_equals_the_numpy_engine(card_folder, command, extra):
+    numpy_doc, duckdb_doc = both(command, card_folder, CARD + DESIGNS["cluster"], extra)
+    assert_same_document(duckdb_doc, numpy_doc)
+
+
+def test_discrete_refuses_other_engines(card_folder):
+    run = invoke("discrete", card_folder, "--outcome", "black", "--treatment", "smsa",
+                 "--instrument", "nearc4", "--engine", "duckdb")
+    assert run.exit_code == 2 and "--engine numpy" in run.output
