@@ -9,8 +9,8 @@ Partition columns (``year`` above) are columns like any other: controls, cluster
 
 Examples
 --------
->>> is_dataset("data/"), is_dataset("data/*.parquet"), is_dataset("study.duckdb::visits")
-(True, True, True)
+>>> is_dataset("data/*.parquet"), is_dataset("study.duckdb::visits")
+(True, True)
 >>> is_dataset("one.csv")
 False
 """
