@@ -13,7 +13,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import ABSORB
+from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
@@ -32,7 +32,7 @@ EXAMPLE = ("\b\n"
 @app.command(epilog=EXAMPLE)
 @guarded
 def calibrate(
-    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file; a directory or glob of Parquet / CSV files (hive partitions give columns); or file.duckdb::table."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -48,6 +48,8 @@ def calibrate(
     constant: bool = CONSTANT,
     group: Optional[list[str]] = GROUP,
     no_first_stage_group: Optional[str] = NO_FIRST_STAGE_GROUP,
+    engine: str = ENGINE,
+    scheduler: Optional[str] = SCHEDULER,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write calibrate.json and calibrate.md here."),
     formats: Optional[list[str]] = FORMAT,
@@ -66,6 +68,13 @@ def calibrate(
                              where, categorical, absorb)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     groups = calibration.parse_groups(group or [])
+    if engine != "numpy" and no_first_stage_group is not None:
+        from sensiv.core.errors import InputError
+
+        raise InputError(f"--no-first-stage-group selects the subgroup's rows in memory, which "
+                         f"--engine {engine} does not do yet; use --engine numpy for it")
+    if engine != "numpy" or scheduler is not None:
+        data = engine_source(data, spec, engine, scheduler)
     result = calibration.calibrate(data, spec, groups=groups,
                                    no_first_stage_group=no_first_stage_group, se=se,
                                    confidence_level=level, small=small)

@@ -12,7 +12,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import ABSORB
+from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, TREATMENT, WEIGHT, WHERE, check_out, emit,
                                 figure_formats, out_option, spec_from_options, write_outputs)
@@ -36,7 +36,7 @@ EXAMPLE = ("\b\n"
 @app.command(epilog=EXAMPLE)
 @guarded
 def corrbound(
-    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file; a directory or glob of Parquet / CSV files (hive partitions give columns); or file.duckdb::table."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -54,6 +54,8 @@ def corrbound(
     points: int = POINTS,
     level: float = LEVEL,
     constant: bool = CONSTANT,
+    engine: str = ENGINE,
+    scheduler: Optional[str] = SCHEDULER,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write corrbound.json and corrbound.md here."),
     formats: Optional[list[str]] = FORMAT,
@@ -61,7 +63,6 @@ def corrbound(
     """Bounds on the effect when each instrument may be correlated with the error, in the
     treatment's direction and at most --max-ratio times as strongly (Nevo & Rosen 2012)."""
     check_out(out)
-    from sensiv.data import from_file
     from sensiv.core.errors import InputError
     from sensiv.partial_id.correlation import (check_one_treatment, check_options,
                                               correlation_bounds)
@@ -78,7 +79,7 @@ def corrbound(
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                              where, categorical, absorb)
     check_one_treatment(spec)
-    result = correlation_bounds(from_file(data, spec), max_ratio=max_ratio,
+    result = correlation_bounds(engine_source(data, spec, engine, scheduler), max_ratio=max_ratio,
                                 endogeneity=endogeneity, threshold=threshold, points=points,
                                 reps=reps, seed=seed, confidence_level=level, progress=not as_json)
     document = result.to_dict()

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, WHERE,
+from sensiv.cli.options import (ENGINE, FORMAT, check_engine, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, WHERE,
                                 check_out, emit, figure_formats, out_option, write_outputs)
 
 EXIT_SOLVER_FAILURE = 1
@@ -58,6 +58,7 @@ def discrete(
                                                "[default: the budget, at least 0.1, extended "
                                                "past the breakdown budget]."),
     level: float = LEVEL,
+    engine: str = ENGINE,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write discrete.json and "
                                        "discrete.md here."),
@@ -73,6 +74,12 @@ def discrete(
 
     chosen = figure_formats(formats)
 
+    check_engine(engine, None)
+    if engine != "numpy":
+        from sensiv.core.errors import InputError
+
+        raise InputError(f"discrete tabulates the rows in-process; --engine {engine} is not "
+                         "supported here yet: use --engine numpy (the default)")
     x, z = _one(treatment, "treatment"), _one(instrument, "instrument")
     if counts:
         from sensiv.core.errors import InputError

@@ -10,7 +10,7 @@ import typer
 
 from sensiv.cli.app import app, guarded
 from sensiv.core.limits import MAX_REPS
-from sensiv.cli.options import ABSORB
+from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
@@ -44,7 +44,7 @@ EXAMPLE = ("\b\n"
 @app.command(epilog=EXAMPLE)
 @guarded
 def fit(
-    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file; a directory or glob of Parquet / CSV files (hive partitions give columns); or file.duckdb::table."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -58,6 +58,8 @@ def fit(
     level: float = LEVEL,
     small: bool = SMALL,
     constant: bool = CONSTANT,
+    engine: str = ENGINE,
+    scheduler: Optional[str] = SCHEDULER,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write fit.json, fit.md, tables and a figure here."),
     formats: Optional[list[str]] = FORMAT,
@@ -69,7 +71,6 @@ def fit(
     """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
     check_out(out)
     from sensiv.estimation import iv
-    from sensiv.data import from_file
     from sensiv.present.writer import to_json
     from sensiv.present.markdown import fit_markdown
 
@@ -77,10 +78,11 @@ def fit(
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                              where, categorical, absorb)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    source = engine_source(data, spec, engine, scheduler)
     if bootstrap is None:
-        result = iv.fit(from_file(data, spec), se=se, confidence_level=level, small=small)
+        result = iv.fit(source, se=se, confidence_level=level, small=small)
     else:
-        result = bootstrapped_fit(from_file(data, spec), bootstrap, se=se or iv.default_se(spec),
+        result = bootstrapped_fit(source, bootstrap, se=se or iv.default_se(spec),
                                   level=level, small=small, threshold=threshold, reps=reps,
                                   seed=seed, progress=not as_json)
     document = result.to_dict()

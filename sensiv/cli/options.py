@@ -62,6 +62,34 @@ FOCUS = typer.Option(None, "--focus", metavar="COLUMN", help="Treatment whose co
 THRESHOLD = typer.Option(0.0, "--threshold", metavar="NUMBER", help="The conclusion examined is 'effect > threshold' (or '<').")
 
 
+ENGINE = typer.Option("numpy", "--engine", metavar="numpy|duckdb|dask", help="Engine of the passes over the rows: numpy (in-process stream), duckdb (SQL inside DuckDB, multi-threaded, out of core; pip install \"sensiv[duckdb]\") or dask (a Dask cluster; pip install \"sensiv[dask]\").")
+
+
+SCHEDULER = typer.Option(None, "--scheduler", metavar="ADDRESS", help="Address of a running Dask scheduler (tcp://host:8786) for --engine dask [default: start a local cluster, one worker per core].")
+
+
+def check_engine(engine: str, scheduler: Optional[str]) -> None:
+    """Refuse an unknown engine or a scheduler without --engine dask before reading data."""
+    from sensiv.data import ENGINES
+    from sensiv.core.errors import InputError
+
+    if engine not in ENGINES:
+        raise InputError(f"--engine {engine!r} is not an engine; choose one of "
+                         f"{', '.join(ENGINES)}")
+    if scheduler is not None and engine != "dask":
+        raise InputError(f"--scheduler {scheduler!r} is for --engine dask; add --engine dask "
+                         "or drop --scheduler")
+
+
+def engine_source(data, spec, engine: str = "numpy", scheduler: Optional[str] = None):
+    """The streaming source of DATA (a file, a directory or glob of files, file.duckdb::table)
+    read by ``engine``."""
+    from sensiv.data import from_file, with_engine
+
+    check_engine(engine, scheduler)
+    return with_engine(from_file(data, spec), engine, scheduler)
+
+
 def out_path(value) -> Path:
     """Parser of every ``--out``-like option: refuse an empty path before any work."""
     if not str(value).strip():
@@ -201,8 +229,8 @@ def emit(document: dict, text: str, as_json: bool) -> None:
 
 
 def data_source(data, outcome, treatment, instrument, control, cluster, weight, constant,
-                where=None, categorical=None, absorb=None):
-    from sensiv.data import from_file
-
-    return from_file(data, spec_from_options(outcome, treatment, instrument, control, cluster,
-                                             weight, constant, where, categorical, absorb))
+                where=None, categorical=None, absorb=None, engine="numpy", scheduler=None):
+    return engine_source(data, spec_from_options(outcome, treatment, instrument, control,
+                                                 cluster, weight, constant, where, categorical,
+                                                 absorb),
+                         engine, scheduler)

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import ABSORB
+from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE,
                                 check_out, data_source, emit, figure_formats, out_option,
@@ -26,7 +26,7 @@ EXAMPLE = ("\b\n"
 @app.command(epilog=EXAMPLE)
 @guarded
 def prior(
-    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file; a directory or glob of Parquet / CSV files (hive partitions give columns); or file.duckdb::table."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -52,6 +52,8 @@ def prior(
     seed: int = typer.Option(0, "--seed", metavar="INTEGER", help=f"Seed of the Monte Carlo draws (0 to {MAX_SEED})."),
     focus: Optional[str] = FOCUS,
     threshold: float = typer.Option(0.0, "--threshold", metavar="NUMBER", help="Threshold for the prior map: which priors leave an interval that excludes it."),
+    engine: str = ENGINE,
+    scheduler: Optional[str] = SCHEDULER,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Write prior.json, prior.md, tables and the prior map here."),
     formats: Optional[list[str]] = FORMAT,
@@ -65,7 +67,8 @@ def prior(
     chosen = figure_formats(formats)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
-                         constant, where, categorical, absorb)
+                         constant, where, categorical, absorb, engine,
+                         scheduler)
     result = prior_layer.prior_analysis(
         source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
         se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed,

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import ABSORB
+from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT,
                                 WHERE, check_out, data_source, emit, figure_formats, out_option,
@@ -26,7 +26,7 @@ EXAMPLE = ("\b\n"
 @app.command(epilog=EXAMPLE)
 @guarded
 def sweep(
-    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file."),
+    data: Path = typer.Argument(..., metavar="DATA", help="CSV, Parquet or Stata .dta file; a directory or glob of Parquet / CSV files (hive partitions give columns); or file.duckdb::table."),
     outcome: str = OUTCOME,
     treatment: list[str] = TREATMENT,
     instrument: list[str] = INSTRUMENT,
@@ -52,6 +52,8 @@ def sweep(
     points: int = typer.Option(101, "--points", metavar="INTEGER", help=f"Curve points over scalings 0..1 of the set (2 to {MAX_POINTS:,})."),
     focus: Optional[str] = FOCUS,
     adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
+    engine: str = ENGINE,
+    scheduler: Optional[str] = SCHEDULER,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Write sweep.json, sweep.md, curve.csv, tables and figures here."),
     formats: Optional[list[str]] = FORMAT,
@@ -65,7 +67,8 @@ def sweep(
     chosen = figure_formats(formats)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
-                         constant, where, categorical, absorb)
+                         constant, where, categorical, absorb, engine,
+                         scheduler)
     result = bounds.sweep(source, direct=direct or None,
                           polytope=str(direct_polytope) if direct_polytope else None, se=se,
                           confidence_level=level, small=small, threshold=threshold,

@@ -8,9 +8,10 @@ conversion, missing values, text levels, tallies), ``source`` (:class:`Source`, 
 re-exported here so that ``from sensiv.data import Spec, from_file`` reads as the layer's face.
 """
 
+from sensiv.data.datasets import ENGINES, with_engine
 from sensiv.data.readers import from_chunks, from_file, from_frame, load, read_table
 from sensiv.data.source import Chunk, Layout, Source
 from sensiv.data.spec import Spec
 
-__all__ = ["Chunk", "Layout", "Source", "Spec", "from_chunks", "from_file", "from_frame",
+__all__ = ["ENGINES", "with_engine", "Chunk", "Layout", "Source", "Spec", "from_chunks", "from_file", "from_frame",
            "load", "read_table"]

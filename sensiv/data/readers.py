@@ -17,6 +17,7 @@ Examples
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import struct
 from collections.abc import Callable, Iterator, Sequence
@@ -26,6 +27,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.data.datasets import Origin, from_dask, from_dataset, is_dask_frame, is_dataset
 from sensiv.data.source import Source, build_source
 from sensiv.data.spec import Spec, cluster_columns, read_columns
 
@@ -281,6 +283,9 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
               chunk_rows: int = DEFAULT_CHUNK_ROWS) -> Source:
     """Streaming source over a file; memory grows with ``chunk_rows``, not with the file.
 
+    ``path`` may also be a directory or glob of Parquet / CSV files (hive partitions give
+    columns) or ``file.duckdb::table`` (see :mod:`sensiv.data.datasets`).
+
     Only the used columns are read.  Column names, numeric roles and text controls are
     checked from the first rows now; values of later rows are checked as their chunk is
     reached, so iterating :meth:`Source.chunks` may raise InputError part-way.  When there are
@@ -291,8 +296,10 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
     InputError
         Any problem with the path, the file or its columns.
     """
-    resolved, fmt = _file(path)
     rows = _check_chunk_rows(chunk_rows)
+    if is_dataset(path):
+        return from_dataset(path, spec, chunk_rows=rows)
+    resolved, fmt = _file(path)
     available = _header(resolved, fmt)
     used = read_columns(spec) if isinstance(spec, Spec) else []
 
@@ -307,14 +314,20 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
         labels = [*text, *cluster_columns(spec)]
         return _reader(resolved, fmt, used, rows, labels)
 
-    return build_source(spec, resolved.name, available, samples, make_frames, eager=False)
+    source = build_source(spec, resolved.name, available, samples, make_frames, eager=False)
+    origin = Origin(fmt, (str(resolved),)) if fmt in ("csv", "parquet") else None
+    return dataclasses.replace(source, origin=origin, chunk_rows=rows)
 
 
 def load(path_or_frame: Any, spec: Spec, *, chunk_rows: int | None = None) -> Source:
-    """A DataFrame goes to :func:`from_frame`, anything else is a path for :func:`from_file`."""
+    """A DataFrame goes to :func:`from_frame`, a ``dask.dataframe.DataFrame`` to
+    :func:`~sensiv.data.datasets.from_dask` (read by the ``dask`` engine), anything else is a
+    path for :func:`from_file`."""
     import pandas as pd
 
     if isinstance(path_or_frame, pd.DataFrame):
         return from_frame(path_or_frame, spec, chunk_rows=chunk_rows)
+    if is_dask_frame(path_or_frame):
+        return from_dask(path_or_frame, spec)
     return from_file(path_or_frame, spec,
                      chunk_rows=DEFAULT_CHUNK_ROWS if chunk_rows is None else chunk_rows)

@@ -27,7 +27,7 @@ Examples
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -110,6 +110,35 @@ class Source:
     notes: tuple[str, ...] = ()
     """Conditions found while reading the data that a report should carry (e.g. a control
     that looks like an identifier)."""
+    origin: Any = None
+    """Where the raw rows live (:class:`sensiv.data.datasets.Origin`) for engines that read
+    files themselves; ``None`` for in-memory frames and Stata files."""
+    engine: str = "numpy"
+    """The engine that runs the passes over the rows: ``numpy``, ``duckdb`` or ``dask``."""
+    scheduler: str | None = None
+    """Address of a running Dask scheduler (``engine="dask"``); ``None`` starts a local one."""
+    chunk_rows: int | None = None
+    """Rows per chunk when streaming from files."""
+
+    @property
+    def frames(self) -> Callable[[], Iterator[pd.DataFrame]]:
+        """Factory of raw frame iterators over the used columns (before any cleaning)."""
+        return self._frames
+
+    @property
+    def levels(self) -> dict[str, tuple[str, ...]]:
+        """All levels of each text control, sorted; the first is the baseline the layout drops."""
+        return dict(self._levels)
+
+    @property
+    def row_filter(self) -> tuple[Node, dict[str, str]] | None:
+        """The parsed row filter and the kind of each column it reads, or ``None``."""
+        return self._filter
+
+    def stripped(self) -> Source:
+        """A copy without its rows or readers (only what cleaning a frame needs), to send to
+        the workers of a cluster together with the frames of one partition."""
+        return dataclasses.replace(self, _frames=_no_frames, _cache=None, origin=None)
 
     @property
     def in_memory(self) -> bool:
@@ -135,9 +164,20 @@ class Source:
             yield from self._cache
             return
         tally = Tally(self.spec, self.description)
-        for frame in self._frames():
-            yield _to_chunk(frame, self, tally)
+        yield from clean_chunks(self, self._frames(), tally)
         tally.finish()
+
+
+def _no_frames() -> Iterator[pd.DataFrame]:
+    return iter(())
+
+
+def clean_chunks(source: Source, frames: Iterable[pd.DataFrame], tally: Tally
+                 ) -> Iterator[Chunk]:
+    """Clean chunks of raw ``frames`` of ``source`` (e.g. one partition), counted in
+    ``tally``; the checks over the whole data set (``tally.finish()``) are the caller's."""
+    for frame in frames:
+        yield _to_chunk(frame, source, tally)
 
 
 def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tuple[

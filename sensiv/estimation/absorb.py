@@ -260,3 +260,14 @@ def nested_in(codes: np.ndarray, n_levels: int, cluster_codes: np.ndarray,
     np.minimum.at(low, codes, cluster_codes)
     np.maximum.at(high, codes, cluster_codes)
     return bool(np.all(low == high))
+
+
+def absorb_keys(result) -> dict:
+    """The JSON keys of the absorbed fixed effects (none when nothing is absorbed)."""
+    absorption = getattr(result, "absorption", None)
+    return absorption.to_dict() if absorption is not None else {}
+
+
+def absorb_assumptions(result) -> list[str]:
+    absorption = getattr(result, "absorption", None)
+    return absorption.assumptions() if absorption is not None else []

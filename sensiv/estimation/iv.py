@@ -23,18 +23,16 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
-from typing import Literal
 
 import numpy as np
 
 from sensiv.core.errors import FewClustersWarning, InputError, WeakInstrumentWarning
 from sensiv.core.results import (Interval, Presentable, describe, format_number,
                                  intervals_to_lists, json_number)
-from sensiv.data.readers import load
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
-from sensiv.estimation.absorb import Absorption
+from sensiv.estimation.absorb import Absorption, absorb_assumptions, absorb_keys
 from sensiv.estimation.absorbed_source import absorb_source
 from sensiv.estimation.covariance import (check_clusters, coefficient_covariance,
                                           combine_two_way, few_clusters_notes,
@@ -42,13 +40,14 @@ from sensiv.estimation.covariance import (check_clusters, coefficient_covariance
                                           two_way_keys)
 from sensiv.estimation.design import CONSTANT, Design, build_design, check_design
 from sensiv.estimation.diagnostics import OverId, anderson_rubin_set, overid_test
+from sensiv.estimation.fit_options import (  # noqa: F401 (re-exported: iv.check_options, …)
+    SE_TYPES, SEType, as_source, check_options, default_se)
 from sensiv.estimation.first_stage import FirstStage, first_stage_covariance, first_stages
 from sensiv.estimation.least_squares import LinearFit, solve_linear
+from sensiv.estimation.moments import Moments, ScoreSums, check_rows
+from sensiv.estimation.passes import moments_of, scores_of
 from sensiv.estimation.tf import TF, tf_interval
-from sensiv.estimation.moments import Moments, ScoreSums, accumulate, check_rows, score_sums
 
-SEType = Literal["classic", "robust", "cluster"]
-SE_TYPES: tuple[str, ...] = ("classic", "robust", "cluster")
 # Rule-of-thumb first-stage F below which Wald inference is unreliable (Staiger & Stock 1997).
 WEAK_F = 10.0
 CAUTION = ("Caution: these estimates assume the exclusion restriction holds exactly. "
@@ -203,17 +202,6 @@ class IVFit(Presentable):
         return describe(self)
 
 
-def absorb_keys(result) -> dict:
-    """The JSON keys of the absorbed fixed effects (none when nothing is absorbed)."""
-    absorption = getattr(result, "absorption", None)
-    return absorption.to_dict() if absorption is not None else {}
-
-
-def absorb_assumptions(result) -> list[str]:
-    absorption = getattr(result, "absorption", None)
-    return absorption.assumptions() if absorption is not None else []
-
-
 # ----------------------------------------------------------------------------- the fit
 @dataclass(frozen=True, slots=True)
 class Pieces:
@@ -334,33 +322,6 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         absorption=absorption, absorbed_parameters=k_fe)
 
 
-def check_options(se: str, cluster: str | None, confidence_level: float) -> None:
-    """Validate the inference options (the caller's mistakes become :class:`InputError`)."""
-    if se not in SE_TYPES:
-        raise InputError(f"--se '{se}' is not a covariance type; choose one of "
-                         f"{', '.join(SE_TYPES)}")
-    if se == "cluster" and cluster is None:
-        raise InputError("--se cluster needs a cluster variable: add --cluster COLUMN, or "
-                         "choose --se robust")
-    if not 0.0 < confidence_level < 1.0:
-        raise InputError(f"--level {confidence_level} is outside (0, 1); give a confidence "
-                         "level such as 0.95")
-
-
-def as_source(data, spec=None, *, chunk_rows: int | None = None,
-              absorb_tolerance: float | None = None):
-    """A data-layer source from a source, a DataFrame or a path (with ``spec``), with the
-    fixed effects of ``spec.absorb`` partialled out (to ``absorb_tolerance``, default 1e-10)."""
-    source = data if hasattr(data, "chunks") else load(data, spec, chunk_rows=chunk_rows)
-    if absorb_tolerance is None:
-        return absorb_source(source)
-    return absorb_source(source, tolerance=absorb_tolerance)
-
-
-def default_se(spec) -> str:
-    return "cluster" if spec.cluster else "robust"
-
-
 def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
                     extra_blocks=None) -> tuple[IVFit, Pieces, ScoreSums | None]:
     """Two passes over ``source``: the fit plus the pass-1 pieces and pass-2 sums.
@@ -373,13 +334,13 @@ def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
     source = absorb_source(source)
     absorption = getattr(source, "absorption", None)
     layout = source.layout
-    moments = accumulate(source.chunks(), layout.columns)
+    moments = moments_of(source, layout.columns)
     pieces = prepare(moments, layout, absorption.parameters(se) if absorption else 0)
     blocks = score_blocks(pieces, se) + (list(extra_blocks(pieces)) if extra_blocks else [])
     sums = None
     if blocks:
         sums = normalise_weights(
-            score_sums(source.chunks(), moments.mean, blocks, cluster=(se == "cluster")),
+            scores_of(source, moments.mean, blocks, cluster=(se == "cluster")),
             moments)
         check_clusters(sums, spec.cluster)
         sums = combine_two_way(sums, small)

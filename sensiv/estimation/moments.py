@@ -240,6 +240,10 @@ class _ClusterIndex:
     def __len__(self) -> int:
         return len(self._codes)
 
+    def labels(self) -> list:
+        """The labels met so far, in the order of their codes."""
+        return list(self._codes)
+
 
 class _RowMaps:
     """All blocks' row maps applied in one product per chunk.
@@ -310,12 +314,7 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
         for (codes, n_groups), acc_by_block in zip(coded, sums):
             for b, (a, e) in zip(blocks, mapped):
                 g = _block_scores(b, a, e, chunk.weights)
-                acc = acc_by_block[b.name]
-                if acc.shape[0] < n_groups:
-                    acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], b.size))])
-                for j in range(b.size):
-                    acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
-                acc_by_block[b.name] = acc
+                acc_by_block[b.name] = _add_by_code(acc_by_block[b.name], codes, n_groups, g)
     if not sums:  # no chunk at all
         return ScoreSums(meats, 0)
     outer = [{b.name: acc[b.name].T @ acc[b.name] for b in blocks} for acc in sums]
@@ -325,6 +324,15 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
     combined = {b.name: outer[0][b.name] + outer[1][b.name] - outer[2][b.name] for b in blocks}
     parts = tuple(zip((1, 1, -1), outer, counts))
     return ScoreSums(combined, min(counts[:2]), counts, parts)
+
+
+def _add_by_code(acc: np.ndarray, codes: np.ndarray, n_groups: int, g: np.ndarray) -> np.ndarray:
+    """``acc`` (grown to ``n_groups`` rows) plus the rows of ``g`` summed by cluster code."""
+    if acc.shape[0] < n_groups:
+        acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], g.shape[1]))])
+    for j in range(g.shape[1]):
+        acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
+    return acc
 
 
 def _encode_ways(indices: list[_ClusterIndex], labels: np.ndarray) -> list[tuple[np.ndarray, int]]:
@@ -337,6 +345,24 @@ def _encode_ways(indices: list[_ClusterIndex], labels: np.ndarray) -> list[tuple
     return [(a, n_a), (b, n_b), pair]
 
 
+def cluster_score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock]
+                       ) -> tuple[list, dict[str, np.ndarray]]:
+    """Per-cluster score sums ``s_g``: the cluster labels in order of first appearance and,
+    per block, an array ``(len(labels), size)``.  Sums over disjoint rows add by label, so
+    partitions can be summed apart and merged (a group-by sum)."""
+    maps = _RowMaps(blocks, mean)
+    index = _ClusterIndex()
+    sums = {b.name: np.zeros((0, b.size)) for b in blocks}
+    for chunk in chunks:
+        if chunk.clusters is None:
+            raise ValueError("cluster sums requested but the chunks carry no cluster labels")
+        codes, n_groups = index.encode(chunk.clusters)
+        for b, (a, e) in zip(blocks, maps.apply(chunk.values)):
+            g = _block_scores(b, a, e, chunk.weights)
+            sums[b.name] = _add_by_code(sums[b.name], codes, n_groups, g)
+    return index.labels(), sums
+
+
 def cluster_sums(chunks: Iterable, mean: np.ndarray, block: ScoreBlock) -> np.ndarray:
     """Per-cluster sums ``s_g = Σ_{i∈g} wᵢ vec(aᵢ ⊗ eᵢ)`` of one block, shape ``(G, size)``.
 
@@ -344,18 +370,7 @@ def cluster_sums(chunks: Iterable, mean: np.ndarray, block: ScoreBlock) -> np.nd
     one column of cluster labels.  The wild cluster bootstrap
     (:mod:`sensiv.estimation.wild_bootstrap`) needs these sums themselves, not only
     ``Σ_g s_g s_g'``."""
-    maps = _RowMaps([block], mean)
-    index = _ClusterIndex()
-    acc = np.zeros((0, block.size))
-    for chunk in chunks:
-        codes, n_groups = index.encode(chunk.clusters)
-        ((a, e),) = maps.apply(chunk.values)
-        g = _block_scores(block, a, e, chunk.weights)
-        if acc.shape[0] < n_groups:
-            acc = np.vstack([acc, np.zeros((n_groups - acc.shape[0], block.size))])
-        for j in range(block.size):
-            acc[:, j] += np.bincount(codes, weights=g[:, j], minlength=n_groups)
-    return acc
+    return cluster_score_sums(chunks, mean, [block])[1][block.name]
 
 
 def count_clusters(chunks: Iterable) -> tuple[int, ...]:

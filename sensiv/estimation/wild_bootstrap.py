@@ -41,7 +41,7 @@ from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_REPS, check_count, check_seed
 from sensiv.core.results import Interval, json_number
 from sensiv.estimation import iv, linalg
-from sensiv.estimation.inference import Progress
+from sensiv.core.progress import Progress
 from sensiv.estimation.moments import ScoreBlock, cluster_sums
 
 WEBB_BELOW = 12

@@ -61,6 +61,7 @@ from sensiv.estimation.absorb import Absorption
 from sensiv.estimation.absorbed_source import absorb_source
 from sensiv.estimation.iv import prepare
 from sensiv.estimation.moments import Moments, accumulate
+from sensiv.estimation.passes import moments_of
 from sensiv.partial_id.correlation_bootstrap import bootstrap, resample_rows
 from sensiv.partial_id.correlation_moments import PartialCorrelations, partial_correlations
 from sensiv.partial_id.correlation_programme import (breakdown_ratio, compiled_programmes,
@@ -229,7 +230,8 @@ def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepare
                          "clustering is available in fit, sweep, prior and calibrate)")
     layout = source.layout
     chunks = list(source.chunks()) if keep_rows else None
-    moments = accumulate(chunks if chunks is not None else source.chunks(), layout.columns)
+    moments = (accumulate(chunks, layout.columns) if chunks is not None
+               else moments_of(source, layout.columns))
     absorption = getattr(source, "absorption", None)
     fitted = prepare(moments, layout, absorption.parameters("robust") if absorption else 0)
     pc = partial_correlations(moments, layout)

@@ -11,6 +11,8 @@ from typing import Any
 
 from sensiv.analyses.registry import KINDS
 from sensiv.core.errors import InputError
+from sensiv.data import ENGINES
+from sensiv.data.datasets import is_dataset
 from sensiv.data.where import parse_filter
 from sensiv.recipes.schema import (COMMON_KEYS, DATA_KEYS, FORMATS, INFERENCE_KEYS, SE_CHOICES,
                                    STUDY_KEYS, TOP_KEYS, Analysis, Recipe, Study)
@@ -130,11 +132,15 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
                 raise lines.fail("where", f"'where' in {where}.data: {exc}") from exc
         if "path" not in data:
             raise lines.fail("data", f"{where}.data lacks 'path' (the data file)")
-        resolved = (base / data["path"]).resolve()
-        if not resolved.is_file():
+        if data.get("engine", "numpy") not in ENGINES:
+            raise lines.fail("engine", f"engine '{data['engine']}' in {where}.data is not an "
+                                       f"engine; choose one of {', '.join(ENGINES)}")
+        file, table_sep, table_name = data["path"].partition("::")
+        resolved = (base / file).resolve()
+        if not (resolved.is_file() or (not table_sep and _holds_data(resolved))):
             raise lines.fail("path", f"data file '{data['path']}' in {where}.data "
                                      f"{not_a_file(resolved)}; fix the path")
-        data = {**data, "path": str(resolved)}
+        data = {**data, "path": str(resolved) + table_sep + table_name}
     inference = dict(table.get("inference", {}))
     _check_table(inference, INFERENCE_KEYS, f"{where}.inference", lines)
     if "se" in inference and inference["se"] not in SE_CHOICES:
@@ -159,6 +165,13 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
         raise lines.fail("name", f"study name {name!r} may hold only letters, digits, '_', "
                                  "'.' and '-' (it names output files)")
     return Study(name, table.get("description", ""), data, inference, analyses)
+
+
+def _holds_data(path: Path) -> bool:
+    """A glob, or a directory with Parquet / CSV files: a partitioned data set."""
+    if path.is_dir():
+        return any(p.suffix.lower() in (".parquet", ".pq", ".csv") for p in path.rglob("*"))
+    return is_dataset(str(path))
 
 
 def not_a_file(path: Path) -> str:

@@ -12,7 +12,8 @@ from typing import Any
 from sensiv.analyses.kind import RunContext
 from sensiv.analyses.registry import entry
 from sensiv.core.errors import InputError
-from sensiv.data import Spec, from_frame, read_table
+from sensiv.data import Spec, from_file, from_frame, read_table, with_engine
+from sensiv.data.datasets import is_dataset
 from sensiv.recipes.parse import KeyLines, parse_recipe, recipe_text
 from sensiv.recipes.schema import AnalysisRun, Recipe, RunResult, Study
 
@@ -46,9 +47,14 @@ def run_recipe(recipe: Recipe | str | Path) -> RunResult:
         if study.data is not None:
             name = Path(study.data["path"]).name
             try:
-                frame = read_table(study.data["path"])
                 spec = spec_of(study.data)
-                source = from_frame(frame, spec, description=f"'{name}'")
+                engine = study.data.get("engine", "numpy")
+                if engine != "numpy" or is_dataset(study.data["path"]):
+                    source = with_engine(from_file(study.data["path"], spec), engine,
+                                         study.data.get("scheduler"))
+                else:
+                    frame = read_table(study.data["path"])
+                    source = from_frame(frame, spec, description=f"'{name}'")
             except InputError as exc:
                 raise InputError(f"{recipe.path.name}: data file '{name}' of study "
                                  f"\"{study.name}\": {exc}") from exc

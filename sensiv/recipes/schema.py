@@ -24,6 +24,9 @@ the recipe file)::
     where = "year >= 2000"         # optional: keep only the rows matching this row filter
     categorical = ["district"]     # optional: integer-coded controls turned into indicators
     absorb = ["county", "year"]    # optional: fixed effects partialled out (no indicators)
+    engine = "duckdb"              # optional: numpy (default) | duckdb | dask; path may then
+                                   #   also be a directory or glob of files, or file.duckdb::table
+    scheduler = "tcp://host:8786"  # optional, with engine = "dask": a running Dask scheduler
 
     [study.inference]              # optional
     se = "cluster"                 # classic | robust | cluster
@@ -56,7 +59,8 @@ STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
               "analysis": list}
 DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
              "controls": list, "cluster": (str, list), "weight": str, "constant": bool,
-             "where": str, "categorical": list, "absorb": list}
+             "where": str, "categorical": list, "absorb": list, "engine": str,
+             "scheduler": str}
 INFERENCE_KEYS = {"se": str, "level": float, "small": bool}
 COMMON_KEYS = {"kind": str, "label": str, "seed": int}
 

@@ -42,7 +42,8 @@ from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.absorb import Absorption
 from sensiv.estimation.covariance import count_notes
-from sensiv.estimation.moments import accumulate, count_clusters
+from sensiv.estimation.moments import count_clusters
+from sensiv.estimation.passes import moments_of
 from sensiv.sensitivity.yardsticks import (Yardstick, yardstick_groups, leave_one_out_yardsticks,
                                            instrument_coefficients)
 from sensiv.sensitivity.direct_sets import Scale, scale_from_moments
@@ -178,6 +179,19 @@ class Calibration(Presentable):
 
 
 # ============================================================================ entry point
+def _calibration_notes(source, se: str, named) -> list[str]:
+    """The data notes, a few-clusters warning per cluster variable, and the no-controls note."""
+    notes = list(getattr(source, "notes", ()))
+    if se == "cluster":  # the zero-first-stage covariance is clustered
+        for note in count_notes(count_clusters(source.chunks()), source.spec.cluster):
+            notes.append(note)
+            warnings.warn(note, FewClustersWarning, stacklevel=3)
+    if not named:
+        notes.append("no controls, so no leave-one-out yardsticks: add --control (or --group) to "
+                     "compare the direct effect with an observed confounder")
+    return notes
+
+
 def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = None,
               no_first_stage_group: str | None = None, se: iv.SEType | None = None,
               confidence_level: float = 0.95, small: bool = False,
@@ -227,7 +241,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
         check_role(spec, no_first_stage_group)
         subgroup_mask(frame, no_first_stage_group)
 
-    moments = accumulate(source.chunks(), layout.columns)
+    moments = moments_of(source, layout.columns)
     absorption = getattr(source, "absorption", None)
     pieces = iv.prepare(moments, layout)  # validates the design; gives the 2SLS estimate
     k_x = len(layout.treatments)
@@ -235,14 +249,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     full = instrument_coefficients(moments, pieces.design)
     scale = scale_from_moments(moments, layout.outcome, layout.instruments, full[:, k_x])
     yardsticks = leave_one_out_yardsticks(moments, layout, named, full, beta, scale)
-    notes = list(getattr(source, "notes", ()))
-    if se == "cluster":  # the zero-first-stage covariance is clustered
-        for note in count_notes(count_clusters(source.chunks()), spec.cluster):
-            notes.append(note)
-            warnings.warn(note, FewClustersWarning, stacklevel=2)
-    if not named:
-        notes.append("no controls, so no leave-one-out yardsticks: add --control (or --group) to "
-                     "compare the direct effect with an observed confounder")
+    notes = _calibration_notes(source, se, named)
     zfs = None
     if frame is not None:
         zfs = zero_first_stage(frame, spec, no_first_stage_group, se=se,

@@ -23,7 +23,8 @@ from sensiv.estimation.covariance import check_clusters, combine_two_way, normal
 from sensiv.estimation.design import CONSTANT, Design
 from sensiv.estimation.first_stage import first_stage_covariance
 from sensiv.estimation import iv, linalg
-from sensiv.estimation.moments import Moments, ScoreBlock, accumulate, score_sums
+from sensiv.estimation.moments import Moments, ScoreBlock
+from sensiv.estimation.passes import moments_of, scores_of
 from sensiv.sensitivity.yardsticks import (OPTION_DIGITS, design_for, outward, partialled,
                                            range_option)
 from sensiv.sensitivity.direct_sets import Scale
@@ -212,7 +213,7 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
     except InputError as exc:
         raise InputError(f"in {where}: {exc}") from exc
     layout = source.layout
-    moments = accumulate(source.chunks(), layout.columns)
+    moments = moments_of(source, layout.columns)
     k_z = len(layout.instruments)
     absorption = getattr(source, "absorption", None)
     k_fe = absorption.parameters(se) if absorption is not None else 0
@@ -294,7 +295,7 @@ def _subgroup_covariance(source, spec, moments: Moments, design: Design, gram: n
     sums = None
     if se != "classic":
         sums = normalise_weights(
-            score_sums(source.chunks(), moments.mean, [ScoreBlock("first", zt, residuals)],
+            scores_of(source, moments.mean, [ScoreBlock("first", zt, residuals)],
                        cluster=(se == "cluster")), moments)
         try:
             check_clusters(sums, spec.cluster)

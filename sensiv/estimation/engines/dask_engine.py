@@ -1,0 +1,186 @@
+"""The Dask engine: the numpy chunk kernels run per partition on a Dask cluster and their
+results are merged by the additive rules in a tree reduction.
+
+* Pass 1: each partition (one file of a data set, or one chunk of in-memory data) is cleaned
+  with the data layer's rules and reduced to :class:`~sensiv.estimation.moments.Moments` plus
+  its row counts; partitions merge by ``Moments.__add__`` (Chan, Golub & LeVeque), the counts
+  by addition, and the whole-data checks run once on the merged counts.
+* Pass 2: robust sums of score products add across partitions; cluster sums are per-cluster
+  score sums per partition, merged by a group-by sum over the labels, then ``Σ_g s_g s_g'``.
+
+``source.scheduler`` (``tcp://host:8786``) connects to a running cluster; without it a local
+cluster (one single-threaded worker process per core) is started once per process and shut
+down at exit.  Only the reduced sums (a few kB per partition) travel back.
+"""
+
+from __future__ import annotations
+
+import atexit
+import os
+from collections.abc import Callable, Sequence
+from typing import Any
+
+import numpy as np
+
+from sensiv.core.errors import InputError
+from sensiv.data.convert import Tally
+from sensiv.data.datasets import missing_extra, partition_frames
+from sensiv.data.source import clean_chunks
+from sensiv.data.spec import read_columns
+from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
+                                       cluster_score_sums, empty_moments, score_sums as sums_of)
+
+CONNECT_SECONDS = 10
+"""How long a ``--scheduler`` address may take to answer."""
+
+_CLIENTS: dict[str | None, Any] = {}
+
+
+def close_clients() -> None:
+    """Close every client this process opened (and the local clusters it started)."""
+    for scheduler, client in list(_CLIENTS.items()):
+        cluster = client.cluster if scheduler is None else None
+        client.close()
+        if cluster is not None:
+            cluster.close()
+    _CLIENTS.clear()
+
+
+def client_of(scheduler: str | None) -> Any:
+    """A Dask client: connected to ``scheduler``; without one, the client the caller opened,
+    else a local cluster started for this process (one worker per core); InputError if the
+    address does not answer."""
+    if scheduler in _CLIENTS:
+        return _CLIENTS[scheduler]
+    try:
+        from distributed import Client, LocalCluster, default_client
+    except ImportError as exc:
+        raise missing_extra("dask") from exc
+    if scheduler is None:
+        try:
+            return default_client()     # a client the caller opened already
+        except ValueError:
+            pass
+        cluster = LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
+                               processes=True, dashboard_address=None)
+        client = Client(cluster)
+    else:
+        try:
+            client = Client(scheduler, timeout=f"{CONNECT_SECONDS}s")
+        except (OSError, TimeoutError, ValueError) as exc:
+            raise InputError(f"--scheduler {scheduler!r}: no Dask scheduler answered within "
+                             f"{CONNECT_SECONDS} s ({exc}); start one with 'dask scheduler' "
+                             "and give its address (tcp://host:8786), or drop --scheduler to "
+                             "use a local cluster") from exc
+    if not _CLIENTS:
+        atexit.register(close_clients)
+    _CLIENTS[scheduler] = client
+    return client
+
+
+def _parts(source, client: Any) -> list[tuple[Any, Any]]:
+    """``(source, frames)`` per partition: the raw frames of one file each, a partition of a
+    Dask DataFrame (a future of its frame) each, or one clean in-memory chunk each
+    (``frames=None``) for sources without files."""
+    if source.origin is not None and source.origin.kind == "dask":
+        frame = source.origin.frame[read_columns(source.spec)]
+        return [(source.stripped(), future) for future in client.compute(frame.to_delayed())]
+    if source.origin is None or source.origin.kind == "duckdb":
+        return [(chunk, None) for chunk in source.chunks()]
+    return [(source, frames) for frames in partition_frames(source)]
+
+
+def _chunks(part: Any, frames: Any, tally: Tally):
+    if hasattr(frames, "columns"):           # one partition of a Dask DataFrame
+        return clean_chunks(part, [frames], tally)
+    if frames is None:
+        tally.add(part.values.shape[0] + part.n_dropped, part.values.shape[0], {},
+                  part.n_filtered)
+        return [part]
+    return clean_chunks(part, frames(), tally)
+
+
+def _counts(tally: Tally) -> tuple[int, int, int, dict[str, int]]:
+    return tally.rows, tally.kept, tally.filtered, dict(tally.missing)
+
+
+def part_moments(part: Any, frames: Callable | None, spec, description: str,
+                 columns: Sequence[str]) -> tuple[Moments, tuple]:
+    """Task: the moments and row counts of one partition."""
+    tally = Tally(spec, description)
+    return accumulate(_chunks(part, frames, tally), columns), _counts(tally)
+
+
+def merge_moments(left: tuple, right: tuple) -> tuple:
+    (m1, c1), (m2, c2) = left, right
+    missing = {k: c1[3].get(k, 0) + c2[3].get(k, 0) for k in {*c1[3], *c2[3]}}
+    return m1 + m2, (c1[0] + c2[0], c1[1] + c2[1], c1[2] + c2[2], missing)
+
+
+def _tree(client: Any, leaves: list, merge: Callable) -> Any:
+    """Pairwise tree reduction of futures on the cluster; the merged result."""
+    level = leaves
+    while len(level) > 1:
+        paired = [client.submit(merge, level[i], level[i + 1], pure=False)
+                  for i in range(0, len(level) - 1, 2)]
+        level = paired + ([level[-1]] if len(level) % 2 else [])
+    return level[0].result()
+
+
+def moments(source, columns: Sequence[str]) -> Moments:
+    """Pass 1 on Dask; the same :class:`Moments` as the numpy stream."""
+    client = client_of(source.scheduler)
+    leaves = [client.submit(part_moments, part, frames, source.spec, source.description,
+                            tuple(columns), pure=False) for part, frames in _parts(source, client)]
+    if not leaves:
+        return empty_moments(columns)
+    total, (rows, kept, filtered, missing) = _tree(client, leaves, merge_moments)
+    tally = Tally(source.spec, source.description)
+    if source.origin is not None and source.origin.kind != "duckdb":  # files, Dask frames
+        tally.add(rows, kept, missing, filtered)
+        tally.finish()
+    return total
+
+
+def part_scores(part: Any, frames: Callable | None, spec, description: str, mean: np.ndarray,
+                blocks: Sequence[ScoreBlock], cluster: bool) -> Any:
+    """Task: robust meats (a dict) or per-cluster sums (a dict of labelled frames)."""
+    import pandas as pd
+
+    chunks = _chunks(part, frames, Tally(spec, description))
+    if not cluster:
+        return sums_of(chunks, mean, blocks, False).meats
+    labels, sums = cluster_score_sums(chunks, mean, blocks)
+    index = pd.Index(labels, dtype=object)
+    return {name: pd.DataFrame(s, index=index) for name, s in sums.items()}
+
+
+def merge_scores(left: dict, right: dict) -> dict:
+    """Robust meats add; per-cluster sums add by label (a group-by sum)."""
+    import pandas as pd
+
+    out = {}
+    for name, value in left.items():
+        if isinstance(value, pd.DataFrame):
+            out[name] = pd.concat([value, right[name]]).groupby(level=0, sort=False).sum()
+        else:
+            out[name] = value + right[name]
+    return out
+
+
+def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
+               ) -> ScoreSums:
+    """Pass 2 on Dask; the same :class:`ScoreSums` as the numpy stream."""
+    client = client_of(source.scheduler)
+    leaves = [client.submit(part_scores, part, frames, source.spec, source.description, mean,
+                            tuple(blocks), cluster, pure=False)
+              for part, frames in _parts(source, client)]
+    merged = _tree(client, leaves, merge_scores)
+    if not cluster:
+        return ScoreSums({k: 0.5 * (v + v.T) for k, v in merged.items()}, None)
+    meats, groups = {}, 0
+    for name, frame in merged.items():
+        s = frame.to_numpy(dtype=np.float64)
+        meats[name] = s.T @ s
+        groups = len(frame)
+    return ScoreSums(meats, groups)

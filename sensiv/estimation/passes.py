@@ -1,0 +1,47 @@
+"""The one dispatch point of the two passes over the rows: each calls the engine the source
+carries (``source.engine``: ``numpy``, ``duckdb`` or ``dask``) and returns the same
+:class:`~sensiv.estimation.moments.Moments` / :class:`~sensiv.estimation.moments.ScoreSums`,
+so everything downstream is the same whichever engine read the rows.
+
+* ``numpy`` (default): :func:`~sensiv.estimation.moments.accumulate` and
+  :func:`~sensiv.estimation.moments.score_sums` over ``source.chunks()`` in this process.
+* ``duckdb``: both passes as SQL aggregates inside DuckDB over the files
+  (:mod:`sensiv.estimation.engines.duckdb_engine`).
+* ``dask``: the same chunk kernels per partition on a Dask cluster, merged in a tree
+  (:mod:`sensiv.estimation.engines.dask_engine`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from sensiv.estimation.engines import dask_engine, duckdb_engine
+from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums, accumulate, score_sums
+
+
+def engine_of(source) -> str:
+    """The engine a source asks for (``numpy`` for objects that carry none)."""
+    return getattr(source, "engine", "numpy") or "numpy"
+
+
+def moments_of(source, columns: Sequence[str]) -> Moments:
+    """Pass 1 over ``source``: weighted means and centred co-moments of ``columns``."""
+    engine = engine_of(source)
+    if engine == "duckdb":
+        return duckdb_engine.moments(source, columns)
+    if engine == "dask":
+        return dask_engine.moments(source, columns)
+    return accumulate(source.chunks(), columns)
+
+
+def scores_of(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
+              ) -> ScoreSums:
+    """Pass 2 over ``source``: robust or one-way cluster sums of score outer products."""
+    engine = engine_of(source)
+    if engine == "duckdb":
+        return duckdb_engine.score_sums(source, mean, blocks, cluster)
+    if engine == "dask":
+        return dask_engine.score_sums(source, mean, blocks, cluster)
+    return score_sums(source.chunks(), mean, blocks, cluster)
