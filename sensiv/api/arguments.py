@@ -83,6 +83,16 @@ def one_name(value: Any, keyword: str) -> str | None:
     raise InputError(f"{keyword}= takes one column name; got {value!r}")
 
 
+def cluster_names(value: Any) -> str | list[str] | None:
+    """``cluster=``: one column name, or a list of two for two-way clustering."""
+    if value is None or isinstance(value, str):
+        return one_name(value, "cluster")
+    found = names(value, "cluster")
+    if len(found) > 2:
+        raise InputError(f"cluster= takes one or two column names; got {len(found)}")
+    return found[0] if len(found) == 1 else list(found)
+
+
 def spec_of_roles(roles: dict[str, Any]) -> Spec:
     """The :class:`Spec` of keyword roles; unknown keywords are refused by name."""
     unknown = sorted(set(roles) - set(ROLES))
@@ -93,22 +103,16 @@ def spec_of_roles(roles: dict[str, Any]) -> Spec:
         raise InputError("name the model's columns: outcome=, treatment= and instruments= "
                          "are required with a DataFrame or a path (or pass spec=, or a "
                          "fitted model instead of data)")
-    extra = {}
-    if roles.get("absorb") is not None:
-        if "absorb" not in Spec.__dataclass_fields__:
-            raise InputError("absorb= (absorbed fixed effects) is not available in this "
-                             "version of sensiv; add the effects as categorical= controls")
-        extra["absorb"] = names(roles["absorb"], "absorb")
     constant = roles.get("constant", True)
     return Spec(outcome=one_name(roles["outcome"], "outcome"),
                 treatments=names(roles["treatment"], "treatment"),
                 instruments=names(roles["instruments"], "instruments"),
                 controls=names(roles.get("controls"), "controls"),
-                cluster=one_name(roles.get("cluster"), "cluster"),
+                cluster=cluster_names(roles.get("cluster")),
                 weight=one_name(roles.get("weight"), "weight"),
                 where=roles.get("where"), categorical=names(roles.get("categorical"),
                                                             "categorical"),
-                constant=constant, **extra)
+                constant=constant, absorb=names(roles.get("absorb"), "absorb"))
 
 
 def as_frame(data: Any) -> Any:

@@ -13,8 +13,8 @@ Recognised by duck typing, so neither library is a dependency:
 The covariance types map to sensiv's: homoskedastic → ``classic``, heteroskedasticity-robust
 → ``robust``, one-way clustered → ``cluster``; linearmodels' ``debiased=True`` and pyfixest's
 default small-sample adjustments (``k_adj`` and ``G_adj``) → ``small=True``.  Anything else
-(kernel / HAC, CRV3, two-way clusters, LIML or GMM, absorbed fixed effects while sensiv has no
-``absorb``) is refused with a message that names it.
+(kernel / HAC, CRV3, two-way clusters, LIML or GMM, interacted fixed effects) is refused with
+a message that names it; a pyfixest model's absorbed fixed effects become ``Spec.absorb``.
 """
 
 from __future__ import annotations
@@ -156,21 +156,16 @@ def _from_pyfixest(result: Any) -> FittedModel:
     spec = Spec(outcome=str(result._depvar), treatments=tuple(treatments),
                 instruments=tuple(instruments), controls=tuple(exog),
                 cluster=clusters[0] if clusters else None, weight=result._weights_name,
-                constant=constant, **({"absorb": absorb} if absorb else {}))
+                constant=constant, absorb=absorb)
     return FittedModel(frame, spec, PYFIXEST_SE[detail], _pyfixest_small(result), "pyfixest")
 
 
 def _pyfixest_absorbed(result: Any) -> tuple[str, ...]:
-    """The fixed effects a pyfixest model absorbs (``f1+f2``), refused where sensiv cannot
-    absorb them (no ``Spec.absorb``) or for interactions (``f1^f2``)."""
+    """The fixed effects a pyfixest model absorbs (``f1+f2``); interactions (``f1^f2``) are
+    refused."""
     if not result._has_fixef:
         return ()
     text = str(result._fixef)
-    if "absorb" not in Spec.__dataclass_fields__:
-        raise InputError(f"this pyfixest result absorbs fixed effects ({text}); this "
-                         "version of sensiv cannot absorb them: refit with the effects as "
-                         "indicator columns in the frame, or pass the DataFrame with "
-                         "categorical=")
     names = tuple(name.strip() for name in text.split("+"))
     if any("^" in name for name in names):
         raise InputError(f"this pyfixest result absorbs interacted fixed effects ({text}); "

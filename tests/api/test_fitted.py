@@ -136,16 +136,6 @@ def test_pyfixest_two_way_clusters_are_refused(card):
         sensiv.sweep(fitted, direct="-0.01:0.01")
 
 
-def test_pyfixest_fixed_effects_are_refused_until_sensiv_absorbs(card):
-    from sensiv.data import Spec
-
-    if "absorb" in Spec.__dataclass_fields__:
-        pytest.skip("this Spec absorbs fixed effects")
-    fitted = pf.feols("lwage ~ exper | reg661 | educ ~ nearc4", data=card)
-    with pytest.raises(InputError, match="absorbs fixed effects"):
-        sensiv.sweep(fitted, direct="-0.01:0.01")
-
-
 def test_roles_or_another_covariance_beside_a_model_are_refused(card):
     fitted = linearmodels_iv.IV2SLS.from_formula(FORMULA_LM, card).fit(cov_type="robust")
     with pytest.raises(InputError, match="outcome= cannot be combined with a fitted model"):
@@ -168,11 +158,7 @@ def test_linearmodels_formula_terms_and_missing_rows(card):
 
 
 def test_pyfixest_round_trip_with_absorbed_fixed_effects(card):
-    # reference library: pyfixest 0.60; runs once sensiv's Spec can absorb fixed effects
-    from sensiv.data import Spec
-
-    if "absorb" not in Spec.__dataclass_fields__:
-        pytest.skip("this version of sensiv has no absorb= (fixed effects are refused)")
+    # reference library: pyfixest 0.60 (its IV feols with a fixed effect absorbed)
     fitted = pf.feols("lwage ~ exper + black | reg661 | educ ~ nearc4", data=card,
                       vcov="hetero")
     result = quiet_sweep(fitted)
