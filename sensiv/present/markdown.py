@@ -9,7 +9,9 @@ from sensiv.partial_id.discrete_data import plain_number
 from sensiv.present.writer import to_json
 from sensiv.present.tables import markdown_table
 from sensiv.present.text_bias_aware import bias_aware_cells
+from sensiv.present.text_units import units_cells
 from sensiv.sensitivity import bounds
+from sensiv.sensitivity.breakdown_units import curve_units
 
 
 def fit_markdown(fit) -> str:
@@ -77,8 +79,11 @@ def sweep_markdown(res) -> str:
         t = b.bias_aware_scale
         rows.append(["bias-aware breakdown scale of the set",
                      "never (within 1000x)" if t is None else format_number(t, 6)])
+    rows += units_cells(b.direct_units, "breakdown")
+    if res.bias_aware is not None:
+        rows += units_cells(b.bias_aware_units, "bias-aware breakdown")
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
-        rows.append([f"breakdown direct effect, {z} alone",
+        rows.append([f"interval reaches θ = {format_number(b.threshold)}, {z} alone",
                      f"{'none' if lo is None else format_number(lo, 6)} / "
                      f"{'none' if hi is None else format_number(hi, 6)}"])
     ranges = markdown_table(
@@ -94,12 +99,23 @@ def sweep_markdown(res) -> str:
 
 
 def curve_csv(res) -> str:
-    """The sensitivity curve as CSV (scale, union interval, identified set, bias-aware
-    interval)."""
+    """The sensitivity curve as CSV: the scale of the set, the direct effect it stands for
+    (largest absolute value per instrument, in outcome units, as a share of the reduced form
+    and in outcome SDs per instrument SD: ``direct``, ``direct_rf``, ``direct_sd``, suffixed
+    ``_<instrument>`` with several instruments), union interval, identified set, bias-aware
+    interval."""
     keys = ("scale", "lower", "upper", "id_lower", "id_upper", "ba_lower", "ba_upper")
-    lines = [",".join(keys)]
-    for row in res.curve.to_list():
-        lines.append(",".join("" if row.get(k) is None else repr(float(row[k])) for k in keys))
+    names = res.instruments
+    suffixes = [""] if len(names) == 1 else [f"_{z}" for z in names]
+    unit_keys = [f"direct{u}{s}" for u in ("", "_rf", "_sd") for s in suffixes]
+    s = res.scale
+    units = curve_units(res.curve.scale, res.direct_set, s.reduced_form, s.outcome_sd,
+                        s.instrument_sd)
+    lines = [",".join([keys[0], *unit_keys, *keys[1:]])]
+    for row, (outcome, rf, sd) in zip(res.curve.to_list(), units):
+        cells = ["" if row.get(k) is None else repr(float(row[k])) for k in keys]
+        unit_cells = ["" if v is None else repr(float(v)) for v in (*outcome, *rf, *sd)]
+        lines.append(",".join([cells[0], *unit_cells, *cells[1:]]))
     return "\n".join(lines) + "\n"
 
 

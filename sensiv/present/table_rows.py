@@ -8,6 +8,7 @@ from sensiv.core.results import Interval, format_number
 from sensiv.estimation import iv
 from sensiv.partial_id import correlation_results, discrete_results
 from sensiv.present.tables import NONE_TEXT, TableRow, end_text
+from sensiv.present.text_units import table_words
 from sensiv.sensitivity import bounds, calibrate
 
 
@@ -45,11 +46,12 @@ def fit_rows(fit) -> list[TableRow]:
 
 
 def _sweep_breakdown(res) -> str:
-    return _scale_words(res, res.breakdown.scale)
+    return _scale_words(res, res.breakdown.scale, res.breakdown.direct_units)
 
 
-def _scale_words(res, scale: float | None) -> str:
-    """A breakdown scale of the stated set in words (union or bias-aware interval)."""
+def _scale_words(res, scale: float | None, units) -> str:
+    """A breakdown in words (union or bias-aware interval): the direct effect it stands for
+    (``units``, a ``DirectUnits`` or ``None``), then the scale of the stated set."""
     b = res.breakdown
     if scale is None:
         return (f"none within {format_number(bounds.SCALE_MAX)} × the stated set "
@@ -57,7 +59,9 @@ def _scale_words(res, scale: float | None) -> str:
     if scale == 0.0:
         return f"0: no conclusion about θ = {format_number(b.threshold)} at zero direct effect"
     sign = ">" if res.estimate > b.threshold else "<"
-    return f"{format_number(scale)} × the stated set (β {sign} {format_number(b.threshold)})"
+    lead = f"{table_words(units)} = " if units is not None else ""
+    return (f"{lead}{format_number(scale)} × the stated set (β {sign} "
+            f"{format_number(b.threshold)})")
 
 
 def _bias_aware_row(res, name: str, words: str, n, cov: str) -> TableRow:
@@ -65,8 +69,8 @@ def _bias_aware_row(res, name: str, words: str, n, cov: str) -> TableRow:
     ba = res.bias_aware
     return TableRow(f"{name} (2SLS at the {ba.centre})", words, ba.estimate, ba.se,
                     None, (ba.ci,), res.confidence_level, res.breakdown.bias_aware_scale,
-                    _scale_words(res, res.breakdown.bias_aware_scale), n, cov,
-                    bounds.CAUTION)
+                    _scale_words(res, res.breakdown.bias_aware_scale, res.breakdown.bias_aware_units), n, cov,
+                    bounds.CAUTION, breakdown_units=res.breakdown.bias_aware_units)
 
 
 def sweep_rows(res) -> list[TableRow]:
@@ -76,7 +80,8 @@ def sweep_rows(res) -> list[TableRow]:
     cov = _covariance_text(res.fit)
     rows = [TableRow(f"direct-effect sweep: {res.focus}", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
-                     res.breakdown.scale, _sweep_breakdown(res), res.n, cov, bounds.CAUTION)]
+                     res.breakdown.scale, _sweep_breakdown(res), res.n, cov, bounds.CAUTION,
+                     breakdown_units=res.breakdown.direct_units)]
     if res.bias_aware is not None:
         rows.append(_bias_aware_row(res, f"bias-aware interval: {res.focus}", words, res.n,
                                     cov))
@@ -153,7 +158,7 @@ def published_rows(res) -> list[TableRow]:
             TableRow("direct-effect stress test from printed numbers", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
                      res.breakdown.scale, _sweep_breakdown(res), res.reported.n, cov,
-                     bounds.CAUTION)]
+                     bounds.CAUTION, breakdown_units=res.breakdown.direct_units)]
     if res.bias_aware is not None:
         rows.append(_bias_aware_row(res, "bias-aware interval from printed numbers", words,
                                     res.reported.n, cov))

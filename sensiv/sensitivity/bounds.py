@@ -22,7 +22,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -35,6 +35,7 @@ from sensiv.estimation.moments import ScoreSums
 from sensiv.sensitivity.adaptive import AdaptiveResult, adaptive_set
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
                                            bias_aware_scale)
+from sensiv.sensitivity.breakdown_units import DirectUnits, direct_units
 from sensiv.sensitivity.direct_sets import (DirectSet, RangeSpec, Scale, check_range_count,
                                             parse_range, read_polytope, resolve_ranges,
                                             scale_of_pieces, set_in_units)
@@ -68,13 +69,21 @@ class Breakdown:
     direct_upper: tuple[float | None, ...]
     conclusion: str
     bias_aware_scale: float | None = None   # the same for the bias-aware interval
+    direct_units: DirectUnits | None = None  # the breakdown as direct effects (three units)
+    bias_aware_units: DirectUnits | None = None
 
     def to_dict(self) -> dict:
         return {"threshold": self.threshold, "scale": json_number(self.scale),
                 "direct_lower": [json_number(v) for v in self.direct_lower],
                 "direct_upper": [json_number(v) for v in self.direct_upper],
                 "conclusion": self.conclusion,
-                "bias_aware_scale": json_number(self.bias_aware_scale)}
+                "bias_aware_scale": json_number(self.bias_aware_scale),
+                "direct_units": _units_dict(self.direct_units),
+                "bias_aware_direct_units": _units_dict(self.bias_aware_units)}
+
+
+def _units_dict(units: DirectUnits | None) -> dict | None:
+    return units.to_dict() if units is not None else None
 
 
 @dataclass(frozen=True, slots=True)
@@ -282,6 +291,8 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
     level = result.confidence_level
     breakdown, extended, frontier = _breakdown_part(core, dset, threshold, wald,
                                                     uninformative, points, level)
+    breakdown = with_units(breakdown, dset.bounding_box, scale.reduced_form,
+                           scale.outcome_sd, scale.instrument_sd, core.instruments)
     ba = bias_aware([core], dset, level, unbounded=uninformative)
     ba_lo, ba_hi = bias_aware_curve([core], dset, scales, level, unbounded=uninformative)
     ar, ar_method, fas = None, None, None
@@ -309,6 +320,16 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         curve=Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi), ar_set=ar,
         ar_method=ar_method, scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)),
         frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba)
+
+
+def with_units(breakdown: Breakdown, box, reduced_form, outcome_sd, instrument_sd,
+               instruments) -> Breakdown:
+    """``breakdown`` with its scales read as direct effects in outcome, reduced-form and SD
+    units (:func:`sensiv.sensitivity.breakdown_units.direct_units`)."""
+    def units(t):
+        return direct_units(t, instruments, box, reduced_form, outcome_sd, instrument_sd)
+    return replace(breakdown, direct_units=units(breakdown.scale),
+                   bias_aware_units=units(breakdown.bias_aware_scale))
 
 
 def differs_materially(ar: tuple[Interval, ...], wald: Interval) -> bool:
