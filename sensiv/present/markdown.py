@@ -8,6 +8,7 @@ from sensiv.estimation import iv
 from sensiv.partial_id.discrete_data import plain_number
 from sensiv.present.writer import to_json
 from sensiv.present.tables import markdown_table
+from sensiv.present.text_at import at_cells, at_heading
 from sensiv.present.text_bias_aware import bias_aware_cells
 from sensiv.present.text_units import units_cells
 from sensiv.sensitivity import bounds
@@ -91,9 +92,10 @@ def sweep_markdown(res) -> str:
         [[z, str(a), str(r), str(s)] for z, a, r, s in
          zip(res.instruments, res.direct_set, res.direct_set_rf, res.direct_set_sd)])
     notes = "".join(f"\n**Warning:** {n}\n" for n in res.notes)
+    at = (f"\n## {at_heading(res)}\n\n{markdown_table(*at_cells(res))}" if res.at else "")
     return (f"# Direct-effect sensitivity: {res.focus} → {res.outcome}\n\n"
             f"n = {res.n}, covariance: {res.se_type}.\n\n## Assumed direct effects\n\n{ranges}\n"
-            f"## Results\n\n{markdown_table(['quantity', 'value'], rows)}{notes}\n"
+            f"## Results\n\n{markdown_table(['quantity', 'value'], rows)}{notes}{at}\n"
             "## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
             + f"\n\n> {bounds.CAUTION}\n")
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
 from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
+from sensiv.present.text_at import at_cells, at_heading
 from sensiv.present.text_units import breakdown_sentence, crossing_lines
 from sensiv.sensitivity import bounds
 
@@ -104,7 +105,10 @@ def sweep_summary(res) -> str:
     ]
     lines += crossing_lines(res.instruments, b)
     if res.bias_aware is not None:
-        lines.append(f"Bias-aware breakdown: {bias_aware_breakdown(b.bias_aware_scale, units=b.bias_aware_units)}")
+        lines.append("Bias-aware breakdown: "
+                     + bias_aware_breakdown(b.bias_aware_scale, units=b.bias_aware_units))
+    if res.at:
+        lines += ["", at_heading(res) + ":", *_table(*at_cells(res))]
     if res.fit.overid is not None:
         o = res.fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "

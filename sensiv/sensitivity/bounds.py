@@ -33,6 +33,7 @@ from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.moments import ScoreSums
 from sensiv.sensitivity.adaptive import AdaptiveResult, adaptive_set
+from sensiv.sensitivity.at_points import AtPoint, AtValue, at_points, parse_at
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
                                            bias_aware_scale)
 from sensiv.sensitivity.breakdown_units import DirectUnits, direct_units
@@ -140,6 +141,7 @@ class SweepResult:
     curve_extended: Curve | None = None
     adaptive: AdaptiveResult | None = None  # with ``adaptive=True``
     bias_aware: BiasAware | None = None
+    at: tuple[AtPoint, ...] = ()            # intervals at the --at grid of direct effects
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -176,6 +178,7 @@ class SweepResult:
             "union_ci_wald": self.union_ci_wald.to_list(),
             "bias_aware": self.bias_aware.to_dict() if self.bias_aware is not None else None,
             "breakdown": self.breakdown.to_dict(),
+            "at": [p.to_dict() for p in self.at],
             "curve": self.curve.to_list(),
             "frontier": self.frontier.to_list() if self.frontier is not None else None,
             "curve_extended": (self.curve_extended.to_list()
@@ -211,7 +214,7 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
           polytope: str | None = None, se: str | None = None, confidence_level: float = 0.95,
           small: bool = False, threshold: float = 0.0, points: int = DEFAULT_POINTS,
           focus: str | None = None, adaptive: bool = False,
-          chunk_rows: int | None = None) -> SweepResult:
+          chunk_rows: int | None = None, at=None) -> SweepResult:
     """Direct-effect sensitivity analysis from data (two passes over the rows, then closed forms).
 
     Parameters
@@ -229,6 +232,10 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     adaptive : bool
         Add the falsification adaptive set of Masten & Poirier (2021) (one treatment; with one
         instrument it is the 2SLS point).
+    at : str or sequence, optional
+        Direct effects ``v`` (e.g. ``"0.005,0.01"`` or ``[0.005, "0.1rf"]``) at which to report
+        the intervals over the box ``±v`` for every instrument
+        (:mod:`sensiv.sensitivity.at_points`).
 
     Returns
     -------
@@ -238,6 +245,7 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
         raise InputError("give either one --direct range per instrument or --direct-polytope "
                          "FILE (not both, not neither)")
     ranges = [parse_range(r) if isinstance(r, str) else r for r in (direct or [])]
+    grid = parse_at(at)
     check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):
         raise InputError("--threshold must be a finite number")
@@ -256,13 +264,13 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
         extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
     with overflow_guard("the --direct range (or polytope)"):
         return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
-                       threshold=threshold, points=points, adaptive=adaptive)
+                       threshold=threshold, points=points, adaptive=adaptive, at=grid)
 
 
 def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int, *,
             ranges: Sequence[RangeSpec] = (), dset: DirectSet | None = None,
             threshold: float = 0.0, points: int = DEFAULT_POINTS,
-            adaptive: bool = False) -> SweepResult:
+            adaptive: bool = False, at: Sequence[AtValue] = ()) -> SweepResult:
     """The sweep from a fit's pieces (no further pass over the rows)."""
     core = build_core(pieces, sums, result, j)
     scale = scale_of_pieces(pieces)
@@ -319,7 +327,8 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         identified_set=ident, union_ci=union, union_ci_wald=wald, breakdown=breakdown,
         curve=Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi), ar_set=ar,
         ar_method=ar_method, scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)),
-        frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba)
+        frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba,
+        at=at_points(core, scale, at, level, uninformative))
 
 
 def with_units(breakdown: Breakdown, box, reduced_form, outcome_sd, instrument_sd,

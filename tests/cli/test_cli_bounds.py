@@ -212,3 +212,36 @@ def test_no_conclusion_says_where_one_would_first_appear():
     assert "no conclusion to break" in result.stdout
     assert "a conclusion about 0.012 would first appear at a direct effect of" in result.stdout
     assert "an end of the interval crosses" not in result.stdout
+
+
+def test_at_grid_on_the_command_line_and_in_a_recipe(tmp_path):
+    # common practice, no source: the value of the stated half-width gives the stated union
+    result = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--at", "0.005,0.01",
+                    "--json")
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert [p["value"] for p in doc["at"]] == [0.005, 0.01]
+    assert doc["at"][0]["union_ci"] == pytest.approx(doc["union_ci"])
+    text = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--at", "0.005,0.01")
+    assert "Intervals at given direct effects" in text.stdout
+    bad(invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--at", "big"),
+        "--at value 'big' is not a number")
+    recipe = tmp_path / "r.toml"
+    recipe.write_text(f'''[[study]]
+name = "s"
+[study.data]
+path = "{EXAMPLE.as_posix()}"
+outcome = "maize_yield"
+treatments = ["irrigation_hours"]
+instruments = ["height_m"]
+controls = ["plot_ha", "soil"]
+[[study.analysis]]
+kind = "sweep"
+direct = ["-0.005:0.005"]
+at = [0.005, "0.1rf"]
+''')
+    from sensiv.recipes.run import run_recipe
+
+    run = run_recipe(recipe)
+    points = run.runs[0].result.at
+    assert [p.given.text() for p in points] == ["0.005", "0.1rf"]
