@@ -106,6 +106,9 @@ def corrbound_rows(res) -> list[TableRow]:
              f"endogeneity {res.endogeneity}")
     k = res.breakdown_ratio
     text = _bound_breakdown("r̄", k, res.threshold, "set")
+    if res.sign_reversal:
+        text += (f"; a sign reversal against 2SLS: from r̄ = "
+                 f"{format_number(res.min_ratio_consistent)} the set gives {res.conclusion}")
     if res.bootstrap is not None:
         b = res.bootstrap
         cov = (f"bootstrap, {b.reps} reps"
@@ -224,9 +227,11 @@ def _direct_of(instrument: str) -> str:
 
 
 def _bound_breakdown(symbol: str, value: float | None, threshold: float, what: str) -> str:
+    """A breakdown value in words; ``what`` is "set" (singular) or "bounds" (plural)."""
     theta = format_number(threshold)
+    verb = "contains" if what == "set" else "contain"
     if value is None:
         return f"none for {symbol} ≤ 1 (θ = {theta})"
     if value == 0.0:
-        return f"0: no conclusion, the {what} at {symbol} = 0 contain θ = {theta}"
-    return f"{symbol} = {format_number(value)} ({what} first contain θ = {theta})"
+        return f"0: no conclusion, the {what} at {symbol} = 0 already {verb} θ = {theta}"
+    return f"{symbol} = {format_number(value)} (the {what} first {verb} θ = {theta})"
