@@ -120,12 +120,17 @@ def corrbound_rows(res) -> list[TableRow]:
                      res.confidence_level, k, text, res.n, cov, correlation_results.CAUTION)]
 
 
+ESTIMAND_WORDS = ("bounds the average effect over all units, Σ_z P̂(z)·E[Y(1,z) − Y(0,z)] — "
+                  "not the complier effect that 2SLS estimates under monotonicity")
+
+
 def discrete_rows(res) -> list[TableRow]:
     t = res.table
     words = (f"{t.instrument} randomised; changes {t.outcome} directly for at most "
              f"{format_number(res.budget)} of units"
              + (f"; monotone (defiers ≤ {format_number(res.defier_budget)})"
-                if res.monotone else ""))
+                if res.monotone else "")
+             + f"; {ESTIMAND_WORDS}")
     cov = (f"bootstrap, {res.bootstrap.reps} reps" if res.bootstrap is not None
            else "no bootstrap")
     rows = []
