@@ -319,7 +319,7 @@ def _notes(final: CurvePoint, min_ratio: float | None, max_ratio: float,
         else:
             notes.append(f"the identified set is empty at r̄ = {r}: the data contradict the "
                          f"assumption at this ratio; it is non-empty for r̄ above "
-                         f"{format_number(min_ratio, 6)} (smallest consistent ratio)")
+                         f"{format_number(min_ratio)} (smallest consistent ratio)")
     elif not at_zero.pieces and len(layout.instruments) > 1:
         notes.append("with several instruments the set at r̄ = 0 is empty unless the "
                      "instruments give exactly the same 2SLS estimate; that is expected, and "

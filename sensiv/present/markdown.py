@@ -21,10 +21,10 @@ def fit_markdown(fit) -> str:
     rows = []
     for name in fit.reported_names():
         ci = fit.conf_int(name)
-        rows.append([name, format_number(fit.tsls.value(name), 6),
-                     format_number(fit.tsls.std_error(name), 6), str(ci),
-                     format_number(fit.ols.value(name), 6),
-                     format_number(fit.ols.std_error(name), 6)])
+        rows.append([name, format_number(fit.tsls.value(name)),
+                     format_number(fit.tsls.std_error(name)), str(ci),
+                     format_number(fit.ols.value(name)),
+                     format_number(fit.ols.std_error(name))])
     parts = [
         f"# 2SLS: {fit.outcome} on {', '.join(fit.treatments)}\n",
         f"Instruments: {', '.join(fit.instruments)}. Controls: "
@@ -39,9 +39,9 @@ def fit_markdown(fit) -> str:
         "\n## First stage\n",
         markdown_table(
             ["treatment", "instrument", "coef", "se", "F", "partial R²", "effective F"],
-            [[fs.treatment, inst, format_number(fs.coef[inst], 6), format_number(fs.se[inst], 6),
-              format_number(fs.f, 5), format_number(fs.partial_r2, 4),
-              format_number(fs.effective_f, 5) if fs.effective_f is not None else "n/a"]
+            [[fs.treatment, inst, format_number(fs.coef[inst]), format_number(fs.se[inst]),
+              format_number(fs.f), format_number(fs.partial_r2, 4),
+              format_number(fs.effective_f) if fs.effective_f is not None else "n/a"]
              for fs in fit.first_stages for inst in fit.instruments]),
     ]
     if fit.ar_set is not None:
@@ -50,7 +50,7 @@ def fit_markdown(fit) -> str:
                      f"{pieces}\n")
     if fit.overid is not None:
         o = fit.overid
-        parts.append(f"\nOveridentification test ({o.name}): {format_number(o.stat, 5)} on "
+        parts.append(f"\nOveridentification test ({o.name}): {format_number(o.stat)} on "
                      f"{o.df} df, p = {format_number(o.p_value, 3)}\n")
     for note in fit.notes:
         parts.append(f"\n**Warning:** {note}\n")
@@ -63,10 +63,10 @@ def sweep_markdown(res) -> str:
     """Markdown report of a direct-effect sweep."""
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown
-    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale, 6)
+    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale)
     rows = [
-        ["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
-                                       f"{format_number(res.se, 6)})"],
+        ["2SLS at zero direct effect", f"{format_number(res.estimate)} (se "
+                                       f"{format_number(res.se)})"],
         ["identified set", str(res.identified_set)],
         [f"union of {pct} intervals", str(res.union_ci)],
         *(bias_aware_cells(res.bias_aware, res.confidence_level)
@@ -79,14 +79,14 @@ def sweep_markdown(res) -> str:
     if res.bias_aware is not None:
         t = b.bias_aware_scale
         rows.append(["bias-aware breakdown scale of the set",
-                     "never (within 1000x)" if t is None else format_number(t, 6)])
+                     "never (within 1000x)" if t is None else format_number(t)])
     rows += units_cells(b.direct_units, "breakdown")
     if res.bias_aware is not None:
         rows += units_cells(b.bias_aware_units, "bias-aware breakdown")
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
         rows.append([f"interval reaches θ = {format_number(b.threshold)}, {z} alone",
-                     f"{'none' if lo is None else format_number(lo, 6)} / "
-                     f"{'none' if hi is None else format_number(hi, 6)}"])
+                     f"{'none' if lo is None else format_number(lo)} / "
+                     f"{'none' if hi is None else format_number(hi)}"])
     ranges = markdown_table(
         ["instrument", "outcome units", "share of reduced form", "SD units"],
         [[z, str(a), str(r), str(s)] for z, a, r, s in
@@ -128,10 +128,10 @@ def sweep_files(res) -> dict[str, str]:
 
 def prior_markdown(res) -> str:
     pct = f"{100 * res.confidence_level:g}%"
-    rows = [["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
-                                           f"{format_number(res.se, 6)})"],
+    rows = [["2SLS at zero direct effect", f"{format_number(res.estimate)} (se "
+                                           f"{format_number(res.se)})"],
             [f"{pct} prior interval", str(res.interval)],
-            ["center", format_number(res.center, 6)],
+            ["center", format_number(res.center)],
             ["method", res.method],
             ["Monte Carlo error", "n/a" if res.mc_error is None else format_number(res.mc_error,
                                                                                    3)]]

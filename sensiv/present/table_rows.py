@@ -7,7 +7,7 @@ from __future__ import annotations
 from sensiv.core.results import Interval, format_number
 from sensiv.estimation import iv
 from sensiv.partial_id import correlation_results, discrete_results
-from sensiv.present.tables import NONE_TEXT, TableRow, end_text
+from sensiv.present.tables import NONE_TEXT, TableRow, end_text, interval_text
 from sensiv.present.text_units import table_words
 from sensiv.sensitivity import bounds, calibrate
 
@@ -17,7 +17,7 @@ def _pieces(pieces) -> tuple[Interval, ...]:
 
 
 def _ranges_text(names, boxes) -> str:
-    return ", ".join(f"{z} in [{end_text(b.low)}, {end_text(b.high)}]"
+    return ", ".join(f"{z} in {interval_text(b.low, b.high)}"
                      for z, b in zip(names, boxes))
 
 
@@ -153,7 +153,7 @@ def published_rows(res) -> list[TableRow]:
     pct = f"{100 * res.confidence_level:g}%"
     cov = f"from reported numbers ({res.covariance.method})"
     box = res.direct_set
-    words = (f"direct effect in [{end_text(box.low)}, {end_text(box.high)}] (outcome units; "
+    words = (f"direct effect in {interval_text(box.low, box.high)} (outcome units; "
              "given as "
              f"{res.range_text}); {res.approximation}")
     # the curve at zero direct effect is the printed estimate's interval (unbounded when the
@@ -204,7 +204,8 @@ def calibrate_rows(res) -> list[TableRow]:
         rows.append(TableRow(
             f"yardstick: {_direct_of(b.instrument)} without {b.name}",
             f"an unobserved direct effect comparable to the shift in the reduced form of "
-            f"{b.instrument} when {left} is left out (a judgement, not a test)",
+            f"{b.instrument} when {left} {'are' if len(b.columns) > 1 else 'is'} left out "
+            "(a judgement, not a test)",
             b.implied_direct, None, None, None, level, None, NONE_TEXT, res.n,
             "none (point values)", calibrate.CAUTION, b.implied_direct_rf, b.implied_direct_sd,
             b.sweep_option))

@@ -11,7 +11,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from sensiv.core.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.core.results import (Interval, format_ends, format_number, intervals_to_lists,
+                                 json_number)
 from sensiv.present.writer import to_json
 
 
@@ -95,12 +96,21 @@ def end_text(value: float) -> str:
     return format_number(value).replace("-", "−")
 
 
+def interval_text(low: float, high: float) -> str:
+    """``[low, high]`` for a table cell: both ends in one format
+    (:func:`sensiv.core.results.format_ends`), a true minus sign, ``±∞`` for infinite ends."""
+    ends = []
+    for value, text in zip((low, high), format_ends(low, high)):
+        ends.append(end_text(value) if math.isinf(value) else text.replace("-", "−"))
+    return f"[{ends[0]}, {ends[1]}]"
+
+
 def _pieces_text(pieces) -> str:
     if pieces is None:
         return NONE_TEXT
     if not pieces:
         return "empty"
-    return " ∪ ".join(f"[{end_text(p.low)}, {end_text(p.high)}]" for p in pieces)
+    return " ∪ ".join(interval_text(p.low, p.high) for p in pieces)
 
 
 def _estimate_text(row: TableRow) -> str:

@@ -32,5 +32,5 @@ def bias_aware_cells(ba, confidence_level: float) -> list[list[str]]:
     pct = f"{100 * confidence_level:g}%"
     return [[f"bias-aware {pct} interval (2SLS at the {ba.centre})", str(ba.ci)],
             ["bias-aware: estimate / worst-case bias / largest se / critical value",
-             " / ".join(format_number(v, 6) for v in (ba.estimate, ba.max_bias, ba.se,
+             " / ".join(format_number(v) for v in (ba.estimate, ba.max_bias, ba.se,
                                                        ba.critical_value))]]

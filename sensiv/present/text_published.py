@@ -94,17 +94,17 @@ def published_text(res: PublishedResult) -> str:
 
 
 def _ba_scale(scale: float | None) -> str:
-    return "never (within 1000x)" if scale is None else format_number(scale, 6)
+    return "never (within 1000x)" if scale is None else format_number(scale)
 
 
 def published_markdown(res: PublishedResult) -> str:
     """Markdown report of a published stress test."""
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown
-    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale, 6)
+    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale)
     rows = [
-        ["reported estimate", f"{format_number(res.estimate, 6)} (se "
-                              f"{format_number(res.se, 6)})"],
+        ["reported estimate", f"{format_number(res.estimate)} (se "
+                              f"{format_number(res.se)})"],
         ["assumed direct effect (outcome units)", str(res.direct_set)],
         ["assumed direct effect (share of reduced form)",
          str(res.direct_set_rf) if res.direct_set_rf else "n/a"],
@@ -121,8 +121,8 @@ def published_markdown(res: PublishedResult) -> str:
         *(units_cells(b.bias_aware_units, "bias-aware breakdown")
           if res.bias_aware is not None else []),
         ["interval reaches the threshold at a direct effect (below / above zero)",
-         f"{'none' if b.direct_lower[0] is None else format_number(b.direct_lower[0], 6)} / "
-         f"{'none' if b.direct_upper[0] is None else format_number(b.direct_upper[0], 6)}"],
+         f"{'none' if b.direct_lower[0] is None else format_number(b.direct_lower[0])} / "
+         f"{'none' if b.direct_upper[0] is None else format_number(b.direct_upper[0])}"],
     ]
     if res.prior is not None:
         rows.append([f"{pct} prior interval ({res.prior.law}, {res.prior.method})",
