@@ -6,7 +6,8 @@ from sensiv.analyses.kind import AnalysisKind
 from sensiv.present import figures, table_rows, text
 from sensiv.sensitivity import bounds
 
-OPTIONS = {"direct": list, "polytope": str, "threshold": float, "points": int, "focus": str}
+OPTIONS = {"direct": list, "polytope": str, "threshold": float, "points": int, "focus": str,
+           "at": list}
 
 
 def run(context, options) -> bounds.SweepResult:
@@ -14,7 +15,7 @@ def run(context, options) -> bounds.SweepResult:
     return bounds.sweep(context.source, direct=o.get("direct"), polytope=o.get("polytope"),
                         threshold=o.get("threshold", 0.0),
                         points=o.get("points", bounds.DEFAULT_POINTS), focus=o.get("focus"),
-                        **context.common)
+                        at=o.get("at"), **context.common)
 
 
 def draw(result, note):

@@ -51,6 +51,11 @@ def sweep(
     threshold: float = THRESHOLD,
     points: int = typer.Option(101, "--points", metavar="INTEGER", help=f"Curve points over scalings 0..1 of the set (2 to {MAX_POINTS:,})."),
     focus: Optional[str] = FOCUS,
+    at: Optional[str] = typer.Option(
+        None, "--at", metavar="V1,V2,...",
+        help="Direct effects v at which to report the intervals over -v..v (for every "
+             "instrument at once), e.g. --at 0.005,0.01,0.02; suffix 'rf' or 'sd' as for "
+             "--direct."),
     adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
     engine: str = ENGINE,
     scheduler: Optional[str] = SCHEDULER,
@@ -72,7 +77,7 @@ def sweep(
     result = bounds.sweep(source, direct=direct or None,
                           polytope=str(direct_polytope) if direct_polytope else None, se=se,
                           confidence_level=level, small=small, threshold=threshold,
-                          points=points, focus=focus, adaptive=adaptive)
+                          points=points, focus=focus, adaptive=adaptive, at=at)
     if out is not None:
         write_outputs(out, result, sweep_files(result), chosen)
     emit(result.to_dict(), str(result), as_json)

@@ -59,25 +59,85 @@ class Interval:
         return [json_number(self.low), json_number(self.high)]
 
     def __str__(self) -> str:
-        return f"[{format_number(self.low)}, {format_number(self.high)}]"
+        low, high = format_ends(self.low, self.high)
+        return f"[{low}, {high}]"
 
 
-def format_number(value: float, digits: int = 4) -> str:
+# The number policy (DEVELOPERS.md, "Numbers"): DIGITS significant digits in text, Markdown and
+# LaTeX; full precision (repr) in JSON and CSV; a zero never carries a sign; the two ends of an
+# interval share one format (format_ends).
+DIGITS = 4
+# Plain decimals for magnitudes in [SMALL, LARGE); a common power of ten outside.
+SMALL, LARGE = 1e-4, 1e6
+
+
+def format_number(value: float, digits: int = DIGITS) -> str:
     """Readable number: ``-inf``/``inf`` spelled out, otherwise ``digits`` significant digits;
-    zero is ``0``, never ``-0``.
+    a value that rounds to zero is ``0`` (never ``-0``).
 
     Examples
     --------
-    >>> format_number(-0.0), format_number(-0.000123456), format_number(float("-inf"))
-    ('0', '-0.0001235', '-inf')
+    >>> format_number(-0.00001, 1), format_number(0.1322891)
+    ('-1e-05', '0.1323')
+    >>> format_number(-0.0)
+    '0'
     """
-    if value == 0.0:
-        return "0"
     if math.isnan(value):
         return "n/a"
     if math.isinf(value):
         return "-inf" if value < 0 else "+inf"
-    return f"{value:.{digits}g}"
+    text = f"{value:.{digits}g}"
+    return "0" if float(text) == 0.0 else text
+
+
+def format_ends(low: float, high: float, digits: int = DIGITS) -> tuple[str, str]:
+    """The two ends of an interval in one format: the larger end in magnitude gets ``digits``
+    significant digits and the other the same number of decimals (plain decimals between
+    :data:`SMALL` and :data:`LARGE`, else a common power of ten), so ``7.043e-05`` never stands
+    beside ``0.1227``; infinite ends are spelled out, and zero has no sign.
+
+    Examples
+    --------
+    >>> format_ends(7.043e-05, 0.1227)
+    ('0.0001', '0.1227')
+    >>> format_ends(0.5, 1.2)
+    ('0.5', '1.2')
+    >>> format_ends(-1e-9, -2e-10)
+    ('-1e-09', '-2e-10')
+    """
+    finite = [abs(v) for v in (low, high) if math.isfinite(v)]
+    big = max(finite, default=0.0)
+    if len(finite) < 2 or not SMALL <= big < LARGE:
+        # an infinite end, or both ends tiny or huge: each in its own significant digits
+        return format_number(low, digits), format_number(high, digits)
+    exponent = math.floor(math.log10(big))
+    if float(f"{big:.{max(digits - 1 - exponent, 0)}f}") >= 10.0 ** (exponent + 1):
+        exponent += 1                                   # 99.996 rounds up to 100.0
+    decimals = max(digits - 1 - exponent, 0)
+    ends = [_fixed(low, decimals), _fixed(high, decimals)]
+    # the same trailing zeros off both ends: the decimals stay common
+    while (any("." in e for e in ends)
+           and all(e.endswith("0") for e in ends if "." in e)):
+        ends = [e[:-1] if "." in e else e for e in ends]
+    ends = [e[:-1] if e.endswith(".") else e for e in ends]
+    return ends[0], ends[1]
+
+
+def with_article(word: str) -> str:
+    """``word`` with its indefinite article, for messages about roles ("an instrument",
+    "a treatment").
+
+    Examples
+    --------
+    >>> with_article("instrument"), with_article("control")
+    ('an instrument', 'a control')
+    """
+    return ("an " if word[:1].lower() in "aeiou" else "a ") + word
+
+
+def _fixed(value: float, decimals: int) -> str:
+    text = f"{value:.{decimals}f}"
+    return "0" if float(text) == 0.0 else text
 
 
 def intervals_to_lists(pieces: tuple[Interval, ...]) -> list[list[float | None]]:

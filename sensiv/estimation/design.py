@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.results import with_article
 from sensiv.estimation import linalg
 from sensiv.estimation.moments import Moments
 
@@ -112,7 +113,7 @@ def check_design(design: Design, weighted_gram: np.ndarray, moments: Moments) ->
     for name, role in roles:
         if name in constant:
             raise InputError(f"{role} '{name}' is constant in the {moments.n} rows used; "
-                             f"choose a {role} that varies")
+                             f"choose {with_article(role)} that varies")
     n_w = len(design.control_names)
     for maps, names, role in (
         (design.instrument_set, (*design.control_names, *design.instruments), "instrument"),

@@ -301,10 +301,14 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         strength = fs.effective_f if fs.effective_f is not None else fs.f
         label = "effective first-stage F" if fs.effective_f is not None else "first-stage F"
         if not strength >= WEAK_F:
+            advice = ("rely on the Anderson-Rubin set" if ar is not None else
+                      "sensiv computes the Anderson-Rubin set for one treatment only, so with "
+                      f"{len(d.treatments)} treatments no weak-instrument-robust set is "
+                      "available: read the Wald intervals with great care, compare each "
+                      "treatment's first-stage F, and look for stronger instruments")
             message = (f"weak instrument: the {label} for '{fs.treatment}' is "
                        f"{format_number(strength, 3)} (< {WEAK_F:g}); 2SLS is biased towards "
-                       "OLS and its Wald interval may be far too narrow; rely on the "
-                       "Anderson-Rubin set")
+                       f"OLS and its Wald interval may be far too narrow; {advice}")
             notes.append(message)
             warnings.warn(message, WeakInstrumentWarning, stacklevel=3)
     return IVFit(

@@ -52,7 +52,7 @@ from typing import Literal
 
 import numpy as np
 
-from sensiv.core.errors import FewClustersWarning, InputError
+from sensiv.core.errors import FewClustersWarning, InaccurateSolveWarning, InputError
 from sensiv.core.limits import MAX_POINTS, MAX_REPS, check_count, check_seed
 from sensiv.core.results import Interval, format_number
 from sensiv.data import Layout, Spec, load
@@ -82,6 +82,7 @@ DEFAULT_MAX_RATIO = 1.0
 DEFAULT_POINTS = 51
 DEFAULT_REPS = 999
 MIN_POINTS = 2
+FIRST_STEPS = (1e-9, 1e-6, 1e-3)   # steps past the smallest consistent ratio (an infimum)
 
 
 # ----------------------------------------------------------------------------- validation
@@ -183,7 +184,9 @@ def correlation_bounds(data, spec=None, *, max_ratio: float = DEFAULT_MAX_RATIO,
     prepared = _prepare(data, spec, chunk_rows, keep_rows=bool(reps))
     layout, pc = prepared.layout, prepared.pc
     signs = _SIGNS[endogeneity]
-    curve, by_sign, min_ratio = _sets(pc, signs, float(max_ratio), int(points))
+    breakdown = breakdown_ratio(pc, signs, float(threshold))
+    curve, by_sign, min_ratio, first = _sets(pc, signs, float(max_ratio), int(points),
+                                             breakdown)
     notes = [*prepared.notes, *_notes(curve[-1], min_ratio, max_ratio, pc, layout, curve[0])]
     boot = _inference(prepared, signs, float(max_ratio), curve[-1].hull, reps, seed,
                       confidence_level, progress, notes)
@@ -196,8 +199,8 @@ def correlation_bounds(data, spec=None, *, max_ratio: float = DEFAULT_MAX_RATIO,
         confidence_level=float(confidence_level), tsls=prepared.tsls, ols=prepared.ols,
         instrument_treatment_corr=tuple(float(v) for v in pc.zx),
         pieces=curve[-1].pieces, pieces_by_sign=by_sign, curve=curve,
-        breakdown_ratio=breakdown_ratio(pc, signs, float(threshold)),
-        min_ratio_consistent=min_ratio, bootstrap=boot, notes=tuple(notes),
+        breakdown_ratio=breakdown,
+        min_ratio_consistent=min_ratio, bootstrap=boot, notes=tuple(notes), first_pieces=first,
         n_filtered=prepared.moments.n_filtered, where=prepared.spec.where,
         absorption=prepared.absorption)
 
@@ -243,11 +246,13 @@ def _prepare(data, spec, chunk_rows: int | None, *, keep_rows: bool) -> _Prepare
                      absorption)
 
 
-def _sets(pc: PartialCorrelations, signs: Sequence[int], max_ratio: float, points: int
+def _sets(pc: PartialCorrelations, signs: Sequence[int], max_ratio: float, points: int,
+          breakdown: float | None
           ) -> tuple[tuple[CurvePoint, ...], tuple[tuple[str, Interval | None], ...],
-                     float | None]:
-    """The curve of sets from ``r̄ = 0`` to ``max_ratio``, the pieces by sign at ``max_ratio``
-    and the smallest consistent ratio (0 when the set at ``r̄ = 0`` is non-empty)."""
+                     float | None, tuple[Interval, ...]]:
+    """The curve of sets from ``r̄ = 0`` to ``max_ratio``, the pieces by sign at ``max_ratio``,
+    the smallest consistent ratio (0 when the set at ``r̄ = 0`` is non-empty) and the set
+    there (just above it when it is an infimum; empty when no ratio is consistent)."""
     programmes = compiled_programmes(len(pc.zx))
     programmes.load(pc)
     curve = []
@@ -262,7 +267,29 @@ def _sets(pc: PartialCorrelations, signs: Sequence[int], max_ratio: float, point
         min_ratio = min(least) if least and min(least) <= 1.0 else None
     named = tuple((_SIGN_NAMES[s], None if p is None else Interval(*p))
                   for s, p in by_sign.items())
-    return tuple(curve), named, min_ratio
+    return tuple(curve), named, min_ratio, _first_set(programmes, pc, signs, min_ratio,
+                                                      curve, breakdown)
+
+
+def _first_set(programmes, pc: PartialCorrelations, signs: Sequence[int],
+               min_ratio: float | None, curve: list[CurvePoint],
+               breakdown: float | None) -> tuple[Interval, ...]:
+    """The set at the smallest consistent ratio, or just above it (an infimum: the solver may
+    find nothing exactly there, so step past it, never beyond the breakdown ratio, where the
+    set would contain the threshold); empty when no ratio ≤ 1 is consistent."""
+    if curve[0].pieces or min_ratio is None:
+        return curve[0].pieces
+    limit = 1.0 if breakdown is None else breakdown
+    steps = [min_ratio * (1.0 + step) + step for step in FIRST_STEPS]
+    steps += [p.max_ratio for p in curve if p.max_ratio > min_ratio]
+    for ratio in (r for r in steps if r < limit):
+        with warnings.catch_warnings():   # probing near an infimum: a failed probe is no news
+            warnings.simplefilter("ignore", InaccurateSolveWarning)
+            first = union([p for p in (scale_piece(programmes.piece(s, ratio), pc.scale)
+                                       for s in signs) if p])
+        if first:
+            return first
+    return ()
 
 
 def _inference(prepared: _Prepared, signs: Sequence[int], max_ratio: float,
@@ -312,7 +339,7 @@ def _notes(final: CurvePoint, min_ratio: float | None, max_ratio: float,
         else:
             notes.append(f"the identified set is empty at r̄ = {r}: the data contradict the "
                          f"assumption at this ratio; it is non-empty for r̄ above "
-                         f"{format_number(min_ratio, 6)} (smallest consistent ratio)")
+                         f"{format_number(min_ratio)} (smallest consistent ratio)")
     elif not at_zero.pieces and len(layout.instruments) > 1:
         notes.append("with several instruments the set at r̄ = 0 is empty unless the "
                      "instruments give exactly the same 2SLS estimate; that is expected, and "

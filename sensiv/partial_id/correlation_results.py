@@ -6,6 +6,7 @@ summaries are built in :mod:`sensiv.present.text_correlation`.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from sensiv.core.results import Interval, Presentable, describe, format_number, json_number
@@ -124,10 +125,44 @@ class CorrelationBounds(Presentable):
     n_filtered: int = 0
     where: str | None = None
     absorption: Absorption | None = None
+    first_pieces: tuple[Interval, ...] = ()   # the set at the smallest consistent r̄
 
     @property
     def caution(self) -> str:
         return CAUTION
+
+    @property
+    def first_side(self) -> str | None:
+        """Where the set at the smallest consistent r̄ lies against the threshold: "above",
+        "below", "contains" (no conclusion), or ``None`` when no r̄ ≤ 1 is consistent."""
+        if not self.first_pieces:
+            return None
+        if any(p.contains(self.threshold) for p in self.first_pieces):
+            return "contains"
+        return "above" if self.first_pieces[0].low > self.threshold else "below"
+
+    @property
+    def sign_reversal(self) -> bool:
+        """True when the first consistent set lies wholly on the other side of the threshold
+        from the 2SLS estimate (possible only when the set at r̄ = 0 is empty: the assumed
+        endogeneity sign contradicts 2SLS)."""
+        side = self.first_side
+        if side not in ("above", "below") or not math.isfinite(self.tsls):
+            return False
+        return (side == "above") != (self.tsls > self.threshold)
+
+    @property
+    def conclusion(self) -> str:
+        """The conclusion that the breakdown ratio breaks, in words: the one at r̄ = 0, or at
+        the smallest consistent r̄ when the set at r̄ = 0 is empty."""
+        side = self.first_side
+        theta = format_number(self.threshold)
+        if side is None:
+            return "none: no r̄ ≤ 1 is consistent with the data"
+        if side == "contains":
+            return f"none: the set already contains {theta}"
+        sign = ">" if side == "above" else "<"
+        return f"{self.treatment} effect {sign} {theta}"
 
     @property
     def empty(self) -> bool:
@@ -189,6 +224,12 @@ class CorrelationBounds(Presentable):
             "curve": [point.to_dict() for point in self.curve],
             "breakdown_ratio": json_number(self.breakdown_ratio),
             "breakdown_method": "exact (membership of the threshold is linear in r̄)",
+            "breakdown_meaning": ("the first r̄ at which the conclusion at r̄ = 0 (or, when the "
+                                  "set there is empty, at the smallest consistent r̄) stops "
+                                  "holding: the set reaches the threshold"),
+            "conclusion": self.conclusion,
+            "first_set": [p.to_list() for p in self.first_pieces],
+            "sign_reversal": self.sign_reversal,
             "threshold": self.threshold,
             "threshold_in_set": any(p.contains(self.threshold) for p in self.pieces),
             "min_ratio_consistent": json_number(self.min_ratio_consistent),

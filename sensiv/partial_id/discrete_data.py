@@ -33,6 +33,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.results import with_article
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -135,7 +136,7 @@ def _check_levels(levels: np.ndarray, role: str, name: str, where: str,
         shown = ", ".join(str(plain_number(v)) for v in levels[:6]) + (", ..." if count > 6 else "")
         raise InputError(
             f"{role} {name!r} in {where} takes {more}{count} distinct values ({shown}); the "
-            f"discrete bounds handle a {role} with 2 to {limit} levels: recode {option} into "
+            f"discrete bounds handle {with_article(role)} with 2 to {limit} levels: recode {option} into "
             f"at most {limit} groups"
             + (", or use `sensiv fit` for a continuous instrument" if role == "instrument"
                else "")
@@ -144,7 +145,7 @@ def _check_levels(levels: np.ndarray, role: str, name: str, where: str,
         shown = str(plain_number(levels[0])) if count else "no value"
         raise InputError(
             f"{role} {name!r} in {where} takes a single value ({shown}); the discrete bounds "
-            f"need a {role} with 2 to {limit} levels: check the {option} column"
+            f"need {with_article(role)} with 2 to {limit} levels: check the {option} column"
         )
 
 

@@ -9,8 +9,11 @@ from sensiv.partial_id.discrete_data import plain_number
 from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.writer import to_json
 from sensiv.present.tables import markdown_table
+from sensiv.present.text_at import at_cells, at_heading
 from sensiv.present.text_bias_aware import bias_aware_cells
+from sensiv.present.text_units import units_cells
 from sensiv.sensitivity import bounds
+from sensiv.sensitivity.breakdown_units import curve_units
 
 
 def fit_markdown(fit) -> str:
@@ -19,10 +22,10 @@ def fit_markdown(fit) -> str:
     rows = []
     for name in fit.reported_names():
         ci = fit.conf_int(name)
-        rows.append([name, format_number(fit.tsls.value(name), 6),
-                     format_number(fit.tsls.std_error(name), 6), str(ci),
-                     format_number(fit.ols.value(name), 6),
-                     format_number(fit.ols.std_error(name), 6)])
+        rows.append([name, format_number(fit.tsls.value(name)),
+                     format_number(fit.tsls.std_error(name)), str(ci),
+                     format_number(fit.ols.value(name)),
+                     format_number(fit.ols.std_error(name))])
     parts = [
         f"# 2SLS: {fit.outcome} on {', '.join(fit.treatments)}\n",
         f"Instruments: {', '.join(fit.instruments)}. Controls: "
@@ -37,9 +40,9 @@ def fit_markdown(fit) -> str:
         "\n## First stage\n",
         markdown_table(
             ["treatment", "instrument", "coef", "se", "F", "partial R²", "effective F"],
-            [[fs.treatment, inst, format_number(fs.coef[inst], 6), format_number(fs.se[inst], 6),
-              format_number(fs.f, 5), format_number(fs.partial_r2, 4),
-              format_number(fs.effective_f, 5) if fs.effective_f is not None else "n/a"]
+            [[fs.treatment, inst, format_number(fs.coef[inst]), format_number(fs.se[inst]),
+              format_number(fs.f), format_number(fs.partial_r2, 4),
+              format_number(fs.effective_f) if fs.effective_f is not None else "n/a"]
              for fs in fit.first_stages for inst in fit.instruments]),
     ]
     if fit.ar_set is not None:
@@ -48,7 +51,7 @@ def fit_markdown(fit) -> str:
                      f"{pieces}\n")
     if fit.overid is not None:
         o = fit.overid
-        parts.append(f"\nOveridentification test ({o.name}): {format_number(o.stat, 5)} on "
+        parts.append(f"\nOveridentification test ({o.name}): {format_number(o.stat)} on "
                      f"{o.df} df, p = {format_number(o.p_value, 3)}\n")
     for note in fit.notes:
         parts.append(f"\n**Warning:** {note}\n")
@@ -61,10 +64,10 @@ def sweep_markdown(res) -> str:
     """Markdown report of a direct-effect sweep."""
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown
-    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale, 6)
+    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale)
     rows = [
-        ["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
-                                       f"{format_number(res.se, 6)})"],
+        ["2SLS at zero direct effect", f"{format_number(res.estimate)} (se "
+                                       f"{format_number(res.se)})"],
         ["identified set", str(res.identified_set)],
         [f"union of {pct} intervals", str(res.union_ci)],
         *(bias_aware_cells(res.bias_aware, res.confidence_level)
@@ -77,30 +80,45 @@ def sweep_markdown(res) -> str:
     if res.bias_aware is not None:
         t = b.bias_aware_scale
         rows.append(["bias-aware breakdown scale of the set",
-                     "never (within 1000x)" if t is None else format_number(t, 6)])
+                     "never (within 1000x)" if t is None else format_number(t)])
+    rows += units_cells(b.direct_units, "breakdown")
+    if res.bias_aware is not None:
+        rows += units_cells(b.bias_aware_units, "bias-aware breakdown")
     for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
-        rows.append([f"breakdown direct effect, {z} alone",
-                     f"{'none' if lo is None else format_number(lo, 6)} / "
-                     f"{'none' if hi is None else format_number(hi, 6)}"])
+        rows.append([f"interval reaches θ = {format_number(b.threshold)}, {z} alone",
+                     f"{'none' if lo is None else format_number(lo)} / "
+                     f"{'none' if hi is None else format_number(hi)}"])
     ranges = markdown_table(
         ["instrument", "outcome units", "share of reduced form", "SD units"],
         [[z, str(a), str(r), str(s)] for z, a, r, s in
          zip(res.instruments, res.direct_set, res.direct_set_rf, res.direct_set_sd)])
     notes = "".join(f"\n**Warning:** {n}\n" for n in res.notes)
+    at = (f"\n## {at_heading(res)}\n\n{markdown_table(*at_cells(res))}" if res.at else "")
     return (f"# Direct-effect sensitivity: {res.focus} → {res.outcome}\n\n"
             f"n = {res.n}, covariance: {res.se_type}.\n\n## Assumed direct effects\n\n{ranges}\n"
-            f"## Results\n\n{markdown_table(['quantity', 'value'], rows)}{notes}\n"
+            f"## Results\n\n{markdown_table(['quantity', 'value'], rows)}{notes}{at}\n"
             "## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
             + f"\n\n> {bounds.CAUTION}\n")
 
 
 def curve_csv(res) -> str:
-    """The sensitivity curve as CSV (scale, union interval, identified set, bias-aware
-    interval)."""
+    """The sensitivity curve as CSV: the scale of the set, the direct effect it stands for
+    (largest absolute value per instrument, in outcome units, as a share of the reduced form
+    and in outcome SDs per instrument SD: ``direct``, ``direct_rf``, ``direct_sd``, suffixed
+    ``_<instrument>`` with several instruments), union interval, identified set, bias-aware
+    interval."""
     keys = ("scale", "lower", "upper", "id_lower", "id_upper", "ba_lower", "ba_upper")
-    lines = [",".join(keys)]
-    for row in res.curve.to_list():
-        lines.append(",".join("" if row.get(k) is None else repr(float(row[k])) for k in keys))
+    names = res.instruments
+    suffixes = [""] if len(names) == 1 else [f"_{z}" for z in names]
+    unit_keys = [f"direct{u}{s}" for u in ("", "_rf", "_sd") for s in suffixes]
+    s = res.scale
+    units = curve_units(res.curve.scale, res.direct_set, s.reduced_form, s.outcome_sd,
+                        s.instrument_sd)
+    lines = [",".join([keys[0], *unit_keys, *keys[1:]])]
+    for row, (outcome, rf, sd) in zip(res.curve.to_list(), units):
+        cells = ["" if row.get(k) is None else repr(float(row[k])) for k in keys]
+        unit_cells = ["" if v is None else repr(float(v)) for v in (*outcome, *rf, *sd)]
+        lines.append(",".join([cells[0], *unit_cells, *cells[1:]]))
     return "\n".join(lines) + "\n"
 
 
@@ -111,10 +129,10 @@ def sweep_files(res) -> dict[str, str]:
 
 def prior_markdown(res) -> str:
     pct = f"{100 * res.confidence_level:g}%"
-    rows = [["2SLS at zero direct effect", f"{format_number(res.estimate, 6)} (se "
-                                           f"{format_number(res.se, 6)})"],
+    rows = [["2SLS at zero direct effect", f"{format_number(res.estimate)} (se "
+                                           f"{format_number(res.se)})"],
             [f"{pct} prior interval", str(res.interval)],
-            ["center", format_number(res.center, 6)],
+            ["center", format_number(res.center)],
             ["method", res.method],
             ["Monte Carlo error", "n/a" if res.mc_error is None else format_number(res.mc_error,
                                                                                    3)]]

@@ -7,8 +7,9 @@ from __future__ import annotations
 from sensiv.core.results import Interval, format_number
 from sensiv.estimation import iv
 from sensiv.partial_id import correlation_results, discrete_results
+from sensiv.present.tables import NONE_TEXT, TableRow, end_text, interval_text
 from sensiv.present.text_clusters import cluster_count_text
-from sensiv.present.tables import NONE_TEXT, TableRow, end_text
+from sensiv.present.text_units import table_words
 from sensiv.sensitivity import bounds, calibrate
 
 
@@ -17,7 +18,7 @@ def _pieces(pieces) -> tuple[Interval, ...]:
 
 
 def _ranges_text(names, boxes) -> str:
-    return ", ".join(f"{z} in [{end_text(b.low)}, {end_text(b.high)}]"
+    return ", ".join(f"{z} in {interval_text(b.low, b.high)}"
                      for z, b in zip(names, boxes))
 
 
@@ -46,11 +47,12 @@ def fit_rows(fit) -> list[TableRow]:
 
 
 def _sweep_breakdown(res) -> str:
-    return _scale_words(res, res.breakdown.scale)
+    return _scale_words(res, res.breakdown.scale, res.breakdown.direct_units)
 
 
-def _scale_words(res, scale: float | None) -> str:
-    """A breakdown scale of the stated set in words (union or bias-aware interval)."""
+def _scale_words(res, scale: float | None, units) -> str:
+    """A breakdown in words (union or bias-aware interval): the direct effect it stands for
+    (``units``, a ``DirectUnits`` or ``None``), then the scale of the stated set."""
     b = res.breakdown
     if scale is None:
         return (f"none within {format_number(bounds.SCALE_MAX)} × the stated set "
@@ -58,7 +60,9 @@ def _scale_words(res, scale: float | None) -> str:
     if scale == 0.0:
         return f"0: no conclusion about θ = {format_number(b.threshold)} at zero direct effect"
     sign = ">" if res.estimate > b.threshold else "<"
-    return f"{format_number(scale)} × the stated set (β {sign} {format_number(b.threshold)})"
+    lead = f"{table_words(units)} = " if units is not None else ""
+    return (f"{lead}{format_number(scale)} × the stated set (β {sign} "
+            f"{format_number(b.threshold)})")
 
 
 def _bias_aware_row(res, name: str, words: str, n, cov: str) -> TableRow:
@@ -66,8 +70,8 @@ def _bias_aware_row(res, name: str, words: str, n, cov: str) -> TableRow:
     ba = res.bias_aware
     return TableRow(f"{name} (2SLS at the {ba.centre})", words, ba.estimate, ba.se,
                     None, (ba.ci,), res.confidence_level, res.breakdown.bias_aware_scale,
-                    _scale_words(res, res.breakdown.bias_aware_scale), n, cov,
-                    bounds.CAUTION)
+                    _scale_words(res, res.breakdown.bias_aware_scale, res.breakdown.bias_aware_units), n, cov,
+                    bounds.CAUTION, breakdown_units=res.breakdown.bias_aware_units)
 
 
 def sweep_rows(res) -> list[TableRow]:
@@ -77,7 +81,8 @@ def sweep_rows(res) -> list[TableRow]:
     cov = _covariance_text(res.fit)
     rows = [TableRow(f"direct-effect sweep: {res.focus}", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
-                     res.breakdown.scale, _sweep_breakdown(res), res.n, cov, bounds.CAUTION)]
+                     res.breakdown.scale, _sweep_breakdown(res), res.n, cov, bounds.CAUTION,
+                     breakdown_units=res.breakdown.direct_units)]
     if res.bias_aware is not None:
         rows.append(_bias_aware_row(res, f"bias-aware interval: {res.focus}", words, res.n,
                                     cov))
@@ -102,6 +107,9 @@ def corrbound_rows(res) -> list[TableRow]:
              f"endogeneity {res.endogeneity}")
     k = res.breakdown_ratio
     text = _bound_breakdown("r̄", k, res.threshold, "set")
+    if res.sign_reversal:
+        text += (f"; a sign reversal against 2SLS: from r̄ = "
+                 f"{format_number(res.min_ratio_consistent)} the set gives {res.conclusion}")
     if res.bootstrap is not None:
         b = res.bootstrap
         cov = (f"bootstrap, {b.reps} reps"
@@ -113,12 +121,17 @@ def corrbound_rows(res) -> list[TableRow]:
                      res.confidence_level, k, text, res.n, cov, correlation_results.CAUTION)]
 
 
+ESTIMAND_WORDS = ("bounds the average effect over all units, Σ_z P̂(z)·E[Y(1,z) − Y(0,z)] — "
+                  "not the complier effect that 2SLS estimates under monotonicity")
+
+
 def discrete_rows(res) -> list[TableRow]:
     t = res.table
     words = (f"{t.instrument} randomised; changes {t.outcome} directly for at most "
              f"{format_number(res.budget)} of units"
              + (f"; monotone (defiers ≤ {format_number(res.defier_budget)})"
-                if res.monotone else ""))
+                if res.monotone else "")
+             + f"; {ESTIMAND_WORDS}")
     cov = (f"bootstrap, {res.bootstrap.reps} reps" if res.bootstrap is not None
            else "no bootstrap")
     rows = []
@@ -141,7 +154,7 @@ def published_rows(res) -> list[TableRow]:
     pct = f"{100 * res.confidence_level:g}%"
     cov = f"from reported numbers ({res.covariance.method})"
     box = res.direct_set
-    words = (f"direct effect in [{end_text(box.low)}, {end_text(box.high)}] (outcome units; "
+    words = (f"direct effect in {interval_text(box.low, box.high)} (outcome units; "
              "given as "
              f"{res.range_text}); {res.approximation}")
     # the curve at zero direct effect is the printed estimate's interval (unbounded when the
@@ -154,7 +167,7 @@ def published_rows(res) -> list[TableRow]:
             TableRow("direct-effect stress test from printed numbers", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
                      res.breakdown.scale, _sweep_breakdown(res), res.reported.n, cov,
-                     bounds.CAUTION)]
+                     bounds.CAUTION, breakdown_units=res.breakdown.direct_units)]
     if res.bias_aware is not None:
         rows.append(_bias_aware_row(res, "bias-aware interval from printed numbers", words,
                                     res.reported.n, cov))
@@ -192,7 +205,8 @@ def calibrate_rows(res) -> list[TableRow]:
         rows.append(TableRow(
             f"yardstick: {_direct_of(b.instrument)} without {b.name}",
             f"an unobserved direct effect comparable to the shift in the reduced form of "
-            f"{b.instrument} when {left} is left out (a judgement, not a test)",
+            f"{b.instrument} when {left} {'are' if len(b.columns) > 1 else 'is'} left out "
+            "(a judgement, not a test)",
             b.implied_direct, None, None, None, level, None, NONE_TEXT, res.n,
             "none (point values)", calibrate.CAUTION, b.implied_direct_rf, b.implied_direct_sd,
             b.sweep_option))
@@ -220,9 +234,11 @@ def _direct_of(instrument: str) -> str:
 
 
 def _bound_breakdown(symbol: str, value: float | None, threshold: float, what: str) -> str:
+    """A breakdown value in words; ``what`` is "set" (singular) or "bounds" (plural)."""
     theta = format_number(threshold)
+    verb = "contains" if what == "set" else "contain"
     if value is None:
         return f"none for {symbol} ≤ 1 (θ = {theta})"
     if value == 0.0:
-        return f"0: no conclusion, the {what} at {symbol} = 0 contain θ = {theta}"
-    return f"{symbol} = {format_number(value)} ({what} first contain θ = {theta})"
+        return f"0: no conclusion, the {what} at {symbol} = 0 already {verb} θ = {theta}"
+    return f"{symbol} = {format_number(value)} (the {what} first {verb} θ = {theta})"

@@ -11,7 +11,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from sensiv.core.results import Interval, format_number, intervals_to_lists, json_number
+from sensiv.core.results import (Interval, format_ends, format_number, intervals_to_lists,
+                                 json_number)
 from sensiv.present.writer import to_json
 
 
@@ -58,6 +59,7 @@ class TableRow:
     share_rf: float | None = None
     sd_units: float | None = None
     suggestion: str | None = None
+    breakdown_units: object | None = None   # a DirectUnits: the breakdown as direct effects
 
 
 @dataclass(frozen=True, slots=True)
@@ -80,7 +82,8 @@ COLUMNS = ("analysis", "assumption", "estimate or bounds", "interval", "breakdow
 CSV_COLUMNS = ("analysis", "assumption", "estimate", "se", "bounds_lower", "bounds_upper",
                "bounds_pieces", "interval_lower", "interval_upper", "interval_pieces",
                "confidence_level", "breakdown", "breakdown_meaning", "n", "covariance",
-               "caution", "share_of_reduced_form", "sd_units", "suggestion")
+               "caution", "share_of_reduced_form", "sd_units", "suggestion",
+               "breakdown_direct", "breakdown_direct_rf", "breakdown_direct_sd")
 
 
 NONE_TEXT = "—"
@@ -93,12 +96,21 @@ def end_text(value: float) -> str:
     return format_number(value).replace("-", "−")
 
 
+def interval_text(low: float, high: float) -> str:
+    """``[low, high]`` for a table cell: both ends in one format
+    (:func:`sensiv.core.results.format_ends`), a true minus sign, ``±∞`` for infinite ends."""
+    ends = []
+    for value, text in zip((low, high), format_ends(low, high)):
+        ends.append(end_text(value) if math.isinf(value) else text.replace("-", "−"))
+    return f"[{ends[0]}, {ends[1]}]"
+
+
 def _pieces_text(pieces) -> str:
     if pieces is None:
         return NONE_TEXT
     if not pieces:
         return "empty"
-    return " ∪ ".join(f"[{end_text(p.low)}, {end_text(p.high)}]" for p in pieces)
+    return " ∪ ".join(interval_text(p.low, p.high) for p in pieces)
 
 
 def _estimate_text(row: TableRow) -> str:
@@ -238,6 +250,19 @@ def _ascii_pieces(pieces) -> str:
     return " U ".join(f"[{_csv_number(p.low)}, {_csv_number(p.high)}]" for p in pieces)
 
 
+def _csv_units(units) -> list[str]:
+    """The breakdown direct effect in outcome, reduced-form and SD units: a number with one
+    instrument, ``name=number`` pairs joined by ``;`` with several, empty when there is none."""
+    if units is None:
+        return ["", "", ""]
+    names = units.instruments
+    def cell(values) -> str:
+        if len(names) == 1:
+            return _csv_number(values[0])
+        return ";".join(f"{z}={_csv_number(v)}" for z, v in zip(names, values))
+    return [cell(units.outcome), cell(units.rf), cell(units.sd)]
+
+
 def table_csv(table: Table) -> str:
     """One line per row with machine-readable numbers (``inf`` for an unbounded end, empty
     for not available; unions of intervals in full in the ``*_pieces`` columns)."""
@@ -256,7 +281,8 @@ def table_csv(table: Table) -> str:
                          repr(r.confidence_level), _csv_number(r.breakdown),
                          "" if r.breakdown_text == NONE_TEXT else r.breakdown_text,
                          "" if r.n is None else r.n, r.covariance, r.caution,
-                         _csv_number(r.share_rf), _csv_number(r.sd_units), r.suggestion or ""])
+                         _csv_number(r.share_rf), _csv_number(r.sd_units), r.suggestion or "",
+                         *_csv_units(r.breakdown_units)])
     return buffer.getvalue()
 
 
@@ -275,7 +301,9 @@ def table_json(table: Table) -> str:
              "breakdown_meaning": None if r.breakdown_text == NONE_TEXT else r.breakdown_text,
              "n": r.n, "covariance": r.covariance,
              "caution": r.caution, "share_of_reduced_form": json_number(r.share_rf),
-             "sd_units": json_number(r.sd_units), "suggestion": r.suggestion}
+             "sd_units": json_number(r.sd_units), "suggestion": r.suggestion,
+             "breakdown_direct_units": (r.breakdown_units.to_dict()
+                                        if r.breakdown_units is not None else None)}
             for r in table.rows]
     return to_json({"title": table.title, "rows": rows,
                     "assumptions": {h: list(lines) for h, lines in table.notes},

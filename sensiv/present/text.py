@@ -8,6 +8,8 @@ from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.text_fit_extras import bootstrap_lines, tf_lines
 from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
 from sensiv.present.text_levels import absorbed_line, listed_names
+from sensiv.present.text_at import at_cells, at_heading
+from sensiv.present.text_units import breakdown_sentence, crossing_lines
 from sensiv.sensitivity import bounds
 
 
@@ -106,20 +108,14 @@ def sweep_summary(res) -> str:
         + (f" ({res.ar_method})" if res.ar_method else ""),
         "",
         f"Conclusion examined: {b.conclusion}",
-        "Breakdown: " + (
-            "the conclusion holds for every scaling of the set up to 1000x" if b.scale is None
-            else "no conclusion to break" if b.scale == 0 else
-            f"the conclusion holds until the set is scaled by {format_number(b.scale)}"
-            + (" (it survives the assumed set)" if b.scale > 1 else
-               " (it does NOT survive the assumed set)")),
+        "Breakdown: " + breakdown_sentence(b.scale, b.direct_units),
     ]
-    for z, lo, hi in zip(res.instruments, b.direct_lower, b.direct_upper):
-        lo_t = "none" if lo is None else format_number(lo)
-        hi_t = "none" if hi is None else format_number(hi)
-        lines.append(f"  {z} alone: an end of the interval crosses {b.threshold:g} at a direct "
-                     f"effect of {lo_t} (nearest below zero) or {hi_t} (nearest above zero)")
+    lines += crossing_lines(res.instruments, b)
     if res.bias_aware is not None:
-        lines.append(f"Bias-aware breakdown: {bias_aware_breakdown(b.bias_aware_scale)}")
+        lines.append("Bias-aware breakdown: "
+                     + bias_aware_breakdown(b.bias_aware_scale, units=b.bias_aware_units))
+    if res.at:
+        lines += ["", at_heading(res) + ":", *_table(*at_cells(res))]
     if res.fit.overid is not None:
         o = res.fit.overid
         lines.append(f"Overidentification ({o.name}): {format_number(o.stat, 4)} on {o.df} df, "

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from sensiv.core.results import format_number
+from sensiv.present.text_units import direct_effect_words
 
 
 def bias_aware_line(ba, confidence_level: float) -> str:
@@ -14,14 +15,16 @@ def bias_aware_line(ba, confidence_level: float) -> str:
             f"{format_number(ba.critical_value)}; Armstrong & Kolesar 2021)")
 
 
-def bias_aware_breakdown(scale: float | None, what: str = "set") -> str:
-    """The bias-aware breakdown scale in words (``what``: "set" or "range")."""
+def bias_aware_breakdown(scale: float | None, what: str = "set", units=None) -> str:
+    """The bias-aware breakdown scale in words (``what``: "set" or "range"), led by the
+    direct effect it stands for when ``units`` (a ``DirectUnits``) is given."""
     if scale is None:
         return f"the bias-aware interval stays clear for every scaling of the {what} up to 1000x"
     if scale == 0.0:
         return "the bias-aware interval at zero direct effect has no conclusion to break"
-    return (f"the bias-aware interval reaches the threshold when the {what} is scaled by "
-            f"{format_number(scale)}")
+    lead = (f"at {direct_effect_words(units)}, that is " if units is not None else "")
+    return (f"the bias-aware interval reaches the threshold {lead}when the {what} is scaled "
+            f"by {format_number(scale)}")
 
 
 def bias_aware_cells(ba, confidence_level: float) -> list[list[str]]:
@@ -29,5 +32,5 @@ def bias_aware_cells(ba, confidence_level: float) -> list[list[str]]:
     pct = f"{100 * confidence_level:g}%"
     return [[f"bias-aware {pct} interval (2SLS at the {ba.centre})", str(ba.ci)],
             ["bias-aware: estimate / worst-case bias / largest se / critical value",
-             " / ".join(format_number(v, 6) for v in (ba.estimate, ba.max_bias, ba.se,
+             " / ".join(format_number(v) for v in (ba.estimate, ba.max_bias, ba.se,
                                                        ba.critical_value))]]

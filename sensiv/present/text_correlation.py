@@ -37,6 +37,36 @@ def curve_rows(result: CorrelationBounds) -> list[list[str]]:
     return rows
 
 
+def breakdown_lines(result: CorrelationBounds) -> list[str]:
+    """The conclusion, a sign reversal against 2SLS when there is one, and the breakdown r̄:
+    the first r̄ at which the conclusion at r̄ = 0 (or at the smallest consistent r̄, when the
+    set at r̄ = 0 is empty) stops holding."""
+    theta = format_number(result.threshold)
+    k, m = result.breakdown_ratio, result.min_ratio_consistent
+    side = result.first_side
+    if side is None:
+        return ["Breakdown r̄: none to state (no r̄ ≤ 1 gives a non-empty set)"]
+    at = "r̄ = 0" if m == 0 else f"r̄ = {format_number(m)} (the smallest consistent r̄)"
+    if side == "contains":
+        return [f"Breakdown r̄: no conclusion to break (the set at {at} already contains "
+                f"{theta})"]
+    lines = []
+    if result.sign_reversal:
+        where = "above" if side == "above" else "below"
+        lines.append(f"Sign reversal: at r̄ = 0 the set is empty (the assumed {result.endogeneity} "
+                     f"endogeneity contradicts the 2SLS estimate {format_number(result.tsls)}); "
+                     f"from {at} the set lies entirely {where} {theta}, the reverse of 2SLS")
+    elif m:
+        lines.append(f"Note: at r̄ = 0 the set is empty; from {at} it lies entirely "
+                     f"{side} {theta}, as 2SLS does")
+    conclusion = f"{result.conclusion} at {at}"
+    lines.append(f"Breakdown r̄: {format_number(k)}, the first r̄ at which the conclusion "
+                 f"({conclusion}) stops holding (the set reaches {theta})" if k is not None else
+                 f"Breakdown r̄: none in [0, 1] (the conclusion {conclusion} holds for every "
+                 "r̄ ≤ 1)")
+    return lines
+
+
 def summary_lines(result: CorrelationBounds, *, markdown: bool) -> list[str]:
     """Lines of the summary: headline numbers, the curve table, notes, assumptions, caution.
 
@@ -69,9 +99,7 @@ def summary_lines(result: CorrelationBounds, *, markdown: bool) -> list[str]:
     m = result.min_ratio_consistent
     lines.append("Smallest r̄ consistent with the data: "
                  + (format_number(m) if m is not None else "none in [0, 1]"))
-    k = result.breakdown_ratio
-    lines.append(f"Breakdown r̄ (set first contains {format_number(result.threshold)}): "
-                 + (format_number(k) if k is not None else "none in [0, 1]"))
+    lines += breakdown_lines(result)
     lines.append("")
     header = ["r̄", "lower", "upper", "pieces"]
     rows = curve_rows(result)

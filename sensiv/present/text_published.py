@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from sensiv.core.results import format_number
 from sensiv.present.tables import markdown_table
+from sensiv.present.text_units import breakdown_sentence, units_cells
 from sensiv.present.text_bias_aware import (bias_aware_breakdown, bias_aware_cells,
                                             bias_aware_line)
 from sensiv.sensitivity.bounds import CAUTION
@@ -33,18 +34,19 @@ def reported_line(rep: Reported) -> str:
 def breakdown_words(res: PublishedResult) -> list[str]:
     """The breakdown scale and the breakdown direct effects in words."""
     b = res.breakdown
-    lines = ["Breakdown: " + (
-        "the conclusion holds for every scaling of the range up to 1000x" if b.scale is None
-        else "no conclusion to break" if b.scale == 0 else
-        f"the conclusion holds until the range is scaled by {format_number(b.scale)}"
-        + (" (it survives the assumed range)" if b.scale > 1 else
-           " (it does NOT survive the assumed range)"))]
+    lines = ["Breakdown: " + breakdown_sentence(b.scale, b.direct_units, "range")]
     lo, hi = b.direct_lower[0], b.direct_upper[0]
     lo_t = "none" if lo is None else format_number(lo)
     hi_t = "none" if hi is None else format_number(hi)
-    lines.append(f"  the interval reaches {b.threshold:g} at a direct effect of {lo_t} (below "
-                 f"zero) or {hi_t} (above zero)")
+    reach = ("stops containing" if b.scale == 0 else "reaches")
+    lines.append(f"  the interval {reach} {format_number(b.threshold)} at a direct effect of "
+                 f"{lo_t} (below zero) or {hi_t} (above zero)")
     return lines
+
+
+def _ba_words(res: PublishedResult) -> str:
+    b = res.breakdown
+    return bias_aware_breakdown(b.bias_aware_scale, "range", b.bias_aware_units)
 
 
 def ar_text(res: PublishedResult) -> str:
@@ -72,7 +74,7 @@ def summary_lines(res: PublishedResult) -> list[str]:
         "",
         f"Conclusion examined: {res.breakdown.conclusion}",
         *breakdown_words(res),
-        *([f"Bias-aware breakdown: {bias_aware_breakdown(res.breakdown.bias_aware_scale, 'range')}"]
+        *([f"Bias-aware breakdown: {_ba_words(res)}"]
           if res.bias_aware is not None else []),
     ]
     if res.prior is not None:
@@ -92,17 +94,17 @@ def published_text(res: PublishedResult) -> str:
 
 
 def _ba_scale(scale: float | None) -> str:
-    return "never (within 1000x)" if scale is None else format_number(scale, 6)
+    return "never (within 1000x)" if scale is None else format_number(scale)
 
 
 def published_markdown(res: PublishedResult) -> str:
     """Markdown report of a published stress test."""
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown
-    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale, 6)
+    scale = "never (within 1000x)" if b.scale is None else format_number(b.scale)
     rows = [
-        ["reported estimate", f"{format_number(res.estimate, 6)} (se "
-                              f"{format_number(res.se, 6)})"],
+        ["reported estimate", f"{format_number(res.estimate)} (se "
+                              f"{format_number(res.se)})"],
         ["assumed direct effect (outcome units)", str(res.direct_set)],
         ["assumed direct effect (share of reduced form)",
          str(res.direct_set_rf) if res.direct_set_rf else "n/a"],
@@ -115,9 +117,12 @@ def published_markdown(res: PublishedResult) -> str:
         ["breakdown scale of the range", scale],
         *([["bias-aware breakdown scale of the range", _ba_scale(b.bias_aware_scale)]]
           if res.bias_aware is not None else []),
-        ["breakdown direct effect (below / above zero)",
-         f"{'none' if b.direct_lower[0] is None else format_number(b.direct_lower[0], 6)} / "
-         f"{'none' if b.direct_upper[0] is None else format_number(b.direct_upper[0], 6)}"],
+        *units_cells(b.direct_units, "breakdown"),
+        *(units_cells(b.bias_aware_units, "bias-aware breakdown")
+          if res.bias_aware is not None else []),
+        ["interval reaches the threshold at a direct effect (below / above zero)",
+         f"{'none' if b.direct_lower[0] is None else format_number(b.direct_lower[0])} / "
+         f"{'none' if b.direct_upper[0] is None else format_number(b.direct_upper[0])}"],
     ]
     if res.prior is not None:
         rows.append([f"{pct} prior interval ({res.prior.law}, {res.prior.method})",

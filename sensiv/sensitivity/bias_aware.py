@@ -49,7 +49,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.core.errors import InputError
-from sensiv.core.results import Interval, json_number
+from sensiv.core.results import Interval, format_number, json_number
 from sensiv.estimation import distributions as dist
 from sensiv.partial_id.solver import solve
 from sensiv.sensitivity.direct_sets import DirectSet
@@ -189,7 +189,7 @@ class BiasAware:
 
     def assumptions(self) -> list[str]:
         return [f"the true direct effect lies in the stated set; the 2SLS estimate at its "
-                f"{self.centre} is biased by at most {self.max_bias:.6g} there",
+                f"{self.centre} is biased by at most {format_number(self.max_bias)} there",
                 "the estimate is approximately normal with a standard error no larger than the "
                 "largest over the set (large-sample normal critical values, also with "
                 "small-sample corrections)"]

@@ -22,7 +22,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -33,8 +33,10 @@ from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.moments import ScoreSums
 from sensiv.sensitivity.adaptive import AdaptiveResult, adaptive_set
+from sensiv.sensitivity.at_points import AtPoint, AtValue, at_points, parse_at
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
                                            bias_aware_scale)
+from sensiv.sensitivity.breakdown_units import DirectUnits, direct_units
 from sensiv.sensitivity.direct_sets import (DirectSet, RangeSpec, Scale, check_range_count,
                                             parse_range, read_polytope, resolve_ranges,
                                             scale_of_pieces, set_in_units)
@@ -69,13 +71,21 @@ class Breakdown:
     direct_upper: tuple[float | None, ...]
     conclusion: str
     bias_aware_scale: float | None = None   # the same for the bias-aware interval
+    direct_units: DirectUnits | None = None  # the breakdown as direct effects (three units)
+    bias_aware_units: DirectUnits | None = None
 
     def to_dict(self) -> dict:
         return {"threshold": self.threshold, "scale": json_number(self.scale),
                 "direct_lower": [json_number(v) for v in self.direct_lower],
                 "direct_upper": [json_number(v) for v in self.direct_upper],
                 "conclusion": self.conclusion,
-                "bias_aware_scale": json_number(self.bias_aware_scale)}
+                "bias_aware_scale": json_number(self.bias_aware_scale),
+                "direct_units": _units_dict(self.direct_units),
+                "bias_aware_direct_units": _units_dict(self.bias_aware_units)}
+
+
+def _units_dict(units: DirectUnits | None) -> dict | None:
+    return units.to_dict() if units is not None else None
 
 
 @dataclass(frozen=True, slots=True)
@@ -133,6 +143,7 @@ class SweepResult(Presentable):
     adaptive: AdaptiveResult | None = None  # with ``adaptive=True``
     bias_aware: BiasAware | None = None
     union_method: UnionMethod | None = None
+    at: tuple[AtPoint, ...] = ()            # intervals at the --at grid of direct effects
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -172,6 +183,7 @@ class SweepResult(Presentable):
                              if self.union_method is not None else None),
             "bias_aware": self.bias_aware.to_dict() if self.bias_aware is not None else None,
             "breakdown": self.breakdown.to_dict(),
+            "at": [p.to_dict() for p in self.at],
             "curve": self.curve.to_list(),
             "frontier": self.frontier.to_list() if self.frontier is not None else None,
             "curve_extended": (self.curve_extended.to_list()
@@ -207,7 +219,7 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
           polytope: str | None = None, se: str | None = None, confidence_level: float = 0.95,
           small: bool = False, threshold: float = 0.0, points: int = DEFAULT_POINTS,
           focus: str | None = None, adaptive: bool = False,
-          chunk_rows: int | None = None) -> SweepResult:
+          chunk_rows: int | None = None, at=None) -> SweepResult:
     """Direct-effect sensitivity analysis from data (two passes over the rows, then closed forms).
 
     Parameters
@@ -225,6 +237,10 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     adaptive : bool
         Add the falsification adaptive set of Masten & Poirier (2021) (one treatment; with one
         instrument it is the 2SLS point).
+    at : str or sequence, optional
+        Direct effects ``v`` (e.g. ``"0.005,0.01"`` or ``[0.005, "0.1rf"]``) at which to report
+        the intervals over the box ``±v`` for every instrument
+        (:mod:`sensiv.sensitivity.at_points`).
 
     Returns
     -------
@@ -236,6 +252,7 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
     if isinstance(direct, (str, RangeSpec)):
         direct = [direct]  # one range, not its characters
     ranges = [parse_range(r) if isinstance(r, str) else r for r in (direct or [])]
+    grid = parse_at(at)
     check_count(points, "--points", 2, MAX_POINTS, "curve points")
     if not math.isfinite(threshold):
         raise InputError("--threshold must be a finite number")
@@ -254,13 +271,13 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
         extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
     with overflow_guard("the --direct range (or polytope)"):
         return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
-                       threshold=threshold, points=points, adaptive=adaptive)
+                       threshold=threshold, points=points, adaptive=adaptive, at=grid)
 
 
 def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int, *,
             ranges: Sequence[RangeSpec] = (), dset: DirectSet | None = None,
             threshold: float = 0.0, points: int = DEFAULT_POINTS,
-            adaptive: bool = False) -> SweepResult:
+            adaptive: bool = False, at: Sequence[AtValue] = ()) -> SweepResult:
     """The sweep from a fit's pieces (no further pass over the rows)."""
     core = build_core(pieces, sums, result, j)
     scale = scale_of_pieces(pieces)
@@ -289,6 +306,8 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
     level = result.confidence_level
     breakdown, extended, frontier = _breakdown_part(core, dset, threshold, wald,
                                                     uninformative, points, level)
+    breakdown = with_units(breakdown, dset.bounding_box, scale.reduced_form,
+                           scale.outcome_sd, scale.instrument_sd, core.instruments)
     ba = bias_aware([core], dset, level, unbounded=uninformative)
     ba_lo, ba_hi = bias_aware_curve([core], dset, scales, level, unbounded=uninformative)
     ar, ar_method, fas = None, None, None
@@ -316,7 +335,18 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         curve=Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi), ar_set=ar,
         ar_method=ar_method, scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)),
         frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba,
-        union_method=method)
+        union_method=method,
+        at=at_points(core, scale, at, level, uninformative))
+
+
+def with_units(breakdown: Breakdown, box, reduced_form, outcome_sd, instrument_sd,
+               instruments) -> Breakdown:
+    """``breakdown`` with its scales read as direct effects in outcome, reduced-form and SD
+    units (:func:`sensiv.sensitivity.breakdown_units.direct_units`)."""
+    def units(t):
+        return direct_units(t, instruments, box, reduced_form, outcome_sd, instrument_sd)
+    return replace(breakdown, direct_units=units(breakdown.scale),
+                   bias_aware_units=units(breakdown.bias_aware_scale))
 
 
 def differs_materially(ar: tuple[Interval, ...], wald: Interval) -> bool:

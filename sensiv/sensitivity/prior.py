@@ -68,6 +68,17 @@ class PriorMap:
     upper: np.ndarray
     excludes: np.ndarray
     given: tuple[float, float]
+    estimate: float = math.nan          # 2SLS at zero direct effect: the side that is "kept"
+
+    @property
+    def region(self) -> np.ndarray:
+        """Per grid point: ``1`` the interval lies on the same side of the threshold as 2SLS
+        at zero direct effect (conclusion kept), ``0`` it contains the threshold, ``-1`` it
+        lies wholly on the other side (conclusion reversed)."""
+        above = self.lower > self.threshold
+        below = self.upper < self.threshold
+        side = 1.0 if self.estimate >= self.threshold else -1.0
+        return np.where(above, side, np.where(below, -side, 0.0)).astype(int)
 
     @property
     def margin(self) -> np.ndarray:
@@ -79,7 +90,7 @@ class PriorMap:
         return {"axis": self.axis, "threshold": self.threshold,
                 "mean": self.mean.tolist(), "sd": self.sd.tolist(),
                 "lower": self.lower.tolist(), "upper": self.upper.tolist(),
-                "excludes": self.excludes.tolist(),
+                "excludes": self.excludes.tolist(), "region": self.region.tolist(),
                 "given": {"mean": self.given[0], "sd": self.given[1]}}
 
 
@@ -132,7 +143,8 @@ def prior_map(core: Core, mean: np.ndarray, cov: np.ndarray, threshold: float,
     lower = np.broadcast_to(centre - half, (points, points)).copy()
     upper = np.broadcast_to(centre + half, (points, points)).copy()
     excludes = (lower > threshold) | (upper < threshold)
-    return PriorMap(axis, float(threshold), means, sds, lower, upper, excludes, (mu0, sd0))
+    return PriorMap(axis, float(threshold), means, sds, lower, upper, excludes, (mu0, sd0),
+                    float(core.estimate))
 
 
 @dataclass(frozen=True, slots=True)

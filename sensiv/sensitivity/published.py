@@ -30,7 +30,7 @@ from sensiv.estimation import distributions as dist
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
                                            bias_aware_scale)
 from sensiv.sensitivity.bounds import (CAUTION, DEFAULT_POINTS, EXTEND_FACTOR, Breakdown, Curve,
-                                       conclusion_text, differs_materially)
+                                       conclusion_text, differs_materially, with_units)
 from sensiv.sensitivity.direct_sets import DirectSet, box_set
 from sensiv.sensitivity.frontier import Frontier, frontier_thresholds
 from sensiv.sensitivity.linear_core import Core
@@ -277,6 +277,8 @@ def _stress_test(rep: Reported, sp: float, cov: Covariance, gamma_set: Interval,
         warnings.warn(message, WeakInstrumentWarning, stacklevel=3)
     breakdown, extended, frontier = _breakdown_part(cores, dset, threshold, wald,
                                                     uninformative, points, confidence_level)
+    rf = rep.reduced_form if rep.reduced_form is not None else b * p
+    breakdown = with_units(breakdown, (gamma_set,), (rf,), None, None, (INSTRUMENT,))
     ba = bias_aware(cores, dset, confidence_level, unbounded=uninformative)
     ba_lo, ba_hi = bias_aware_curve(cores, dset, scales, confidence_level,
                                     unbounded=uninformative)

@@ -46,11 +46,19 @@ def test_readme_sweep_example(tmp_path):
         ".sensiv-bundle"}  # the marker of a bundle sensiv wrote whole
     assert (out / "sweep-curve.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     curve = pd.read_csv(out / "curve.csv")
-    assert len(curve) == 101 and list(curve.columns) == ["scale", "lower", "upper", "id_lower",
-                                                          "id_upper", "ba_lower", "ba_upper"]
+    assert len(curve) == 101 and list(curve.columns) == [
+        "scale", "direct", "direct_rf", "direct_sd", "lower", "upper", "id_lower", "id_upper",
+        "ba_lower", "ba_upper"]
     doc = json.loads((out / "sweep.json").read_text())
     assert curve["ba_lower"].tolist() == [row["ba_lower"] for row in doc["curve"]]
     assert "Bias-aware 95% interval" in result.stdout
+    # the direct effect beside the scale: scale × half-width, / reduced form, × SD(z)/SD(y)
+    # (common practice, no source)
+    rf, sd_y = doc["scale"]["reduced_form"]["height_m"], doc["scale"]["outcome_sd"]
+    sd_z = doc["scale"]["instrument_sd"]["height_m"]
+    assert curve["direct"].tolist() == pytest.approx((curve["scale"] * 0.005).tolist())
+    assert curve["direct_rf"].tolist() == pytest.approx((curve["direct"] / abs(rf)).tolist())
+    assert curve["direct_sd"].tolist() == pytest.approx((curve["direct"] * sd_z / sd_y).tolist())
 
 
 def test_readme_sweep_json_contract():
@@ -168,3 +176,73 @@ def test_bad_format_on_an_analysis_command(tmp_path):
     bad(invoke("sweep", EXAMPLE, *ROLES, "--direct=0:0", "--out", tmp_path / "o", "--format",
                "jpeg"), "--format 'jpeg'")
     assert not (tmp_path / "o").exists()
+
+
+def test_breakdown_in_the_trades_units_everywhere(tmp_path):
+    # common practice, no source: the same direct effect in text, JSON, Markdown and CSV tables
+    out = tmp_path / "units"
+    result = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--out", out)
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads((out / "sweep.json").read_text())
+    b = doc["breakdown"]
+    units = b["direct_units"]
+    assert units["outcome"][0] == pytest.approx(b["scale"] * 0.005, rel=1e-12)
+    value = units["outcome"][0]
+    assert units["rf"][0] == pytest.approx(value / abs(doc["scale"]["reduced_form"]["height_m"]))
+    assert (f"the conclusion holds up to a direct effect of {value:.4g} in outcome units "
+            f"({100 * units['rf'][0]:.4g}% of the reduced form; {units['sd'][0]:.4g} outcome SD "
+            "per instrument SD); that is") in result.stdout
+    assert f"{b['scale']:.4g} × the stated set" in result.stdout
+    table = pd.read_csv(out / "sweep-table.csv")
+    row = table.iloc[0]
+    assert float(row["breakdown_direct"]) == pytest.approx(value)
+    assert float(row["breakdown_direct_rf"]) == pytest.approx(units["rf"][0])
+    assert float(row["breakdown_direct_sd"]) == pytest.approx(units["sd"][0])
+    assert f"direct effect up to {value:.4g}" in (out / "sweep-table.md").read_text()
+    assert "breakdown direct effect" in (out / "sweep.md").read_text()
+    tex = (out / "sweep-table.tex").read_text()
+    assert f"direct effect up to {value:.4g}" in tex
+    tj = json.loads((out / "sweep-table.json").read_text())
+    assert tj["rows"][0]["breakdown_direct_units"]["outcome"] == pytest.approx([value])
+
+
+def test_no_conclusion_says_where_one_would_first_appear():
+    # the threshold lies inside the interval at zero direct effect
+    result = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--threshold", "0.012")
+    assert result.exit_code == 0, result.stderr
+    assert "no conclusion to break" in result.stdout
+    assert "a conclusion about 0.012 would first appear at a direct effect of" in result.stdout
+    assert "an end of the interval crosses" not in result.stdout
+
+
+def test_at_grid_on_the_command_line_and_in_a_recipe(tmp_path):
+    # common practice, no source: the value of the stated half-width gives the stated union
+    result = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--at", "0.005,0.01",
+                    "--json")
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert [p["value"] for p in doc["at"]] == [0.005, 0.01]
+    assert doc["at"][0]["union_ci"] == pytest.approx(doc["union_ci"])
+    text = invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--at", "0.005,0.01")
+    assert "Intervals at given direct effects" in text.stdout
+    bad(invoke("sweep", EXAMPLE, *ROLES, "--direct=-0.005:0.005", "--at", "big"),
+        "--at value 'big' is not a number")
+    recipe = tmp_path / "r.toml"
+    recipe.write_text(f'''[[study]]
+name = "s"
+[study.data]
+path = "{EXAMPLE.as_posix()}"
+outcome = "maize_yield"
+treatments = ["irrigation_hours"]
+instruments = ["height_m"]
+controls = ["plot_ha", "soil"]
+[[study.analysis]]
+kind = "sweep"
+direct = ["-0.005:0.005"]
+at = [0.005, "0.1rf"]
+''')
+    from sensiv.recipes.run import run_recipe
+
+    run = run_recipe(recipe)
+    points = run.runs[0].result.at
+    assert [p.given.text() for p in points] == ["0.005", "0.1rf"]

@@ -353,6 +353,27 @@ def test_irrelevant_instrument_weak_warning_and_unbounded_ar_set():
     assert got.notes
 
 
+def test_weak_advice_with_several_treatments_names_what_is_available():
+    # common practice, no source: with two treatments there is no Anderson–Rubin set, so the
+    # weak-instrument advice must not send the reader to it
+    rng = np.random.default_rng(4)
+    n = 2000
+    z1, z2 = rng.normal(size=(2, n))
+    x1 = 0.8 * z1 + rng.normal(size=n)
+    x2 = rng.normal(size=n) + 0.01 * z2                     # irrelevant for x2
+    frame = pd.DataFrame({"y": x1 - x2 + rng.normal(size=n), "x1": x1, "x2": x2,
+                          "z1": z1, "z2": z2})
+    spec = Spec(outcome="y", treatments=("x1", "x2"), instruments=("z1", "z2"))
+    with pytest.warns(WeakInstrumentWarning, match="no weak-instrument-robust set"):
+        got = iv.fit(from_frame(frame, spec), se="robust")
+    assert got.ar_set is None
+    assert not any("rely on the Anderson-Rubin set" in note for note in got.notes)
+    one = pd.DataFrame({"y": frame["y"], "x1": frame["x2"], "z1": frame["z2"]})
+    with pytest.warns(WeakInstrumentWarning, match="rely on the Anderson-Rubin set"):
+        iv.fit(from_frame(one, Spec(outcome="y", treatments=("x1",), instruments=("z1",))),
+               se="robust")
+
+
 def test_permuting_rows_changes_nothing():
     # common practice, no source
     frame = simulated()

@@ -38,8 +38,11 @@ def discrete_curve(discrete_result, ax=None, *, note: str | None = None):
         band.set_gid("bounds")
         ax.axhline(r.threshold, color=GREY, linestyle=(0, (4, 2)), linewidth=0.8, zorder=2,
                    label=f"threshold {format_number(r.threshold)}")
-        ax.axvline(r.budget, color=GREY, linewidth=0.8, zorder=2,
-                   label=f"analysed budget {format_number(r.budget)}")
+        # the analysed budget as a mark on the x-axis, so no line hides the interval bar
+        (mark,) = ax.plot([r.budget], [0.0], marker="^", markersize=5, color=GREY,
+                          linestyle="none", transform=ax.get_xaxis_transform(), clip_on=False,
+                          zorder=5, label=f"analysed budget {format_number(r.budget)}")
+        mark.set_gid("budget")
         interval_at(ax, r.budget, ci, f"{level} interval", "ci")
         x_end = float(eps[-1])
         ax.set_xlim(0.0, x_end * (1.0 + X_PAD))
@@ -58,6 +61,8 @@ def discrete_curve(discrete_result, ax=None, *, note: str | None = None):
                    f"n = {t.n}."
                    + (f" {level} interval: bootstrap (Imbens & Manski) at the analysed budget."
                       if ci is not None else ""),
+                   "Estimand: the average effect over everyone, Σ_z P̂(z)·E[Y(1,z) − Y(0,z)]"
+                   " — not the complier effect that 2SLS estimates under monotonicity.",
                    *([words] if words else []),
                    *(["Hatched: budgets at which the model does not fit the data"
                       + (f" (it fits from ε = {format_number(r.min_budget, 3)})."

@@ -1,12 +1,14 @@
 """The prior map: over normal priors for the direct effect (mean × SD), whether the prior
-interval excludes the threshold, with the boundary and the analysed prior."""
+interval keeps the 2SLS conclusion, contains the threshold or reverses the conclusion, with
+the boundary and the analysed prior."""
 
 from __future__ import annotations
 
 from sensiv.core.errors import InputError
 from sensiv.core.results import format_number
-from sensiv.present.figures.style import (BLUE, MID_GREY, ORANGE, PALE_BLUE, PALE_ORANGE, WHITE,
-                                          finish, make_canvas, pct, style_context)
+from sensiv.present.figures.style import (BLUE, MID_GREY, MID_ORANGE, ORANGE, PALE_BLUE,
+                                          PALE_ORANGE, WHITE, finish, make_canvas, pct,
+                                          style_context)
 
 
 def prior_map(prior_result, ax=None, *, note: str | None = None):
@@ -30,21 +32,36 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
         margin = pm.margin
         theta = format_number(pm.threshold)
         level = pct(prior_result.confidence_level)
-        span = float(np.abs(margin).max()) or 1.0
-        ax.contourf(pm.mean, pm.sd, margin, levels=[-2 * span, 0.0, 2 * span],
-                    colors=[PALE_ORANGE, PALE_BLUE], zorder=0)
+        region = pm.region
+        # three regions from the two smooth ends (contours of the ends, not of the codes):
+        # the ground "contains", above it the side of 2SLS ("kept") and the other ("reversed")
+        ax.set_facecolor(PALE_ORANGE)
+        above, below = pm.lower - pm.threshold, pm.threshold - pm.upper
+        kept, reversed_ = (above, below) if pm.estimate >= pm.threshold else (below, above)
+        top = 2.0 * float(max(np.abs(above).max(), np.abs(below).max()) or 1.0)
+        for field, colour, gid in ((kept, PALE_BLUE, "kept"), (reversed_, MID_ORANGE,
+                                                                "reversed")):
+            if field.max() > 0.0:
+                ax.contourf(pm.mean, pm.sd, field, levels=[0.0, top], colors=[colour],
+                            zorder=0).set_gid(gid)
         if margin.min() < 0.0 < margin.max():
             contour = ax.contour(pm.mean, pm.sd, margin, levels=[0.0], colors=[BLUE],
                                  linewidths=1.1, zorder=2)
             contour.set_gid("boundary")
         ax.plot([], [], color=BLUE, linewidth=1.1, label="boundary")
-        ax.fill([], [], facecolor=PALE_BLUE, label=f"{level} interval excludes {theta}")
-        ax.fill([], [], facecolor=PALE_ORANGE, label=f"{level} interval contains {theta}")
+        side = ">" if pm.estimate >= pm.threshold else "<"
+        names = region_names(level, theta, side)
+        for code, colour in ((1, PALE_BLUE), (0, PALE_ORANGE), (-1, MID_ORANGE)):
+            if code in (1, 0) or (region == code).any():
+                ax.fill([], [], facecolor=colour, label=names[code])
         (given,) = ax.plot([pm.given[0]], [pm.given[1]], marker="X", markersize=6,
                            color=ORANGE, markeredgecolor=WHITE, markeredgewidth=0.5,
                            linestyle="none", zorder=5, clip_on=False, label="analysed prior")
         given.set_gid("given")
         ax.axvline(0.0, color=MID_GREY, linewidth=0.5, zorder=1)
+        from matplotlib.ticker import MaxNLocator
+
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=5))     # no overlapping tick labels
         ax.set_xlim(pm.mean[0], pm.mean[-1])
         ax.set_ylim(pm.sd[0], pm.sd[-1])
         if pm.axis == "direct effect":
@@ -63,7 +80,21 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
                    f"Marked: the analysed prior ({laws})"
                    + ("" if prior_result.method == "closed-form" else
                       ", placed at its mean and SD") + "."]
+        if pm.axis != "direct effect":
+            caption.insert(1, f"With several instruments the interval depends on the prior "
+                           f"only through the bias a′γ of 2SLS (a: how much the estimate of "
+                           f"{prior_result.focus} moves per unit direct effect of each "
+                           "instrument; γ: the direct effects), so the axes are its prior mean "
+                           "and SD.")
         return finish(canvas, caption, note=note,
-                      legend_order=["analysed prior", "boundary",
-                                    f"{level} interval excludes {theta}",
-                                    f"{level} interval contains {theta}"])
+                      legend_order=["analysed prior", "boundary", names[1], names[0],
+                                    names[-1]])
+
+
+def region_names(level: str, theta: str, side: str) -> dict[int, str]:
+    """Legend names of the three regions of the prior map (``side``: the 2SLS conclusion's
+    sign, ">" or "<")."""
+    other = "<" if side == ">" else ">"
+    return {1: f"kept: {level} interval {side} {theta}",
+            0: f"{level} interval contains {theta}",
+            -1: f"reversed: {level} interval {other} {theta}"}

@@ -30,6 +30,7 @@ LIGHT_BLUE = "#A9C9E8"    # union of confidence intervals
 PALE_BLUE = "#E1ECF7"     # region where the conclusion holds
 ORANGE = "#C4570B"        # the breakdown point, partial-identification analyses
 PALE_ORANGE = "#FBE2CC"   # region where the conclusion fails
+MID_ORANGE = "#EFA56F"    # region where the conclusion is reversed
 WHITE = "#FFFFFF"
 
 # ----------------------------------------------------------------------------- geometry/type

@@ -1,0 +1,95 @@
+"""Words for a breakdown read as a direct effect in outcome units, as a share of the reduced
+form and in outcome SDs per instrument SD (formatting only; the numbers come from
+:class:`sensiv.sensitivity.breakdown_units.DirectUnits`)."""
+
+from __future__ import annotations
+
+from sensiv.core.results import format_number
+
+
+def one_instrument(units, k: int) -> str:
+    """Instrument ``k``'s direct effect in every available unit, e.g. ``0.01417 in outcome
+    units (31.02% of the reduced form; 0.1103 outcome SD per instrument SD)``."""
+    extra = []
+    if units.rf[k] is not None:
+        extra.append(f"{format_number(100 * units.rf[k])}% of the reduced form")
+    if units.sd[k] is not None:
+        extra.append(f"{format_number(units.sd[k])} outcome SD per instrument SD")
+    text = f"{format_number(units.outcome[k])} in outcome units"
+    return text + (f" ({'; '.join(extra)})" if extra else "")
+
+
+def direct_effect_words(units) -> str:
+    """The direct effects of a breakdown set, one instrument or several together."""
+    if len(units.instruments) == 1:
+        return f"a direct effect of {one_instrument(units, 0)}"
+    parts = [f"{z}: {one_instrument(units, k)}" for k, z in enumerate(units.instruments)]
+    return "direct effects of " + ", ".join(parts) + " (all at once, each as large in absolute value)"
+
+
+def breakdown_sentence(scale: float | None, units, what: str = "set") -> str:
+    """The breakdown in words: the direct effect first, the scale of the stated ``what``
+    ("set" or "range") second.  ``scale`` is ``None`` (no breakdown within 1000×) or ``0``
+    (no conclusion at zero direct effect) or a positive breakdown scale."""
+    if scale is None:
+        return f"the conclusion holds for every scaling of the {what} up to 1000x"
+    if scale == 0:
+        return ("no conclusion to break: at zero direct effect the interval already contains "
+                "the threshold")
+    verdict = (f"it survives the assumed {what}" if scale > 1 else
+               f"it does NOT survive the assumed {what}")
+    lead = (f"the conclusion holds up to {direct_effect_words(units)}"
+            if units is not None else "the conclusion holds")
+    return f"{lead}; that is {format_number(scale)} × the stated {what} ({verdict})"
+
+
+def table_words(units) -> str:
+    """Compact words for a table cell: ``direct effect up to 0.01417 (31.02% of reduced
+    form; 0.1103 SD)`` per instrument (largest absolute value of the scaled set)."""
+    parts = []
+    for k, z in enumerate(units.instruments):
+        extra = []
+        if units.rf[k] is not None:
+            extra.append(f"{format_number(100 * units.rf[k])}% of reduced form")
+        if units.sd[k] is not None:
+            extra.append(f"{format_number(units.sd[k])} SD")
+        name = f"{z} " if len(units.instruments) > 1 else ""
+        parts.append(f"{name}{format_number(units.outcome[k])}"
+                     + (f" ({'; '.join(extra)})" if extra else ""))
+    return "direct effect up to " + ", ".join(parts)
+
+
+def crossing_lines(instruments, b) -> list[str]:
+    """Per instrument alone, where an end of the interval crosses the threshold: where the
+    conclusion breaks, or — when there is no conclusion at zero direct effect — where one
+    would first appear."""
+    theta = format_number(b.threshold)
+    lines = []
+    for z, lo, hi in zip(instruments, b.direct_lower, b.direct_upper):
+        lo_t = "none" if lo is None else format_number(lo)
+        hi_t = "none" if hi is None else format_number(hi)
+        if b.scale == 0:
+            lines.append(f"  {z} alone: a conclusion about {theta} would first appear at a "
+                         f"direct effect of {lo_t} (nearest below zero) or {hi_t} (nearest "
+                         "above zero), where the interval stops containing it")
+        else:
+            lines.append(f"  {z} alone: an end of the interval crosses {theta} at a direct "
+                         f"effect of {lo_t} (nearest below zero) or {hi_t} (nearest above "
+                         "zero)")
+    return lines
+
+
+def units_cells(units, what: str) -> list[list[str]]:
+    """Markdown rows (quantity, value): the direct effect of a breakdown per instrument in
+    outcome units, as a share of the reduced form and in SD units (none without a breakdown)."""
+    if units is None:
+        return []
+    rows = []
+    for k, z in enumerate(units.instruments):
+        name = f", {z}" if len(units.instruments) > 1 else ""
+        rf = "n/a" if units.rf[k] is None else f"{format_number(100 * units.rf[k])}%"
+        sd = "n/a" if units.sd[k] is None else format_number(units.sd[k])
+        rows.append([f"{what} direct effect{name} (outcome units / share of reduced form / "
+                     "outcome SD per instrument SD)",
+                     f"{format_number(units.outcome[k])} / {rf} / {sd}"])
+    return rows
