@@ -182,7 +182,8 @@ def discrete_items(bounds) -> list[SummaryItem]:
              f"{format_number(bounds.budget)} of units"
              + ("; monotone" if bounds.monotone else ""))
     pieces = (bounds.bounds,) if bounds.bounds is not None else ()
-    out = [SummaryItem("discrete bounds", pieces, words, "partial identification", "set")]
+    # A different estimand from 2SLS's complier effect: say so on the row itself.
+    out = [SummaryItem("discrete bounds: everyone's average effect", pieces, words, "partial identification", "set")]
     if bounds.ci is not None:
         out.append(SummaryItem(f"discrete bounds, {level} CI", (bounds.ci,), words,
                                "partial identification", "interval"))
