@@ -8,8 +8,9 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import (ENGINE, FORMAT, check_engine, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT, WHERE,
-                                check_out, emit, figure_formats, out_option, write_outputs)
+from sensiv.cli.options import (ENGINE, FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
+                                WHERE, check_engine, check_out, emit, figure_formats,
+                                out_option, write_outputs)
 
 EXIT_SOLVER_FAILURE = 1
 

@@ -70,15 +70,9 @@ SCHEDULER = typer.Option(None, "--scheduler", metavar="ADDRESS", help="Address o
 
 def check_engine(engine: str, scheduler: Optional[str]) -> None:
     """Refuse an unknown engine or a scheduler without --engine dask before reading data."""
-    from sensiv.data import ENGINES
-    from sensiv.core.errors import InputError
+    from sensiv.data.datasets import check_engine as check
 
-    if engine not in ENGINES:
-        raise InputError(f"--engine {engine!r} is not an engine; choose one of "
-                         f"{', '.join(ENGINES)}")
-    if scheduler is not None and engine != "dask":
-        raise InputError(f"--scheduler {scheduler!r} is for --engine dask; add --engine dask "
-                         "or drop --scheduler")
+    check(engine, scheduler)
 
 
 def engine_source(data, spec, engine: str = "numpy", scheduler: Optional[str] = None):

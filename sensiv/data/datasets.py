@@ -75,14 +75,19 @@ def missing_extra(engine: str) -> InputError:
                       f"\"sensiv[{EXTRAS[engine]}]\" (or choose --engine numpy)")
 
 
-def with_engine(source: Source, engine: str = "numpy", scheduler: str | None = None) -> Source:
-    """``source`` read by ``engine``; InputError for an unknown engine or an unusable pairing."""
+def check_engine(engine: str, scheduler: str | None) -> None:
+    """Refuse an unknown engine, or a scheduler without the dask engine."""
     if engine not in ENGINES:
         raise InputError(f"--engine {engine!r} is not an engine; choose one of "
                          f"{', '.join(ENGINES)}")
     if scheduler is not None and engine != "dask":
         raise InputError(f"--scheduler {scheduler!r} is for --engine dask; add --engine dask "
                          "or drop --scheduler")
+
+
+def with_engine(source: Source, engine: str = "numpy", scheduler: str | None = None) -> Source:
+    """``source`` read by ``engine``; InputError for an unknown engine or an unusable pairing."""
+    check_engine(engine, scheduler)
     if engine == "duckdb" and (source.origin is None or source.origin.kind == "dask"):
         raise InputError(f"--engine duckdb reads CSV and Parquet files, directories or globs "
                          f"of them and DuckDB tables; {source.description} is none of these: "

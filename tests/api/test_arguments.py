@@ -90,13 +90,14 @@ def test_roles_beside_a_spec_are_refused():
         sensiv.sweep(PATH, spec, outcome="maize_yield", direct="-0.01:0.01")
 
 
-def test_absorb_is_refused_until_sensiv_can_absorb():
-    from sensiv.data import Spec
-
-    if "absorb" in Spec.__dataclass_fields__:
-        pytest.skip("this Spec absorbs fixed effects")
-    with pytest.raises(InputError, match="absorb= .* is not available"):
-        spec_of_roles({**ROLES, "absorb": ["village"]})
+def test_absorb_and_two_way_cluster_pass_through():
+    # common practice, no source: the API's roles are the CLI's
+    spec = spec_of_roles({**ROLES, "controls": ["plot_ha"], "absorb": "village",
+                          "cluster": ["village", "soil"]})
+    assert spec.absorb == ("village",)
+    assert list(spec.cluster) == ["village", "soil"]
+    with pytest.raises(InputError, match="one or two column names"):
+        spec_of_roles({**ROLES, "cluster": ["a", "b", "c"]})
 
 
 def test_a_string_direct_is_one_range_not_its_characters():
