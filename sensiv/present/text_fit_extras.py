@@ -11,11 +11,22 @@ def bootstrap_lines(fit) -> list[str]:
     if boot is None:
         return []
     pct = f"{100 * boot.confidence_level:g}%"
-    return ["", f"Wild cluster bootstrap ({boot.method}; {boot.reps} replicates, "
-                f"{boot.weights} weights, {boot.n_clusters} clusters, seed {boot.seed}):",
-            f"  {boot.treatment} = {format_number(boot.threshold)}: bootstrap p = "
-            f"{format_number(boot.p_value, 3)}",
+    return ["", f"Bootstrap: {boot.method}; {boot.reps} replicates, {boot.weights} weights, "
+                f"{boot.n_clusters} clusters, seed {boot.seed}",
+            f"  {boot.treatment} = {format_number(boot.threshold)}: bootstrap "
+            f"{p_value_text(boot.p_value, boot.reps)}",
             f"  {pct} interval by test inversion (same draws for every null): {boot.ci}"]
+
+
+def p_value_text(p: float, reps: int) -> str:
+    """A bootstrap p-value; zero is stated as below the resolution of ``reps`` replicates.
+
+    >>> p_value_text(0.0, 999), p_value_text(0.0421, 999)
+    ('p < 0.001 (no replicate as extreme)', 'p = 0.0421')
+    """
+    if p == 0.0:
+        return f"p < {format_number(1.0 / reps, 1)} (no replicate as extreme)"
+    return f"p = {format_number(p, 3)}"
 
 
 def tf_lines(fit) -> list[str]:

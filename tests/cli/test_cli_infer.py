@@ -74,7 +74,8 @@ def test_readme_bootstrap_example():
     result = invoke("fit", EXAMPLE, *ROLES, "--cluster", "village", "--bootstrap", "wild",
                     "--reps", "999", "--seed", "1")
     assert result.exit_code == 0, result.stderr
-    assert "Wild cluster bootstrap" in result.stdout
+    assert "Bootstrap: wild restricted efficient" in result.stdout
+    assert "bootstrap p" in result.stdout
     assert "interval by test inversion" in result.stdout
 
 
