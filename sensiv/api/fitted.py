@@ -136,7 +136,10 @@ def _from_pyfixest(result: Any) -> FittedModel:
     frame = result._data
     second = [str(c) for c in result._coefnames]
     first = [str(c) for c in result._coefnames_z]
-    constant = PYFIXEST_INTERCEPT in second
+    # With fixed effects pyfixest reports no intercept, but the fixed effects absorb one: keep
+    # sensiv's constant so that the levels are counted as pyfixest counts them (a fixed effect
+    # nested in the cluster variable adds one parameter back, the intercept).
+    constant = PYFIXEST_INTERCEPT in second or bool(result._has_fixef)
     exog = [c for c in second if c in first and c != PYFIXEST_INTERCEPT]
     treatments = [c for c in second if c not in first]
     instruments = [c for c in first if c not in second]

@@ -158,9 +158,20 @@ def test_linearmodels_formula_terms_and_missing_rows(card):
 
 
 def test_pyfixest_round_trip_with_absorbed_fixed_effects(card):
-    # reference library: pyfixest 0.60 (its IV feols with a fixed effect absorbed)
-    fitted = pf.feols("lwage ~ exper + black | reg661 | educ ~ nearc4", data=card,
-                      vcov="hetero")
-    result = quiet_sweep(fitted)
-    assert result.estimate == pytest.approx(fitted.coef()["educ"], abs=TOLERANCE)
-    assert result.se == pytest.approx(fitted.se()["educ"], abs=TOLERANCE)
+    # reference library: pyfixest 0.60 (its IV feols with a nine-level region fixed effect
+    # absorbed; robust and region-clustered covariances with its default small-sample settings)
+    regions = [f"reg66{j}" for j in range(1, 10)]
+    frame = card.assign(region=card[regions].to_numpy().argmax(axis=1))
+    for vcov in ("hetero", {"CRV1": "region"}):
+        fitted = pf.feols("lwage ~ exper + black | region | educ ~ nearc4", data=frame,
+                          vcov=vcov)
+        result = quiet_sweep(fitted)
+        assert result.estimate == pytest.approx(fitted.coef()["educ"], abs=TOLERANCE)
+        assert result.se == pytest.approx(fitted.se()["educ"], abs=TOLERANCE)
+        # the same roles given by keyword give the same sweep
+        by_roles = quiet_sweep(frame, outcome="lwage", treatment="educ", instruments="nearc4",
+                               controls=["exper", "black"], absorb="region",
+                               cluster=None if vcov == "hetero" else "region",
+                               se="robust" if vcov == "hetero" else "cluster", small=True)
+        assert by_roles.se == pytest.approx(result.se, rel=1e-12)
+        assert by_roles.union_ci.low == pytest.approx(result.union_ci.low, rel=1e-12)
