@@ -10,7 +10,7 @@ from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.writer import to_json
 from sensiv.present.tables import markdown_table
 from sensiv.present.text_at import at_cells, at_heading
-from sensiv.present.text_bias_aware import bias_aware_cells
+from sensiv.present.text_bias_aware import bias_aware_cells, optimal_cells, shown_optimal
 from sensiv.present.text_units import units_cells
 from sensiv.sensitivity import bounds
 from sensiv.sensitivity.breakdown_units import curve_units
@@ -72,6 +72,8 @@ def sweep_markdown(res) -> str:
         [f"union of {pct} intervals", str(res.union_ci)],
         *(bias_aware_cells(res.bias_aware, res.confidence_level)
           if res.bias_aware is not None else []),
+        *(optimal_cells(shown_optimal(res), res.confidence_level)
+          if shown_optimal(res) is not None else []),
         [f"weak-IV-robust {pct} set", " ∪ ".join(str(p) for p in res.ar_set)
          if res.ar_set else ("empty" if res.ar_set is not None else "n/a")],
         ["conclusion examined", b.conclusion],

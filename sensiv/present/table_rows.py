@@ -86,6 +86,12 @@ def sweep_rows(res) -> list[TableRow]:
     if res.bias_aware is not None:
         rows.append(_bias_aware_row(res, f"bias-aware interval: {res.focus}", words, res.n,
                                     cov))
+    opt = getattr(res, "bias_aware_optimal", None)
+    if opt is not None and opt.traced:
+        rows.append(TableRow(f"bias-aware interval, optimal weights: {res.focus}", words,
+                             opt.interval.estimate, opt.interval.se, None, (opt.interval.ci,),
+                             res.confidence_level, None, NONE_TEXT, res.n, cov,
+                             bounds.CAUTION))
     if res.ar_set is not None:
         rows.append(TableRow(f"weak-IV-robust sweep: {res.focus}", words, None, None, None,
                              _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,

@@ -6,7 +6,8 @@ from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
 from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.text_fit_extras import bootstrap_lines, tf_lines
-from sensiv.present.text_bias_aware import bias_aware_breakdown, bias_aware_line
+from sensiv.present.text_bias_aware import (bias_aware_breakdown, bias_aware_line,
+                                            optimal_line, shown_optimal)
 from sensiv.present.text_levels import absorbed_line, listed_names
 from sensiv.present.text_at import at_cells, at_heading
 from sensiv.present.text_units import breakdown_sentence, crossing_lines
@@ -104,6 +105,8 @@ def sweep_summary(res) -> str:
         f"Union of {pct} intervals over the set: {res.union_ci}",
         *([bias_aware_line(res.bias_aware, res.confidence_level)]
           if res.bias_aware is not None else []),
+        *([optimal_line(shown_optimal(res), res.confidence_level)]
+          if shown_optimal(res) is not None else []),
         f"Weak-instrument-robust {pct} set:      {_pieces(res.ar_set)}"
         + (f" ({res.ar_method})" if res.ar_method else ""),
         "",

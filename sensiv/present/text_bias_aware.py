@@ -34,3 +34,30 @@ def bias_aware_cells(ba, confidence_level: float) -> list[list[str]]:
             ["bias-aware: estimate / worst-case bias / largest se / critical value",
              " / ".join(format_number(v) for v in (ba.estimate, ba.max_bias, ba.se,
                                                        ba.critical_value))]]
+
+
+def shown_optimal(res):
+    """The optimally weighted interval of ``res`` when it was traced (overidentified), else
+    None (just identified it is the 2SLS-centred interval, already shown)."""
+    opt = getattr(res, "bias_aware_optimal", None)
+    return opt if opt is not None and opt.traced else None
+
+
+def optimal_line(opt, confidence_level: float) -> str:
+    """One line: the optimally weighted bias-aware interval and its length ratio."""
+    pct = f"{100 * confidence_level:g}%"
+    ba = opt.interval
+    ratio = ("" if opt.length_ratio is None
+             else f", {format_number(opt.length_ratio)} x the length of the 2SLS-centred one")
+    return (f"Bias-aware {pct}, optimal weights:     {ba.ci}  (estimate "
+            f"{format_number(ba.estimate)}, worst-case bias {format_number(ba.max_bias)}, "
+            f"largest se {format_number(ba.se)}{ratio})")
+
+
+def optimal_cells(opt, confidence_level: float) -> list[list[str]]:
+    """Markdown rows (quantity, value) for a report."""
+    pct = f"{100 * confidence_level:g}%"
+    ratio = "n/a" if opt.length_ratio is None else format_number(opt.length_ratio)
+    return [[f"bias-aware {pct} interval (optimal weights on the instruments)",
+             str(opt.interval.ci)],
+            ["optimal / 2SLS-centred bias-aware length", ratio]]

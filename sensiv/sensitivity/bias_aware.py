@@ -24,7 +24,8 @@ standardised error is ``N(bias/s, 1)`` with ``|bias/s| ≤ B/s`` and ``P(|N(t,1)
 decreases in ``|t|``.
 
 Only the 2SLS-centred interval is computed here (``weighting = "2sls"``); the paper's
-optimally weighted estimator for overidentified models is not (yet) implemented.
+optimally weighted estimator for overidentified models is in
+:mod:`sensiv.sensitivity.optimal_weights` (which scores its candidates with :func:`bias_aware`).
 
 Centres: for a box, its centre (then ``B = |a|'h`` with ``h`` the half-widths); for a polytope,
 its Chebyshev centre (the centre of the largest inscribed ball, one linear programme), with

@@ -14,6 +14,8 @@ pieces) assemble a :class:`SweepResult` from the parts that live in their own mo
 * :mod:`~sensiv.sensitivity.union` — union intervals, identified sets, breakdown scales;
 * :mod:`~sensiv.sensitivity.frontier` — the breakdown frontier over thresholds;
 * :mod:`~sensiv.sensitivity.robust_set` — the weak-instrument-robust (Anderson–Rubin) set;
+* :mod:`~sensiv.sensitivity.bias_aware`, :mod:`~sensiv.sensitivity.optimal_weights` —
+  bias-aware intervals centred at 2SLS and optimally weighted (overidentified models);
 * :mod:`~sensiv.sensitivity.adaptive` — the falsification adaptive set (optional).
 """
 
@@ -43,15 +45,14 @@ from sensiv.sensitivity.direct_sets import (DirectSet, RangeSpec, Scale, check_r
 from sensiv.sensitivity.frontier import Frontier, breakdown_frontier, frontier_thresholds
 from sensiv.sensitivity.linear_core import (Core, build_core, first_stage_is_uninformative,
                                             focus_block, focus_index)
-from sensiv.sensitivity.robust_set import reduced_form, robust_set
+from sensiv.sensitivity.optimal_weights import OptimalBiasAware, moment_block, optimal_from_fit
+from sensiv.sensitivity.robust_set import (MATERIAL_SHARE, differs_materially,  # noqa: F401
+                                           reduced_form, robust_set)
 from sensiv.sensitivity.union import SCALE_MAX, direct_breakdown, identified_set_lp
 from sensiv.sensitivity.union_sets import (UnionMethod, breakdown_scale_set,
                                            identified_curve_set, union_curve_set)
 
 DEFAULT_POINTS = 101
-# The weak-IV-robust set "differs materially" from the Wald union when their hulls differ by
-# more than this share of the Wald union's width.
-MATERIAL_SHARE = 0.25
 # When the breakdown lies beyond the stated set (1 < t* ≤ SCALE_MAX), a second curve runs to
 # this multiple of t*, so a figure can show the stated set and the breakdown together.
 EXTEND_FACTOR = 1.15
@@ -144,6 +145,7 @@ class SweepResult(Presentable):
     bias_aware: BiasAware | None = None
     union_method: UnionMethod | None = None
     at: tuple[AtPoint, ...] = ()            # intervals at the --at grid of direct effects
+    bias_aware_optimal: OptimalBiasAware | None = None   # overidentified models
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -158,6 +160,7 @@ class SweepResult(Presentable):
             f"{100 * self.confidence_level:g}% intervals covers β at least at that rate when "
             "the true direct effect lies in the set",
             *(self.bias_aware.assumptions() if self.bias_aware is not None else []),
+            *(self.bias_aware_optimal.assumptions() if self.bias_aware_optimal else []),
         ] + filter_assumptions(self.fit.where, self.fit.n_filtered) + (
             iv.absorb_assumptions(self.fit))
 
@@ -182,6 +185,8 @@ class SweepResult(Presentable):
             "union_method": (self.union_method.to_dict()
                              if self.union_method is not None else None),
             "bias_aware": self.bias_aware.to_dict() if self.bias_aware is not None else None,
+            "bias_aware_optimal": (self.bias_aware_optimal.to_dict()
+                                   if self.bias_aware_optimal is not None else None),
             "breakdown": self.breakdown.to_dict(),
             "at": [p.to_dict() for p in self.at],
             "curve": self.curve.to_list(),
@@ -268,7 +273,8 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
                          f"({', '.join(treatments)}): drop --adaptive or keep one treatment")
     result, pieces, sums = iv.fit_with_pieces(
         source, se=se, confidence_level=confidence_level, small=small,
-        extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j)])
+        extra_blocks=lambda p: [] if se == "classic" else [focus_block(p, j),
+                                                           *moment_block(p, se)])
     with overflow_guard("the --direct range (or polytope)"):
         return analyse(result, pieces, sums, j, ranges=ranges, dset=dset_file,
                        threshold=threshold, points=points, adaptive=adaptive, at=grid)
@@ -310,6 +316,7 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
                            scale.outcome_sd, scale.instrument_sd, core.instruments)
     ba = bias_aware([core], dset, level, unbounded=uninformative)
     ba_lo, ba_hi = bias_aware_curve([core], dset, scales, level, unbounded=uninformative)
+    optimal = optimal_from_fit(pieces, sums, result, j, core, dset, ba, unbounded=uninformative)
     ar, ar_method, fas = None, None, None
     if len(pieces.design.treatments) == 1:
         rf = reduced_form(pieces, sums, result)
@@ -335,26 +342,17 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         curve=Curve(scales, lo, hi, id_lo, id_hi, ba_lo, ba_hi), ar_set=ar,
         ar_method=ar_method, scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)),
         frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba,
-        union_method=method,
+        union_method=method, bias_aware_optimal=optimal,
         at=at_points(core, scale, at, level, uninformative))
 
 
 def with_units(breakdown: Breakdown, box, reduced_form, outcome_sd, instrument_sd,
                instruments) -> Breakdown:
-    """``breakdown`` with its scales read as direct effects in outcome, reduced-form and SD
-    units (:func:`sensiv.sensitivity.breakdown_units.direct_units`)."""
+    """``breakdown`` with its scales as direct effects in three units (``direct_units``)."""
     def units(t):
         return direct_units(t, instruments, box, reduced_form, outcome_sd, instrument_sd)
     return replace(breakdown, direct_units=units(breakdown.scale),
                    bias_aware_units=units(breakdown.bias_aware_scale))
-
-
-def differs_materially(ar: tuple[Interval, ...], wald: Interval) -> bool:
-    """True when the hull of the weak-IV-robust set ``ar`` is empty, unbounded, or differs in
-    width from the Wald union by more than :data:`MATERIAL_SHARE` of the union's width."""
-    hull = (Interval(ar[0].low, ar[-1].high) if ar else None)
-    return hull is None or not hull.bounded or abs(
-        hull.width - wald.width) > MATERIAL_SHARE * wald.width
 
 
 def conclusion_text(focus: str, base: Interval, threshold: float, uninformative: bool) -> str:

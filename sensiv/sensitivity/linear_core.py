@@ -81,6 +81,11 @@ def _slope_and_residual_maps(pieces: iv.Pieces, j: int) -> tuple[np.ndarray, np.
     return full[row], residual_maps
 
 
+def residual_maps(pieces: iv.Pieces) -> np.ndarray:
+    """The row map ``[û, M]`` of the 2SLS residual ``u(γ) = û − Mγ`` (any treatment)."""
+    return _slope_and_residual_maps(pieces, 0)[1]
+
+
 def focus_block(pieces: iv.Pieces, j: int) -> ScoreBlock:
     """Pass-2 request for the robust/cluster variance quadratic of treatment ``j``."""
     _, maps = _slope_and_residual_maps(pieces, j)

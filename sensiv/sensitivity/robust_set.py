@@ -25,6 +25,10 @@ from sensiv.partial_id.solver import solve
 from sensiv.sensitivity.direct_sets import DirectSet
 from sensiv.sensitivity.union import merge_intervals
 
+# The weak-IV-robust set "differs materially" from the Wald union when their hulls differ by
+# more than this share of the Wald union's width.
+MATERIAL_SHARE = 0.25
+
 # Grids that locate the weak-IV-robust set with several instruments (then refined by roots):
 AR_GRID = 401               # box: bounded least squares per point
 AR_GRID_POLYTOPE = 101      # polytope: one quadratic programme per point
@@ -207,3 +211,11 @@ def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...
     if start is not None:
         pieces.append(Interval(start, math.inf if unbounded else grid[-1]))
     return merge_intervals(pieces)
+
+
+def differs_materially(ar: tuple[Interval, ...], wald: Interval) -> bool:
+    """True when the hull of the weak-IV-robust set ``ar`` is empty, unbounded, or differs in
+    width from the Wald union by more than :data:`MATERIAL_SHARE` of the union's width."""
+    hull = (Interval(ar[0].low, ar[-1].high) if ar else None)
+    return hull is None or not hull.bounded or abs(
+        hull.width - wald.width) > MATERIAL_SHARE * wald.width

@@ -246,3 +246,28 @@ at = [0.005, "0.1rf"]
     run = run_recipe(recipe)
     points = run.runs[0].result.at
     assert [p.given.text() for p in points] == ["0.005", "0.1rf"]
+
+
+def test_sweep_reports_the_optimally_weighted_interval(tmp_path):
+    # common practice, no source: the contract of the keys (numbers checked in
+    # tests/sensitivity/test_optimal_weights.py)
+    import numpy as np
+
+    rng = np.random.default_rng(7)
+    z = rng.normal(size=(300, 2))
+    x = z @ [0.8, 0.4] + rng.normal(size=300)
+    y = 0.5 * x + rng.normal(size=300)
+    path = tmp_path / "two.csv"
+    pd.DataFrame({"y": y, "x": x, "z1": z[:, 0], "z2": z[:, 1]}).to_csv(path, index=False)
+    args = ("sweep", path, "--outcome", "y", "--treatment", "x", "--instrument", "z1",
+            "--instrument", "z2", "--direct=-0.05:0.05", "--direct=0:0.02")
+    result = invoke(*args, "--json")
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert doc["bias_aware"]["weighting"] == "2sls"
+    opt = doc["bias_aware_optimal"]
+    assert opt["weighting"] == "optimal" and set(opt["weights"]) == {"z1", "z2"}
+    assert opt["ci"][1] - opt["ci"][0] <= doc["bias_aware"]["ci"][1] - doc["bias_aware"]["ci"][0]
+    assert 0.0 < opt["length_ratio"] <= 1.0
+    text = invoke(*args)
+    assert text.exit_code == 0 and "optimal weights" in text.stdout

@@ -259,8 +259,8 @@ def test_summary_intervals_draws_every_analysis(results):
     rows = summary_rows(items)
     labels = [r.label for r in rows]
     assert labels[:2] == ["2SLS, 95% CI", "Anderson–Rubin 95% set"]
-    assert {"identified set", "union of 95% intervals", "95% prior interval",
-            "correlation bounds"} <= set(labels)
+    assert {"identified set", "union of 95% intervals", "bias-aware 95% interval",
+            "95% prior interval", "correlation bounds"} <= set(labels)
     fig = figures.summary_intervals(rows, threshold=summary_threshold(items),
                                     xlabel=summary_xlabel(items))
     assert [snapshot(r) for r in items] == before
@@ -565,10 +565,13 @@ def test_summary_intervals_take_published_rows(extra, results):
     rows = summary_rows([pub])
     assert rows == figures.published_items(pub)
     assert [r.label for r in rows] == ["identified set", "union of 95% intervals",
+                                       "bias-aware 95% interval",
                                        "weak-IV-robust 95% set", "95% prior interval"]
     assert all(r.assumption.startswith("from printed numbers") for r in rows)
-    assert [r.pieces for r in rows] == [(pub.identified_set,), (pub.union_ci,), pub.ar_set,
+    assert [r.pieces for r in rows] == [(pub.identified_set,), (pub.union_ci,),
+                                        (pub.bias_aware.ci,), pub.ar_set,
                                         (pub.prior.interval,)]
+    assert rows[2].point == pub.bias_aware.estimate
     assert rows[-1].point == pub.prior.center
     items = [results["within"], pub, extra["calibrate"]]
     before = [snapshot(r) for r in items]
@@ -698,3 +701,23 @@ def test_figures_are_byte_identical_across_processes(tmp_path):
     names = set(bundles[0])
     assert {n.rsplit(".", 1)[-1] for n in names} >= {"png", "svg", "pdf"}
     assert bundles[0] == bundles[1]
+
+
+def test_summary_rows_carry_both_bias_aware_intervals():
+    # common practice, no source: with two instruments the optimally weighted interval gets
+    # its own row when shorter; the rows draw exactly the result's intervals
+    rng = np.random.default_rng(11)
+    z = rng.normal(size=(300, 2))
+    x = z @ [0.8, 0.4] + rng.normal(size=300)
+    frame = pd.DataFrame({"y": 0.5 * x + rng.normal(size=300), "x": x, "z1": z[:, 0],
+                          "z2": z[:, 1]})
+    spec = Spec(outcome="y", treatments=("x",), instruments=("z1", "z2"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = bounds.sweep(frame, spec, direct=["-0.05:0.05", "0:0.02"], points=3)
+    rows = {r.label: r for r in figures.sweep_items(res)}
+    assert rows["bias-aware 95% interval"].pieces == (res.bias_aware.ci,)
+    opt = res.bias_aware_optimal
+    assert opt.length_ratio < 1                   # this design gains a little from weighting
+    assert rows["bias-aware 95%, optimal weights"].pieces == (opt.interval.ci,)
+    assert rows["bias-aware 95%, optimal weights"].point == opt.interval.estimate

@@ -123,10 +123,26 @@ def sweep_items(sweep) -> list[SummaryItem]:
     out = [SummaryItem("identified set", (sweep.identified_set,), words, "direct effect",
                        "set"),
            SummaryItem(f"union of {level} intervals", (sweep.union_ci,), words,
-                       "direct effect", "interval")]
+                       "direct effect", "interval"),
+           *bias_aware_items(sweep.bias_aware, getattr(sweep, "bias_aware_optimal", None),
+                             level, words)]
     if sweep.ar_set is not None:
         out.append(SummaryItem(f"weak-IV-robust {level} set", tuple(sweep.ar_set), words,
                                "direct effect", "interval"))
+    return out
+
+
+def bias_aware_items(two_sls, optimal, level: str, words: str) -> list[SummaryItem]:
+    """The bias-aware interval centred at 2SLS and, when shorter, the optimally weighted one
+    (Armstrong & Kolesár 2021); none when the result has no bias-aware interval."""
+    out = []
+    if two_sls is not None:
+        out.append(SummaryItem(f"bias-aware {level} interval", (two_sls.ci,), words,
+                               "direct effect", "interval", two_sls.estimate))
+    if (optimal is not None and optimal.traced and optimal.length_ratio is not None
+            and optimal.length_ratio < 1):
+        out.append(SummaryItem(f"bias-aware {level}, optimal weights", (optimal.interval.ci,),
+                               words, "direct effect", "interval", optimal.interval.estimate))
     return out
 
 
@@ -152,6 +168,7 @@ def published_items(published) -> list[SummaryItem]:
     out = [SummaryItem("identified set", (res.identified_set,), words, "direct effect", "set"),
            SummaryItem(f"union of {level} intervals", (res.union_ci,), words, "direct effect",
                        "interval"),
+           *bias_aware_items(res.bias_aware, None, level, words),
            SummaryItem(f"weak-IV-robust {level} set", tuple(res.ar_set), words,
                        "direct effect", "interval")]
     if res.prior is not None:
