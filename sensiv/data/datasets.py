@@ -95,10 +95,8 @@ def with_engine(source: Source, engine: str = "numpy", scheduler: str | None = N
 
 
 def _unsupported(spec: Spec) -> str | None:
-    """The spec feature the duckdb / dask engines do not run yet (absorbed fixed effects,
-    clustering in more than one way); both would be group-by sums of the score columns."""
-    if getattr(spec, "absorb", None):
-        return "--absorb (absorbed fixed effects)"
+    """The spec feature the duckdb / dask engines do not run yet (clustering in more than one
+    way); it would be group-by sums of the score columns."""
     cluster = spec.cluster
     if isinstance(cluster, (tuple, list)) and len(cluster) > 1:
         return "clustering in more than one way"

@@ -24,9 +24,10 @@ from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_MAGNITUDE
 from sensiv.data.convert import Tally
 from sensiv.data.datasets import missing_extra, quoted
-from sensiv.data.spec import read_columns, roles
+from sensiv.data.spec import cluster_columns, read_columns, roles
 from sensiv.estimation.engines.duckdb_sql import (PANDAS_MISSING, Query, filter_sql, indicator,
                                                   is_numeric, linear, missing, number)
+from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums
 
 
@@ -59,6 +60,8 @@ class _Plan:
     """The SQL pieces of one source: column kinds, the filtered rows, the data expressions."""
 
     def __init__(self, source) -> None:
+        self.view = source if isinstance(source, GroupAbsorbed) else None
+        source = source.base if self.view is not None else source
         self.source = source
         self.connection, relation, params = _relation(source)
         spec = source.spec
@@ -104,13 +107,38 @@ class _Plan:
                              "that every file is complete and valid (re-export it, or move it "
                              "out of the data set), or choose --engine numpy") from exc
 
-    def clean_rows(self, extra: str = "") -> tuple[str, list]:
-        """SELECT of the clean rows: ``w``, ``v0 … v{p-1}`` (and ``extra`` columns)."""
+    @property
+    def width(self) -> int:
+        """Model columns of the rows :meth:`clean_rows` gives (fewer when controls are absorbed)."""
+        return len(self.view.stream.keep_columns) if self.view is not None else len(self.values)
+
+    def raw_rows(self, extra: str = "") -> tuple[str, list]:
+        """SELECT of the clean raw rows: ``w``, ``v0 … v{p-1}`` (and ``extra`` columns)."""
         weight = self.weight or "1.0"
         columns = ", ".join(f"{v} AS v{j}" for j, v in enumerate(self.values))
         sql = (f"SELECT {weight} AS w, {columns}{extra} FROM {self.kept} AS kept "
                f"WHERE {self.clean_condition}")
         return sql, self.value_params + self.kept_params
+
+    def clean_rows(self, extra: str = "") -> tuple[str, list]:
+        """The rows the passes read: the raw rows, or with one absorbed fixed effect the rows of
+        levels met more than once, each kept column minus its weighted level mean (a join with
+        the per-level sums, a GROUP BY)."""
+        if self.view is None:
+            return self.raw_rows(extra)
+        effect = quoted(self.source.spec.absorb[0])
+        raw, params = self.raw_rows(f"{extra}, {effect} AS fe_label")
+        keep = [int(j) for j in self.view.stream.keep_columns]
+        sums = ", ".join(f"sum(w * v{j}) AS s{j}" for j in keep)
+        demeaned = ", ".join(f"clean.v{j} - level.s{j} / level.w_level AS v{i}"
+                             for i, j in enumerate(keep))
+        every = ", ".join(["w", "fe_label", *(f"v{j}" for j in range(len(self.values)))])
+        sql = (f"WITH clean AS ({raw}), level AS (SELECT fe_label, count(*) AS n_level, "
+               f"sum(w) AS w_level, {sums} FROM clean GROUP BY fe_label) "
+               f"SELECT clean.w AS w, {demeaned}, clean.* EXCLUDE ({every}) FROM clean "
+               "JOIN level ON clean.fe_label = level.fe_label "
+               "WHERE level.n_level > 1")
+        return sql, params
 
     def close(self) -> None:
         self.connection.close()
@@ -180,7 +208,9 @@ def moments(source, columns: Sequence[str]) -> Moments:
     try:
         n_filtered, n_dropped, shift = _checks(plan)
         rows, params = plan.clean_rows()
-        p = len(plan.values)
+        p = plan.width
+        if plan.view is not None:
+            shift = np.zeros(p)          # the demeaned columns have mean zero
         query = Query()
         centred = ", ".join(f"v{j} - {query.bind(float(shift[j]))} AS d{j}" for j in range(p))
         sums = ["count(*)", "sum(w)"] + [f"sum(w * d{j})" for j in range(p)]
@@ -268,3 +298,32 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
             a, c = i - offsets[name], j - offsets[name]
             meats[name][a, c] = meats[name][c, a] = float(value or 0.0)
     return ScoreSums(meats, len(sums) if cluster else None)
+
+
+def group_stats(source) -> GroupStats:
+    """Pass 0 of one absorbed fixed effect: per-level sums of the clean rows, a GROUP BY."""
+    import pandas as pd
+
+    plan = _Plan(source)
+    spec = source.spec
+    try:
+        _checks(plan)
+        clusters = cluster_columns(spec)
+        extra = f", {quoted(spec.absorb[0])} AS fe_label" + "".join(
+            f", {quoted(c)} AS c{k}" for k, c in enumerate(clusters))
+        rows, params = plan.raw_rows(extra)
+        p = len(plan.values)
+        parts = ["fe_label", "count(*)", "sum(w)"]
+        parts += [f"sum(w * v{j}) / sum(w)" for j in range(p)]
+        parts += [f"min(v{j})" for j in range(p)] + [f"max(v{j})" for j in range(p)]
+        parts += [f"count(DISTINCT c{k}) = 1" for k in range(len(clusters))]
+        result = plan.run(f"SELECT {', '.join(parts)} FROM ({rows}) AS clean GROUP BY fe_label",
+                          params).fetchall()
+    finally:
+        plan.close()
+    labels = pd.Index([row[0] for row in result])
+    table = np.array([row[1:3 + 3 * p] for row in result], dtype=np.float64).reshape(-1, 2 + 3 * p)
+    single = (np.array([row[3 + 3 * p:] for row in result], dtype=bool).reshape(-1, len(clusters))
+              if clusters else None)
+    return GroupStats(labels, table[:, 0].astype(np.int64), table[:, 1],
+                      table[:, 2:2 + p], table[:, 2 + p:2 + 2 * p], table[:, 2 + 2 * p:], single)
