@@ -221,7 +221,7 @@ def _streamed(source) -> AbsorbedSource:
                           tuple(getattr(source, "notes", ())) + notes, None, source, stream)
 
 
-def absorb_source(source, *, tolerance: float = fe.DEFAULT_TOLERANCE,
+def absorb_source(source, *, tolerance: float | None = None,
                   max_iterations: int = fe.MAX_ITERATIONS):
     """The source with ``source.spec.absorb`` partialled out (``source`` itself without any).
 
@@ -232,6 +232,8 @@ def absorb_source(source, *, tolerance: float = fe.DEFAULT_TOLERANCE,
     """
     if not source.spec.absorb or isinstance(source, (AbsorbedSource, GroupAbsorbed)):
         return source
+    if tolerance is None:       # the spec's (--absorb-tolerance, recipe key absorb_tolerance)
+        tolerance = getattr(source.spec, "absorb_tolerance", fe.DEFAULT_TOLERANCE)
     if not (isinstance(tolerance, float) and 0.0 < tolerance < 1.0):
         raise InputError(f"absorb tolerance {tolerance!r} must be a number in (0, 1), e.g. 1e-10")
     engine = engine_of(source)
