@@ -12,7 +12,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
+from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, TREATMENT, WEIGHT, WHERE, check_out, emit,
                                 figure_formats, out_option, spec_from_options, write_outputs)
@@ -43,6 +43,7 @@ def corrbound(
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
     absorb: Optional[list[str]] = ABSORB,
+    absorb_tolerance: Optional[float] = ABSORB_TOLERANCE,
     where: Optional[str] = WHERE,
     cluster: Optional[list[str]] = CLUSTER,
     weight: Optional[str] = WEIGHT,
@@ -77,7 +78,7 @@ def corrbound(
     check_options(max_ratio=max_ratio, endogeneity=endogeneity, threshold=threshold,
                   points=points, reps=reps, seed=seed, confidence_level=level)
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
-                             where, categorical, absorb)
+                             where, categorical, absorb, absorb_tolerance)
     check_one_treatment(spec)
     result = correlation_bounds(engine_source(data, spec, engine, scheduler), max_ratio=max_ratio,
                                 endogeneity=endogeneity, threshold=threshold, points=points,

@@ -10,7 +10,7 @@ import typer
 
 from sensiv.cli.app import app, guarded
 from sensiv.core.limits import MAX_REPS
-from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
+from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
                                 emit, figure_formats, out_option, spec_from_options, write_outputs)
@@ -51,6 +51,7 @@ def fit(
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
     absorb: Optional[list[str]] = ABSORB,
+    absorb_tolerance: Optional[float] = ABSORB_TOLERANCE,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[list[str]] = CLUSTER,
@@ -76,7 +77,7 @@ def fit(
 
     chosen = figure_formats(formats)
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
-                             where, categorical, absorb)
+                             where, categorical, absorb, absorb_tolerance)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = engine_source(data, spec, engine, scheduler)
     if bootstrap is None:

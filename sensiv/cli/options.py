@@ -32,6 +32,9 @@ CATEGORICAL = typer.Option(None, "--categorical", metavar="COLUMN", help="Intege
 ABSORB = typer.Option(None, "--absorb", metavar="COLUMN", help="Categorical column (text or integer codes) whose fixed effects are partialled out of every other column, without indicator columns; repeat for several.")
 
 
+ABSORB_TOLERANCE = typer.Option(None, "--absorb-tolerance", metavar="TOL", help="Relative tolerance at which the alternating projections of several --absorb columns stop [default: 1e-10]; one absorbed column is exact.")
+
+
 SE = typer.Option(None, "--se", metavar="classic|robust|cluster", help="Covariance: classic, robust or cluster [default: cluster if --cluster is given, else robust].")
 
 
@@ -204,13 +207,14 @@ def cluster_value(cluster):
 
 
 def spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
-                      where=None, categorical=None, absorb=None):
+                      where=None, categorical=None, absorb=None, absorb_tolerance=None):
     from sensiv.data import Spec
 
+    tolerance = {} if absorb_tolerance is None else {"absorb_tolerance": absorb_tolerance}
     return Spec(outcome=outcome, treatments=tuple(treatment), instruments=tuple(instrument),
                 controls=tuple(control or ()), cluster=cluster_value(cluster), weight=weight,
                 constant=constant, where=where, categorical=tuple(categorical or ()),
-                absorb=tuple(absorb or ()))
+                absorb=tuple(absorb or ()), **tolerance)
 
 
 def emit(document: dict, text: str, as_json: bool) -> None:
@@ -223,8 +227,9 @@ def emit(document: dict, text: str, as_json: bool) -> None:
 
 
 def data_source(data, outcome, treatment, instrument, control, cluster, weight, constant,
-                where=None, categorical=None, absorb=None, engine="numpy", scheduler=None):
+                where=None, categorical=None, absorb=None, engine="numpy", scheduler=None,
+                absorb_tolerance=None):
     return engine_source(data, spec_from_options(outcome, treatment, instrument, control,
                                                  cluster, weight, constant, where, categorical,
-                                                 absorb),
+                                                 absorb, absorb_tolerance),
                          engine, scheduler)

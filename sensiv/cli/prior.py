@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
+from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE,
                                 check_out, data_source, emit, figure_formats, out_option,
@@ -33,6 +33,7 @@ def prior(
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
     absorb: Optional[list[str]] = ABSORB,
+    absorb_tolerance: Optional[float] = ABSORB_TOLERANCE,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[list[str]] = CLUSTER,
@@ -68,7 +69,7 @@ def prior(
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
                          constant, where, categorical, absorb, engine,
-                         scheduler)
+                         scheduler, absorb_tolerance=absorb_tolerance)
     result = prior_layer.prior_analysis(
         source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
         se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed,

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
-from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
+from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT,
                                 WHERE, check_out, data_source, emit, figure_formats, out_option,
@@ -33,6 +33,7 @@ def sweep(
     control: Optional[list[str]] = CONTROL,
     categorical: Optional[list[str]] = CATEGORICAL,
     absorb: Optional[list[str]] = ABSORB,
+    absorb_tolerance: Optional[float] = ABSORB_TOLERANCE,
     where: Optional[str] = WHERE,
     se: Optional[str] = SE,
     cluster: Optional[list[str]] = CLUSTER,
@@ -73,7 +74,7 @@ def sweep(
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
                          constant, where, categorical, absorb, engine,
-                         scheduler)
+                         scheduler, absorb_tolerance=absorb_tolerance)
     result = bounds.sweep(source, direct=direct or None,
                           polytope=str(direct_polytope) if direct_polytope else None, se=se,
                           confidence_level=level, small=small, threshold=threshold,

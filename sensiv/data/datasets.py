@@ -92,22 +92,7 @@ def with_engine(source: Source, engine: str = "numpy", scheduler: str | None = N
         raise InputError(f"--engine duckdb reads CSV and Parquet files, directories or globs "
                          f"of them and DuckDB tables; {source.description} is none of these: "
                          "convert it to Parquet or choose --engine numpy")
-    unsupported = _unsupported(source.spec) if engine != "numpy" else None
-    if unsupported:
-        raise InputError(f"{unsupported} runs on --engine numpy only in this version; "
-                         f"--engine {engine} does not support it yet: use --engine numpy")
     return dataclasses.replace(source, engine=engine, scheduler=scheduler)
-
-
-def _unsupported(spec: Spec) -> str | None:
-    """The spec feature the duckdb / dask engines do not run yet (absorbed fixed effects,
-    clustering in more than one way); both would be group-by sums of the score columns."""
-    if getattr(spec, "absorb", None):
-        return "--absorb (absorbed fixed effects)"
-    cluster = spec.cluster
-    if isinstance(cluster, (tuple, list)) and len(cluster) > 1:
-        return "clustering in more than one way"
-    return None
 
 
 # --------------------------------------------------------------------------- files

@@ -51,6 +51,10 @@ def _check_name(name: Any, role: str) -> None:
         raise InputError(f"{role} column name must be a non-empty string; got {name!r}")
 
 
+DEFAULT_ABSORB_TOLERANCE = 1e-10
+"""Relative change of a demeaned column below which alternating projections stop."""
+
+
 @dataclass(frozen=True, slots=True)
 class Spec:
     """Column roles of an IV model.
@@ -84,6 +88,9 @@ class Spec:
         Categorical columns (text or integer codes) whose fixed effects are partialled out
         of every other column (see :mod:`sensiv.estimation.absorb`) instead of entering as
         indicator columns.
+    absorb_tolerance : float, default 1e-10
+        Relative tolerance at which the alternating projections of several absorbed fixed
+        effects stop (one fixed effect is absorbed exactly and ignores it).
 
     Raises
     ------
@@ -102,9 +109,16 @@ class Spec:
     where: str | None = None
     categorical: tuple[str, ...] = ()
     absorb: tuple[str, ...] = ()
+    absorb_tolerance: float = DEFAULT_ABSORB_TOLERANCE
 
     def __post_init__(self) -> None:
         _check_name(self.outcome, "outcome")
+        tolerance = self.absorb_tolerance
+        if (isinstance(tolerance, bool) or not isinstance(tolerance, (int, float))
+                or not 0.0 < tolerance < 1.0):
+            raise InputError(f"absorb tolerance {tolerance!r} (--absorb-tolerance, recipe key "
+                             "absorb_tolerance) must be a number in (0, 1), e.g. 1e-10")
+        object.__setattr__(self, "absorb_tolerance", float(tolerance))
         for role in ("treatments", "instruments", "controls", "categorical", "absorb"):
             object.__setattr__(self, role, _names(getattr(self, role), role.rstrip("s")))
         object.__setattr__(self, "categorical", tuple(dict.fromkeys(self.categorical)))

@@ -30,8 +30,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-DEFAULT_TOLERANCE = 1e-10
-"""Relative change of a demeaned column below which alternating projections stop."""
+from sensiv.data.spec import DEFAULT_ABSORB_TOLERANCE
+
+DEFAULT_TOLERANCE = DEFAULT_ABSORB_TOLERANCE
+"""Relative change of a demeaned column below which alternating projections stop (the
+default of ``Spec.absorb_tolerance``)."""
 
 MAX_ITERATIONS = 10_000
 """Accelerated steps (two sweeps each) after which alternating projections give up and warn."""

@@ -16,7 +16,6 @@ runs unchanged on the demeaned columns.
 
 from __future__ import annotations
 
-import dataclasses
 import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -26,17 +25,10 @@ import numpy as np
 from sensiv.core.errors import AbsorbConvergenceWarning, InputError
 from sensiv.data.source import Chunk, Layout
 from sensiv.estimation import absorb as fe
-
-
-@dataclass(frozen=True, slots=True)
-class Stream:
-    """Per-level state of a streamed one-way absorption."""
-
-    labels: object  # pandas.Index of the levels, in order of first appearance
-    counts: np.ndarray
-    offset: np.ndarray  # level means of the shifted columns, shape (levels, columns)
-    shift: np.ndarray
-    keep_columns: np.ndarray
+from sensiv.estimation.absorb_view import (GroupAbsorbed, Stream, apply_drops,
+                                           cluster_label_columns, demean_chunks,
+                                           group_absorbed, model_roles, refusal)
+from sensiv.estimation.passes import engine_of, group_stats_of
 
 
 @dataclass(frozen=True, slots=True)
@@ -57,74 +49,8 @@ class AbsorbedSource:
         if self._cache is not None:
             yield from self._cache
             return
-        s = self._stream
-        for chunk in self._source.chunks():
-            if chunk.values.shape[0] == 0:
-                yield dataclasses.replace(chunk, values=chunk.values[:, s.keep_columns])
-                continue
-            codes = np.asarray(s.labels.get_indexer(chunk.groups[0]))
-            if (codes < 0).any():
-                raise InputError(f"fixed effect '{self.absorption.effects[0]}' in "
-                                 f"{self.description} has a level that was absent in the "
-                                 "first pass; the data changed between passes: reload it")
-            keep = s.counts[codes] > 1
-            every = bool(keep.all())
-            if not every:
-                codes = codes[keep]
-            values = np.empty((codes.size, s.keep_columns.size), order="F")
-            for out, j in enumerate(s.keep_columns):
-                column = chunk.values[:, j] if every else chunk.values[keep, j]
-                np.subtract(column, s.shift[out], out=values[:, out])
-                values[:, out] -= s.offset[:, out][codes]
-            yield Chunk(values,
-                        chunk.weights if every or chunk.weights is None else chunk.weights[keep],
-                        chunk.clusters if every or chunk.clusters is None
-                        else chunk.clusters[keep], chunk.n_dropped, chunk.n_filtered, None)
-
-
-# ----------------------------------------------------------------------------- checks
-def _roles(layout: Layout) -> list[tuple[str, str]]:
-    return [("outcome", layout.outcome), *(("treatment", t) for t in layout.treatments),
-            *(("instrument", i) for i in layout.instruments),
-            *(("control", c) for c in layout.controls)]
-
-
-def _control_of(layout: Layout, column: str) -> str:
-    for name, levels in layout.categorical:
-        if column in {f"{name}[{level}]" for level in levels}:
-            return name
-    return column
-
-
-def _refuse(role: str, column: str, effects: list[str]) -> InputError:
-    where = (f"'{effects[0]}'" if len(effects) == 1 else
-             "the fixed effects " + " and ".join(f"'{e}'" for e in effects) + " together")
-    return InputError(f"{role} '{column}' does not vary within {where}; it is absorbed by the "
-                      f"fixed effect{'s' if len(effects) > 1 else ''}: drop it from --absorb or "
-                      f"choose another {role}")
-
-
-def _apply_drops(source, absorbed: list[int], layout: Layout, effects: tuple[str, ...]
-                 ) -> tuple[np.ndarray, Layout, tuple[str, ...], tuple[str, ...]]:
-    """Columns kept, the layout without absorbed controls, the dropped controls, the notes."""
-    roles = _roles(layout)
-    for j in absorbed:
-        role, column = roles[j]
-        if role != "control":
-            raise _refuse(role, column, list(effects))
-    dropped = [roles[j][1] for j in absorbed]
-    keep = np.array([j for j in range(len(roles)) if j not in set(absorbed)], dtype=int)
-    controls = tuple(c for c in layout.controls if c not in dropped)
-    categorical = tuple((name, tuple(lv for lv in levels if f"{name}[{lv}]" in controls))
-                        for name, levels in layout.categorical)
-    new_layout = dataclasses.replace(layout, controls=controls,
-                                     categorical=tuple(p for p in categorical if p[1]))
-    names = tuple(dict.fromkeys(_control_of(layout, c) for c in dropped))
-    listed = " and ".join(f"'{e}'" for e in effects)
-    notes = tuple(f"control '{name}' has no variation left within the fixed effect"
-                  f"{'s' if len(effects) > 1 else ''} {listed}; it is absorbed and was dropped"
-                  for name in names)
-    return keep, new_layout, names, notes
+        yield from demean_chunks(self._source.chunks(), self._stream,
+                                 self.absorption.effects[0], self.description)
 
 
 # ----------------------------------------------------------------------------- in memory
@@ -178,12 +104,12 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     absorbed = [j for j in range(values.shape[1])
                 if not fe.spread(values[:, j], weights) > fe.ABSORBED_SHARE * total[j]]
     for j in absorbed:
-        if _roles(layout)[j][0] != "control" and original is not None:
+        if model_roles(layout)[j][0] != "control" and original is not None:
             alone = fe.absorbed_by(original[:, j], codes, levels, weights)
-            raise _refuse(_roles(layout)[j][0], _roles(layout)[j][1],
+            raise refusal(model_roles(layout)[j][0], model_roles(layout)[j][1],
                           [spec.absorb[k] for k in alone] or list(spec.absorb))
     del original
-    keep_cols, new_layout, dropped, notes = _apply_drops(source, absorbed, layout, spec.absorb)
+    keep_cols, new_layout, dropped, notes = apply_drops(absorbed, layout, spec.absorb)
     if absorbed:
         values = np.asfortranarray(values[:, keep_cols])
     counted = fe.counted_levels(codes, levels)
@@ -196,11 +122,6 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     chunk = Chunk(values, weights, clusters, n_dropped, n_filtered, None)
     return AbsorbedSource(spec, new_layout, source.description, absorption,
                           tuple(getattr(source, "notes", ())) + notes, (chunk,))
-
-
-def cluster_label_columns(clusters: np.ndarray) -> list[np.ndarray]:
-    """The label column of each cluster variable (two for two-way clustering)."""
-    return [clusters] if clusters.ndim == 1 else [clusters[:, j] for j in range(clusters.shape[1])]
 
 
 def _nested(codes, levels, clusters) -> tuple[bool, ...]:
@@ -286,7 +207,7 @@ def _streamed(source) -> AbsorbedSource:
                          f"fixed effect '{spec.absorb[0]}'; nothing is left to fit")
     flat = np.all(highs[kept] - lows[kept] == 0.0, axis=0)
     absorbed = [j for j in range(flat.size) if flat[j]]
-    keep_cols, new_layout, dropped, notes = _apply_drops(source, absorbed, layout, spec.absorb)
+    keep_cols, new_layout, dropped, notes = apply_drops(absorbed, layout, spec.absorb)
     offset = np.asfortranarray((sums / np.where(totals > 0, totals, 1.0)[:, None])[:, keep_cols])
     levels = int(kept.sum())
     # Nested when every kept level lies within one cluster of the same cluster variable.
@@ -300,17 +221,31 @@ def _streamed(source) -> AbsorbedSource:
                           tuple(getattr(source, "notes", ())) + notes, None, source, stream)
 
 
-def absorb_source(source, *, tolerance: float = fe.DEFAULT_TOLERANCE,
+def absorb_source(source, *, tolerance: float | None = None,
                   max_iterations: int = fe.MAX_ITERATIONS):
     """The source with ``source.spec.absorb`` partialled out (``source`` itself without any).
 
-    One fixed effect on a streamed source streams (memory grows with its levels); otherwise
-    the used columns are held in memory as float64.
+    One fixed effect on a streamed source streams (memory grows with its levels); on the
+    ``duckdb`` and ``dask`` engines it is a group-by on the engine
+    (:mod:`sensiv.estimation.absorb_view`).  Otherwise the used columns are held in memory as
+    float64 (several fixed effects on ``dask`` too; ``duckdb`` refuses them).
     """
-    if not source.spec.absorb or isinstance(source, AbsorbedSource):
+    if not source.spec.absorb or isinstance(source, (AbsorbedSource, GroupAbsorbed)):
         return source
+    if tolerance is None:       # the spec's (--absorb-tolerance, recipe key absorb_tolerance)
+        tolerance = getattr(source.spec, "absorb_tolerance", fe.DEFAULT_TOLERANCE)
     if not (isinstance(tolerance, float) and 0.0 < tolerance < 1.0):
         raise InputError(f"absorb tolerance {tolerance!r} must be a number in (0, 1), e.g. 1e-10")
+    engine = engine_of(source)
+    if engine != "numpy":
+        if len(source.spec.absorb) == 1:
+            return group_absorbed(source, group_stats_of(source))
+        if engine == "duckdb":
+            raise InputError(f"several absorbed fixed effects ({', '.join(source.spec.absorb)})"
+                             " need alternating projections, which --engine duckdb cannot "
+                             "iterate; --engine dask and --engine numpy can (both hold the used "
+                             "columns in memory), or absorb one fixed effect on --engine duckdb")
+        # dask: the used columns are gathered here and demeaned as numpy does (in memory)
     if len(source.spec.absorb) == 1 and not getattr(source, "in_memory", True):
         return _streamed(source)
     return _in_memory(source, tolerance, max_iterations)

@@ -18,6 +18,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from sensiv.estimation.engines import dask_engine, duckdb_engine
+from sensiv.estimation.absorb_view import GroupStats
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums, accumulate, score_sums
 
 
@@ -45,3 +46,11 @@ def scores_of(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: b
     if engine == "dask":
         return dask_engine.score_sums(source, mean, blocks, cluster)
     return score_sums(source.chunks(), mean, blocks, cluster)
+
+
+def group_stats_of(source) -> GroupStats:
+    """Pass 0 of one absorbed fixed effect on the ``duckdb`` / ``dask`` engine: per-level sums
+    as a group-by (:mod:`sensiv.estimation.absorb_view`)."""
+    if engine_of(source) == "duckdb":
+        return duckdb_engine.group_stats(source)
+    return dask_engine.group_stats(source)

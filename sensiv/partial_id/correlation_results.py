@@ -208,6 +208,12 @@ class CorrelationBounds(Presentable):
                 "Manski (2004) interval for the coefficient; this treats the bounds as smooth "
                 "in the data, which fails near a ratio where an end becomes unbounded or the "
                 "set becomes empty")
+            if self.absorption is not None:
+                out.append(
+                    "bootstrap with absorbed fixed effects: every replicate resamples the "
+                    "demeaned rows, with the level means held at their full-sample values (not "
+                    "re-absorbed per replicate); this ignores the sampling error of the level "
+                    "means, which is small when every level holds many rows")
         return out
 
     def to_dict(self) -> dict:

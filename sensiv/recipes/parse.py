@@ -130,6 +130,10 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
                 parse_filter(data["where"])
             except InputError as exc:
                 raise lines.fail("where", f"'where' in {where}.data: {exc}") from exc
+        tolerance = data.get("absorb_tolerance", 0.5)
+        if not 0.0 < tolerance < 1.0:
+            raise lines.fail("absorb_tolerance", f"absorb_tolerance {tolerance!r} in {where}.data "
+                                                 "must be a number in (0, 1), e.g. 1e-10")
         if "path" not in data:
             raise lines.fail("data", f"{where}.data lacks 'path' (the data file)")
         if data.get("engine", "numpy") not in ENGINES:
@@ -152,7 +156,14 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
     analyses = tuple(_analysis(e, f"{where}.analysis {j + 1}", lines, data is not None,
                                ("analysis", first_analysis + j))
                      for j, e in enumerate(entries))
-    for a in analyses:
+    for j, a in enumerate(analyses):
+        if a.kind == "discrete" and "counts" not in a.options and (data or {}).get("absorb"):
+            raise lines.fail("absorb", f"analysis 'discrete' in {where}.analysis {j + 1} "
+                                       "bounds the cells of discrete outcome, treatment and "
+                                       "instrument and cannot absorb fixed effects (absorb = "
+                                       f"{data['absorb']!r} in {where}.data): remove absorb "
+                                       "from this study's [data], or put the discrete analysis "
+                                       "in a study of its own without absorb")
         for key in ("polytope", "prior_file", "counts"):
             if key in a.options:
                 resolved = (base / a.options[key]).resolve()

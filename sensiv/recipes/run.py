@@ -25,7 +25,9 @@ def spec_of(roles: Mapping[str, Any]) -> Spec:
                 controls=tuple(roles.get("controls", ())), cluster=roles.get("cluster"),
                 weight=roles.get("weight"), constant=roles.get("constant", True),
                 where=roles.get("where"), categorical=tuple(roles.get("categorical", ())),
-                absorb=tuple(roles.get("absorb", ())))
+                absorb=tuple(roles.get("absorb", ())),
+                **({"absorb_tolerance": roles["absorb_tolerance"]}
+                   if "absorb_tolerance" in roles else {}))
 
 
 def _context(study: Study, source, frame, spec, seed: int | None) -> RunContext:

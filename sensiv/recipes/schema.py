@@ -24,6 +24,7 @@ the recipe file)::
     where = "year >= 2000"         # optional: keep only the rows matching this row filter
     categorical = ["district"]     # optional: integer-coded controls turned into indicators
     absorb = ["county", "year"]    # optional: fixed effects partialled out (no indicators)
+    absorb_tolerance = 1e-10       # optional: where alternating projections stop (2+ absorbed)
     engine = "duckdb"              # optional: numpy (default) | duckdb | dask; path may then
                                    #   also be a directory or glob of files, or file.duckdb::table
     scheduler = "tcp://host:8786"  # optional, with engine = "dask": a running Dask scheduler
@@ -59,7 +60,7 @@ STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
               "analysis": list}
 DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
              "controls": list, "cluster": (str, list), "weight": str, "constant": bool,
-             "where": str, "categorical": list, "absorb": list, "engine": str,
+             "where": str, "categorical": list, "absorb": list, "absorb_tolerance": float, "engine": str,
              "scheduler": str}
 INFERENCE_KEYS = {"se": str, "level": float, "small": bool}
 COMMON_KEYS = {"kind": str, "label": str, "seed": int}

@@ -6,7 +6,11 @@ results are merged by the additive rules in a tree reduction.
   its row counts; partitions merge by ``Moments.__add__`` (Chan, Golub & LeVeque), the counts
   by addition, and the whole-data checks run once on the merged counts.
 * Pass 2: robust sums of score products add across partitions; cluster sums are per-cluster
-  score sums per partition, merged by a group-by sum over the labels, then ``Σ_g s_g s_g'``.
+  score sums per partition, merged by a group-by sum over the labels, then ``Σ_g s_g s_g'``;
+  two-way clusters the same for ``A``, ``B`` and the pairs ``A∩B``, combined as numpy does.
+* One absorbed fixed effect: a pass 0 of per-level sums per partition (a groupby-sum, merged
+  by label in the same tree); passes 1 and 2 then run the same kernels on each partition's
+  chunks demeaned by the level means, broadcast to every worker once per pass.
 
 ``source.scheduler`` (``tcp://host:8786``) connects to a running cluster; without it a local
 cluster (one single-threaded worker process per core) is started once per process and shut
@@ -16,6 +20,7 @@ down at exit.  Only the reduced sums (a few kB per partition) travel back.
 from __future__ import annotations
 
 import atexit
+import dataclasses
 import os
 from collections.abc import Callable, Sequence
 from typing import Any
@@ -27,6 +32,9 @@ from sensiv.data.convert import Tally
 from sensiv.data.datasets import missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
 from sensiv.data.spec import read_columns
+from sensiv.estimation.absorb_view import (GroupAbsorbed, GroupStats, cluster_label_columns,
+                                           demean_chunks)
+from sensiv.estimation.cluster_ways import combine_ways, pair_labels
 from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
                                        cluster_score_sums, empty_moments, score_sums as sums_of)
 
@@ -78,6 +86,15 @@ def client_of(scheduler: str | None) -> Any:
     return client
 
 
+def _split(source, client: Any) -> tuple[Any, Any, str | None]:
+    """The source of raw rows, the level means (a future broadcast to every worker, ``None``
+    without an absorbed fixed effect) and the fixed effect's name."""
+    if not isinstance(source, GroupAbsorbed):
+        return source, None, None
+    return (source.base, client.scatter(source.stream, broadcast=True, hash=False),
+            source.spec.absorb[0])
+
+
 def _parts(source, client: Any) -> list[tuple[Any, Any]]:
     """``(source, frames)`` per partition: the raw frames of one file each, a partition of a
     Dask DataFrame (a future of its frame) each, or one clean in-memory chunk each
@@ -90,7 +107,7 @@ def _parts(source, client: Any) -> list[tuple[Any, Any]]:
     return [(source, frames) for frames in partition_frames(source)]
 
 
-def _chunks(part: Any, frames: Any, tally: Tally):
+def _raw_chunks(part: Any, frames: Any, tally: Tally):
     if hasattr(frames, "columns"):           # one partition of a Dask DataFrame
         return clean_chunks(part, [frames], tally)
     if frames is None:
@@ -100,15 +117,24 @@ def _chunks(part: Any, frames: Any, tally: Tally):
     return clean_chunks(part, frames(), tally)
 
 
+def _chunks(part: Any, frames: Any, tally: Tally, absorbed: tuple | None = None):
+    """The clean chunks of one partition, demeaned by ``absorbed`` = (stream, fixed effect,
+    description) when one fixed effect is absorbed."""
+    chunks = _raw_chunks(part, frames, tally)
+    if absorbed is None:
+        return chunks
+    return demean_chunks(chunks, *absorbed)
+
+
 def _counts(tally: Tally) -> tuple[int, int, int, dict[str, int]]:
     return tally.rows, tally.kept, tally.filtered, dict(tally.missing)
 
 
 def part_moments(part: Any, frames: Callable | None, spec, description: str,
-                 columns: Sequence[str]) -> tuple[Moments, tuple]:
+                 columns: Sequence[str], absorbed: tuple | None = None) -> tuple[Moments, tuple]:
     """Task: the moments and row counts of one partition."""
     tally = Tally(spec, description)
-    return accumulate(_chunks(part, frames, tally), columns), _counts(tally)
+    return accumulate(_chunks(part, frames, tally, absorbed), columns), _counts(tally)
 
 
 def merge_moments(left: tuple, right: tuple) -> tuple:
@@ -130,29 +156,47 @@ def _tree(client: Any, leaves: list, merge: Callable) -> Any:
 def moments(source, columns: Sequence[str]) -> Moments:
     """Pass 1 on Dask; the same :class:`Moments` as the numpy stream."""
     client = client_of(source.scheduler)
-    leaves = [client.submit(part_moments, part, frames, source.spec, source.description,
-                            tuple(columns), pure=False) for part, frames in _parts(source, client)]
+    base, stream, effect = _split(source, client)
+    absorbed = None if stream is None else (stream, effect, source.description)
+    leaves = [client.submit(part_moments, part, frames, base.spec, source.description,
+                            tuple(columns), absorbed, pure=False)
+              for part, frames in _parts(base, client)]
     if not leaves:
         return empty_moments(columns)
     total, (rows, kept, filtered, missing) = _tree(client, leaves, merge_moments)
     tally = Tally(source.spec, source.description)
-    if source.origin is not None and source.origin.kind != "duckdb":  # files, Dask frames
+    if base.origin is not None and base.origin.kind != "duckdb":  # files, Dask frames
         tally.add(rows, kept, missing, filtered)
         tally.finish()
     return total
 
 
+def _ways(chunks: list) -> list[list]:
+    """The chunks once per cluster way: as they are (one way), or with the labels of ``A``,
+    of ``B`` and of the pairs ``A∩B`` (two-way)."""
+    if not chunks or np.ndim(chunks[0].clusters) == 1:
+        return [chunks]
+    return [[dataclasses.replace(c, clusters=labels(c.clusters)) for c in chunks]
+            for labels in (lambda k: k[:, 0], lambda k: k[:, 1],
+                           lambda k: pair_labels(k[:, 0], k[:, 1]))]
+
+
 def part_scores(part: Any, frames: Callable | None, spec, description: str, mean: np.ndarray,
-                blocks: Sequence[ScoreBlock], cluster: bool) -> Any:
-    """Task: robust meats (a dict) or per-cluster sums (a dict of labelled frames)."""
+                blocks: Sequence[ScoreBlock], cluster: bool, absorbed: tuple | None = None
+                ) -> Any:
+    """Task: robust meats (a dict) or per-cluster sums (a dict of labelled frames, keyed by
+    way and block)."""
     import pandas as pd
 
-    chunks = _chunks(part, frames, Tally(spec, description))
+    chunks = _chunks(part, frames, Tally(spec, description), absorbed)
     if not cluster:
         return sums_of(chunks, mean, blocks, False).meats
-    labels, sums = cluster_score_sums(chunks, mean, blocks)
-    index = pd.Index(labels, dtype=object)
-    return {name: pd.DataFrame(s, index=index) for name, s in sums.items()}
+    out = {}
+    for way, way_chunks in enumerate(_ways([c for c in chunks if c.values.shape[0]])):
+        labels, sums = cluster_score_sums(way_chunks, mean, blocks)
+        index = pd.Index(labels, dtype=object, tupleize_cols=False)
+        out |= {(way, name): pd.DataFrame(s, index=index) for name, s in sums.items()}
+    return out
 
 
 def merge_scores(left: dict, right: dict) -> dict:
@@ -160,27 +204,100 @@ def merge_scores(left: dict, right: dict) -> dict:
     import pandas as pd
 
     out = {}
-    for name, value in left.items():
-        if isinstance(value, pd.DataFrame):
-            out[name] = pd.concat([value, right[name]]).groupby(level=0, sort=False).sum()
+    for name in {*left, *right}:
+        value, other = left.get(name), right.get(name)
+        if value is None or other is None:      # a partition without rows has no ways
+            out[name] = value if other is None else other
+        elif isinstance(value, pd.DataFrame):
+            out[name] = pd.concat([value, other]).groupby(level=0, sort=False).sum()
         else:
-            out[name] = value + right[name]
+            out[name] = value + other
     return out
 
 
 def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
                ) -> ScoreSums:
-    """Pass 2 on Dask; the same :class:`ScoreSums` as the numpy stream."""
+    """Pass 2 on Dask; the same :class:`ScoreSums` as the numpy stream (robust, one- or
+    two-way cluster sums)."""
     client = client_of(source.scheduler)
-    leaves = [client.submit(part_scores, part, frames, source.spec, source.description, mean,
-                            tuple(blocks), cluster, pure=False)
-              for part, frames in _parts(source, client)]
+    base, stream, effect = _split(source, client)
+    absorbed = None if stream is None else (stream, effect, source.description)
+    leaves = [client.submit(part_scores, part, frames, base.spec, source.description, mean,
+                            tuple(blocks), cluster, absorbed, pure=False)
+              for part, frames in _parts(base, client)]
     merged = _tree(client, leaves, merge_scores)
     if not cluster:
         return ScoreSums({k: 0.5 * (v + v.T) for k, v in merged.items()}, None)
-    meats, groups = {}, 0
-    for name, frame in merged.items():
-        s = frame.to_numpy(dtype=np.float64)
-        meats[name] = s.T @ s
-        groups = len(frame)
-    return ScoreSums(meats, groups)
+    ways = sorted({way for way, _ in merged})
+    return combine_ways([{b.name: merged[(way, b.name)].to_numpy(dtype=np.float64)
+                          for b in blocks} for way in ways])
+
+
+# --------------------------------------------------------------------------- absorbed levels
+def _level_frame(chunk) -> Any:
+    """Per-level sums of one clean chunk: rows ``n``, weights ``w``, weighted sums ``s{j}``,
+    extremes ``lo{j}`` / ``hi{j}``, a cluster label ``c{k}`` and ``u{k}`` (one cluster only)."""
+    import pandas as pd
+
+    n, p = chunk.values.shape
+    w = np.ones(n) if chunk.weights is None else chunk.weights
+    data: dict[str, Any] = {"n": np.ones(n, dtype=np.int64), "w": w}
+    for j in range(p):
+        data[f"s{j}"] = chunk.values[:, j] * w
+        data[f"lo{j}"] = data[f"hi{j}"] = chunk.values[:, j]
+    columns = [] if chunk.clusters is None else cluster_label_columns(chunk.clusters)
+    for k, column in enumerate(columns):
+        data[f"c{k}"], data[f"u{k}"] = column, np.ones(n, dtype=bool)
+    return _reduce_levels(pd.DataFrame(data, index=pd.Index(chunk.groups[0])))
+
+
+def _reduce_levels(frame: Any) -> Any:
+    """Rows of the same level merged: sums add, extremes extend, ``u{k}`` stays true only while
+    the level meets one cluster label."""
+    grouped = frame.groupby(level=0, sort=False)
+    rules = {c: ("sum" if c[0] in "nws" else "min" if c.startswith("lo") else
+                 "max" if c.startswith("hi") else "first" if c[0] == "c" else "all")
+             for c in frame.columns}
+    out = grouped.agg(rules)
+    for c in frame.columns:
+        if c[0] == "c":
+            out[f"u{c[1:]}"] &= grouped[c].nunique().to_numpy() == 1
+    return out
+
+
+def part_levels(part: Any, frames: Callable | None, spec, description: str) -> Any:
+    """Task: the per-level sums of one partition (``None`` when it has no rows)."""
+    import pandas as pd
+
+    pieces = [_level_frame(c) for c in _chunks(part, frames, Tally(spec, description))
+              if c.values.shape[0]]
+    return _reduce_levels(pd.concat(pieces)) if pieces else None
+
+
+def merge_levels(left: Any, right: Any) -> Any:
+    import pandas as pd
+
+    if left is None or right is None:
+        return right if left is None else left
+    return _reduce_levels(pd.concat([left, right]))
+
+
+def group_stats(source) -> GroupStats:
+    """Pass 0 of one absorbed fixed effect on Dask: per-level sums per partition, merged by
+    label in a tree."""
+    client = client_of(source.scheduler)
+    leaves = [client.submit(part_levels, part, frames, source.spec, source.description,
+                            pure=False) for part, frames in _parts(source, client)]
+    merged = _tree(client, leaves, merge_levels) if leaves else None
+    if merged is None:
+        raise InputError(f"{source.description} has no usable rows; supply data with at least "
+                         "one complete row")
+    p = sum(1 for c in merged.columns if c.startswith("lo"))
+    ways = sum(1 for c in merged.columns if c.startswith("u"))
+    totals = merged["w"].to_numpy(dtype=np.float64)
+    sums = merged[[f"s{j}" for j in range(p)]].to_numpy(dtype=np.float64)
+    single = (merged[[f"u{k}" for k in range(ways)]].to_numpy(dtype=bool) if ways else None)
+    return GroupStats(merged.index, merged["n"].to_numpy(dtype=np.int64), totals,
+                      sums / totals[:, None],
+                      merged[[f"lo{j}" for j in range(p)]].to_numpy(dtype=np.float64),
+                      merged[[f"hi{j}" for j in range(p)]].to_numpy(dtype=np.float64), single)

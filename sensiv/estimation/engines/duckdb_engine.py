@@ -9,8 +9,11 @@ multi-threaded and out of core; only the reduced sums come back to Python.
   columns with a large mean keep their accuracy.
 * Pass 2: the score vectors are linear maps of the centred row (``ScoreBlock``: ``a = d̃ @
   left``, ``e = d̃ @ right``), emitted as SQL; robust sums are ``SUM(gₘ·gₙ)``, cluster sums
-  ``SUM(gₘ) … GROUP BY cluster`` with ``Σ_g s_g s_g'`` formed in numpy.  Per-group sums for
-  further group-by features (absorbed effects, more cluster ways) would be one more GROUP BY.
+  ``SUM(gₘ) … GROUP BY cluster`` with ``Σ_g s_g s_g'`` formed in numpy; two-way clusters are
+  the grouping sets ``(A)``, ``(B)``, ``(A, B)`` of one scan, combined as the numpy kernel does.
+* One absorbed fixed effect: a pass 0 ``GROUP BY`` the fixed effect (rows, weights, means,
+  extremes, distinct clusters per level); passes 1 and 2 then read the rows joined with their
+  level sums, each column minus its level mean, singletons left out.
 """
 
 from __future__ import annotations
@@ -24,9 +27,11 @@ from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_MAGNITUDE
 from sensiv.data.convert import Tally
 from sensiv.data.datasets import missing_extra, quoted
-from sensiv.data.spec import read_columns, roles
+from sensiv.data.spec import cluster_columns, read_columns, roles
 from sensiv.estimation.engines.duckdb_sql import (PANDAS_MISSING, Query, filter_sql, indicator,
                                                   is_numeric, linear, missing, number)
+from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats
+from sensiv.estimation.cluster_ways import combine_ways
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums
 
 
@@ -59,6 +64,8 @@ class _Plan:
     """The SQL pieces of one source: column kinds, the filtered rows, the data expressions."""
 
     def __init__(self, source) -> None:
+        self.view = source if isinstance(source, GroupAbsorbed) else None
+        source = source.base if self.view is not None else source
         self.source = source
         self.connection, relation, params = _relation(source)
         spec = source.spec
@@ -104,13 +111,38 @@ class _Plan:
                              "that every file is complete and valid (re-export it, or move it "
                              "out of the data set), or choose --engine numpy") from exc
 
-    def clean_rows(self, extra: str = "") -> tuple[str, list]:
-        """SELECT of the clean rows: ``w``, ``v0 … v{p-1}`` (and ``extra`` columns)."""
+    @property
+    def width(self) -> int:
+        """Model columns of the rows :meth:`clean_rows` gives (fewer when controls are absorbed)."""
+        return len(self.view.stream.keep_columns) if self.view is not None else len(self.values)
+
+    def raw_rows(self, extra: str = "") -> tuple[str, list]:
+        """SELECT of the clean raw rows: ``w``, ``v0 … v{p-1}`` (and ``extra`` columns)."""
         weight = self.weight or "1.0"
         columns = ", ".join(f"{v} AS v{j}" for j, v in enumerate(self.values))
         sql = (f"SELECT {weight} AS w, {columns}{extra} FROM {self.kept} AS kept "
                f"WHERE {self.clean_condition}")
         return sql, self.value_params + self.kept_params
+
+    def clean_rows(self, extra: str = "") -> tuple[str, list]:
+        """The rows the passes read: the raw rows, or with one absorbed fixed effect the rows of
+        levels met more than once, each kept column minus its weighted level mean (a join with
+        the per-level sums, a GROUP BY)."""
+        if self.view is None:
+            return self.raw_rows(extra)
+        effect = quoted(self.source.spec.absorb[0])
+        raw, params = self.raw_rows(f"{extra}, {effect} AS fe_label")
+        keep = [int(j) for j in self.view.stream.keep_columns]
+        sums = ", ".join(f"sum(w * v{j}) AS s{j}" for j in keep)
+        demeaned = ", ".join(f"clean.v{j} - level.s{j} / level.w_level AS v{i}"
+                             for i, j in enumerate(keep))
+        every = ", ".join(["w", "fe_label", *(f"v{j}" for j in range(len(self.values)))])
+        sql = (f"WITH clean AS ({raw}), level AS (SELECT fe_label, count(*) AS n_level, "
+               f"sum(w) AS w_level, {sums} FROM clean GROUP BY fe_label) "
+               f"SELECT clean.w AS w, {demeaned}, clean.* EXCLUDE ({every}) FROM clean "
+               "JOIN level ON clean.fe_label = level.fe_label "
+               "WHERE level.n_level > 1")
+        return sql, params
 
     def close(self) -> None:
         self.connection.close()
@@ -129,7 +161,7 @@ def _checks(plan: _Plan) -> tuple[int, int, dict[str, int]]:
     missing counts per column) after raising the first problem found."""
     spec, where = plan.source.spec, plan.source.description
     numeric_roles = [(role, c) for role, c in roles(spec)
-                     if c not in plan.text and c != spec.cluster]
+                     if c not in plan.text and role not in ("cluster", "absorbed fixed effect")]
     parts = ["count(*)", f"count(*) FILTER (WHERE {plan.clean_condition})"]
     parts += [f"count(*) FILTER (WHERE {missing(c, plan.numeric[c])})"
               for c in plan.role_columns]
@@ -180,7 +212,9 @@ def moments(source, columns: Sequence[str]) -> Moments:
     try:
         n_filtered, n_dropped, shift = _checks(plan)
         rows, params = plan.clean_rows()
-        p = len(plan.values)
+        p = plan.width
+        if plan.view is not None:
+            shift = np.zeros(p)          # the demeaned columns have mean zero
         query = Query()
         centred = ", ".join(f"v{j} - {query.bind(float(shift[j]))} AS d{j}" for j in range(p))
         sums = ["count(*)", "sum(w)"] + [f"sum(w * d{j})" for j in range(p)]
@@ -221,29 +255,43 @@ def _score_columns(blocks: Sequence[ScoreBlock], mean: np.ndarray, query: Query
     return maps, scores, index
 
 
+def _grouped_sums(plan: _Plan, scores: str, names: list[str], params: list, ways: int
+                  ) -> list[np.ndarray]:
+    """Per-cluster sums of the score columns: ``GROUP BY c0`` for one way; for two ways the
+    grouping sets ``(c0)``, ``(c1)`` and ``(c0, c1)`` in one scan."""
+    sums = ", ".join(f"sum({g})" for g in names)
+    if ways == 1:
+        rows = plan.run(f"SELECT {sums} FROM ({scores}) AS scores GROUP BY c0", params)
+        return [np.asarray(rows.fetchall(), dtype=np.float64).reshape(-1, len(names))]
+    sql = (f"SELECT grouping(c0, c1) AS way, {sums} FROM ({scores}) AS scores "
+           "GROUP BY GROUPING SETS ((c0), (c1), (c0, c1))")
+    table = np.asarray(plan.run(sql, params).fetchall(), dtype=np.float64)
+    table = table.reshape(-1, 1 + len(names))
+    # grouping(c0, c1): 1 when only c0 groups (way A), 2 when only c1 (B), 0 for both (A∩B)
+    return [table[table[:, 0] == code, 1:] for code in (1, 2, 0)]
+
+
 def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
                ) -> ScoreSums:
-    """Pass 2 in DuckDB; the same :class:`ScoreSums` as the numpy stream."""
+    """Pass 2 in DuckDB; the same :class:`ScoreSums` as the numpy stream (robust, one- or
+    two-way cluster sums)."""
     plan = _Plan(source)
-    spec = source.spec
+    clusters = cluster_columns(source.spec) if cluster else ()
     try:
-        extra = f", {quoted(spec.cluster)} AS cluster_label" if cluster else ""
-        rows, params = plan.clean_rows(extra)
+        rows, params = plan.clean_rows("".join(f", {quoted(c)} AS c{k}"
+                                               for k, c in enumerate(clusters)))
         query, inner = Query(), Query()
         centred = ", ".join(f"v{j} - {inner.bind(float(mean[j]))} AS d{j}"
                             for j in range(len(mean)))
         maps, exprs, index = _score_columns(blocks, mean, query)
         params = inner.params + params
-        keep = ", cluster_label" if cluster else ""
+        keep = "".join(f", c{k}" for k in range(len(clusters)))
         scores = (f"SELECT {', '.join(exprs)}{keep} FROM (SELECT w, {', '.join(maps)}{keep} "
                   f"FROM (SELECT w, {centred}{keep} FROM ({rows}) AS clean) AS centred) "
                   "AS mapped")
         names = [e.rsplit(" AS ", 1)[1] for e in exprs]
         if cluster:
-            sql = (f"SELECT {', '.join(f'sum({g})' for g in names)} FROM ({scores}) AS scores "
-                   "GROUP BY cluster_label")
-            sums = np.asarray(plan.run(sql, query.params + params).fetchall(), dtype=np.float64)
-            sums = sums.reshape(-1, len(names))
+            per_way = _grouped_sums(plan, scores, names, query.params + params, len(clusters))
         else:
             pairs = [(i, j) for i in range(len(names)) for j in range(i, len(names))
                      if index[i][0] == index[j][0]]
@@ -252,19 +300,45 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
             row = plan.run(sql, query.params + params).fetchone()
     finally:
         plan.close()
-    meats, start = {}, 0
-    for block in blocks:
-        size = block.size
-        if cluster:
-            s = sums[:, start:start + size]
-            meats[block.name] = s.T @ s
-        else:
-            meats[block.name] = np.zeros((size, size))
-        start += size
-    if not cluster:
-        offsets = {block.name: sum(b.size for b in blocks[:k]) for k, block in enumerate(blocks)}
-        for (i, j), value in zip(pairs, row):
-            name = index[i][0]
-            a, c = i - offsets[name], j - offsets[name]
-            meats[name][a, c] = meats[name][c, a] = float(value or 0.0)
-    return ScoreSums(meats, len(sums) if cluster else None)
+    if cluster:
+        split, start = [], 0
+        for block in blocks:
+            split.append((block.name, start, start + block.size))
+            start += block.size
+        return combine_ways([{name: sums[:, a:b] for name, a, b in split} for sums in per_way])
+    meats = {block.name: np.zeros((block.size, block.size)) for block in blocks}
+    offsets = {block.name: sum(b.size for b in blocks[:k]) for k, block in enumerate(blocks)}
+    for (i, j), value in zip(pairs, row):
+        name = index[i][0]
+        a, c = i - offsets[name], j - offsets[name]
+        meats[name][a, c] = meats[name][c, a] = float(value or 0.0)
+    return ScoreSums(meats, None)
+
+
+def group_stats(source) -> GroupStats:
+    """Pass 0 of one absorbed fixed effect: per-level sums of the clean rows, a GROUP BY."""
+    import pandas as pd
+
+    plan = _Plan(source)
+    spec = source.spec
+    try:
+        _checks(plan)
+        clusters = cluster_columns(spec)
+        extra = f", {quoted(spec.absorb[0])} AS fe_label" + "".join(
+            f", {quoted(c)} AS c{k}" for k, c in enumerate(clusters))
+        rows, params = plan.raw_rows(extra)
+        p = len(plan.values)
+        parts = ["fe_label", "count(*)", "sum(w)"]
+        parts += [f"sum(w * v{j}) / sum(w)" for j in range(p)]
+        parts += [f"min(v{j})" for j in range(p)] + [f"max(v{j})" for j in range(p)]
+        parts += [f"count(DISTINCT c{k}) = 1" for k in range(len(clusters))]
+        result = plan.run(f"SELECT {', '.join(parts)} FROM ({rows}) AS clean GROUP BY fe_label",
+                          params).fetchall()
+    finally:
+        plan.close()
+    labels = pd.Index([row[0] for row in result])
+    table = np.array([row[1:3 + 3 * p] for row in result], dtype=np.float64).reshape(-1, 2 + 3 * p)
+    single = (np.array([row[3 + 3 * p:] for row in result], dtype=bool).reshape(-1, len(clusters))
+              if clusters else None)
+    return GroupStats(labels, table[:, 0].astype(np.int64), table[:, 1],
+                      table[:, 2:2 + p], table[:, 2 + p:2 + 2 * p], table[:, 2 + 2 * p:], single)
