@@ -7,7 +7,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-from sensiv.present import text_against
+from sensiv.present import figures, text_against
 from sensiv.present.text_calibrate import calibration_markdown
 from sensiv.present.writer import to_json
 from sensiv.sensitivity import calibrate
@@ -51,3 +51,10 @@ def with_yardsticks(sweep, source, **common) -> SweepWithYardsticks:
     ``confidence_level``, ``small``) and set the sweep's breakdown against it."""
     calibration = calibrate.calibrate(source, **common)
     return SweepWithYardsticks(sweep, calibration, compare(sweep, calibration))
+
+
+def marked_curve(sweep, comparison, formats=("png",), note: str | None = None
+                 ) -> dict[str, bytes]:
+    """``sweep-curve.{format}`` with the yardsticks drawn as marks (replaces the plain curve)."""
+    fig = figures.sensitivity_curve(sweep, note=note, yardsticks=comparison)
+    return {f"sweep-curve.{fmt}": data for fmt, data in figures.save_figure(fig, formats).items()}

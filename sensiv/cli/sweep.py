@@ -12,7 +12,7 @@ from sensiv.cli.options import ABSORB, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT,
                                 WHERE, check_out, data_source, emit, figure_formats, out_option,
-                                write_outputs)
+                                write_files, write_outputs)
 from sensiv.core.limits import MAX_POINTS
 
 
@@ -88,10 +88,13 @@ def sweep(
             write_outputs(out, result, sweep_files(result), chosen)
         emit(result.to_dict(), str(result), as_json)
         return
-    from sensiv.analyses.against import with_yardsticks
+    from sensiv.analyses.against import marked_curve, with_yardsticks
+    from sensiv.analyses.outputs import figure_files, table_files
 
     combined = with_yardsticks(result, source, se=se, confidence_level=level, small=small)
     if out is not None:
-        write_outputs(out, result, {**sweep_files(result), **combined.files}, chosen)
+        write_files(out, {**sweep_files(result), **table_files(result),
+                          **figure_files(result, chosen), **combined.files,
+                          **marked_curve(result, combined.comparison, chosen)})
     emit(combined.to_dict(), combined.text, as_json)
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 from sensiv.core.version import __version__
+from sensiv.analyses.against import marked_curve
 from sensiv.analyses.outputs import figure_files, results_table, summary_figure, table_files
 from sensiv.analyses.registry import entry, is_tabled
 from sensiv.present import figures
@@ -48,10 +49,12 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
         if len(effects) > 1:
             blocks += _summary_blocks(study.name, effects, formats, note, files)
             summarised = {id(r) for r in effects}
-        blocks += [Block("paragraph", f"{HEADING}: {sentence}")
-                   for sentence in against_sentences(runs)]
+        against = comparisons(runs)
+        blocks += [Block("paragraph", f"{HEADING}: {against_sentence(c)}")
+                   for c in against.values()]
         for r in runs:
-            blocks += _analysis_blocks(r, formats, note, files, id(r) in summarised)
+            blocks += _analysis_blocks(r, formats, note, files, id(r) in summarised,
+                                       against.get(id(r)))
             files[f"results/{r.stem}.json"] = to_json(r.result.to_dict())
     files["report.md"] = render_markdown(blocks)
     files["report.html"] = render_html(blocks, run.recipe.title)
@@ -60,14 +63,19 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
     return files
 
 
-def against_sentences(runs) -> list[str]:
-    """For a study with a sweep and a calibration of the same data: each sweep's breakdown set
-    against the calibration's yardsticks, one sentence per sweep."""
+def comparisons(runs) -> dict:
+    """For a study with a sweep and a calibration of the same data: each sweep run (by
+    ``id``) → its breakdown set against the first calibration's yardsticks."""
     calibrations = [r.result for r in runs if r.analysis.kind == "calibrate"]
     if not calibrations:
-        return []
-    return [against_sentence(compare(r.result, calibrations[0]))
-            for r in runs if r.analysis.kind == "sweep"]
+        return {}
+    return {id(r): compare(r.result, calibrations[0])
+            for r in runs if r.analysis.kind == "sweep"}
+
+
+def against_sentences(runs) -> list[str]:
+    """The sentence of each sweep against the yardsticks (none without a calibration)."""
+    return [against_sentence(c) for c in comparisons(runs).values()]
 
 
 def _summary_blocks(name, effects, formats, note, files) -> list[Block]:
@@ -85,7 +93,8 @@ def _summary_blocks(name, effects, formats, note, files) -> list[Block]:
     return blocks
 
 
-def _analysis_blocks(r, formats, note, files, summarised: bool = False) -> list[Block]:
+def _analysis_blocks(r, formats, note, files, summarised: bool = False,
+                     against=None) -> list[Block]:
     """One analysis's section: assumptions, its table (unless its rows already stand in the
     study's headline table), its figures with captions, notes and its own cautions."""
     result = r.result
@@ -110,6 +119,8 @@ def _analysis_blocks(r, formats, note, files, summarised: bool = False) -> list[
         for name, content in table_files(result, stem=r.stem).items():
             files[f"tables/{name}"] = content
         drawn = figure_files([result], tuple(formats), note=note)
+        if against is not None:  # the yardsticks drawn on the curve
+            drawn.update(marked_curve(result, against, tuple(formats), note))
         for name, data in drawn.items():
             files[f"figures/{r.stem}-{name.split('-', 1)[1]}"] = data
         for name, data in drawn.items():
