@@ -43,6 +43,8 @@ def demo(
     from sensiv import demo as demo_data
     from sensiv.analyses.outputs import results_table
     from sensiv.present.text import text_table
+    from sensiv.present.text_against import HEADING
+    from sensiv.recipes.bundle import against_sentences
     from sensiv.recipes.bundle import run_files
     from sensiv.recipes.parse import parse_recipe
     from sensiv.recipes.run import run_recipe
@@ -78,6 +80,8 @@ def demo(
         lines += [f"== {study.name} ==", study.description, ""]
         table = results_table([r.result for r in runs if r.analysis.kind != "calibrate"])
         lines += [text_table(table), ""]
+        lines += [f"{HEADING}: {sentence}" for sentence in against_sentences(runs)]
+        lines += [""] if lines[-1] else []
         entry = {"analyses": [{"kind": r.analysis.kind, "label": r.analysis.label,
                                "result": r.result.to_dict()} for r in runs]}
         if study.name in truth:

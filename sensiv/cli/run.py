@@ -66,6 +66,8 @@ def study_tables(parsed, result) -> list[str]:
     from sensiv.analyses.outputs import results_table
     from sensiv.analyses.registry import entry
     from sensiv.present.text import text_table
+    from sensiv.present.text_against import HEADING
+    from sensiv.recipes.bundle import against_sentences
 
     lines = []
     for study in parsed.studies:
@@ -73,4 +75,6 @@ def study_tables(parsed, result) -> list[str]:
                  if r.study == study.name and entry(r.analysis.kind).in_summary]
         if shown:
             lines += ["", f"== {study.name} ==", text_table(results_table(shown))]
+            lines += [f"{HEADING}: {sentence}" for sentence in
+                      against_sentences([r for r in result.runs if r.study == study.name])]
     return lines + [""]

@@ -12,7 +12,7 @@ from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engi
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT,
                                 WHERE, check_out, data_source, emit, figure_formats, out_option,
-                                write_outputs)
+                                write_files, write_outputs)
 from sensiv.core.limits import MAX_POINTS
 
 
@@ -20,7 +20,7 @@ EXAMPLE = ("\b\n"
            "Example (on the invented demo data in examples/):\n"
            "  sensiv sweep examples/irrigation.csv --outcome maize_yield --treatment irrigation_hours \\\n"
            "      --instrument height_m --control plot_ha --control soil --cluster village \\\n"
-           "      --direct=-0.005:0.005")
+           "      --direct=-0.005:0.005 --calibrate")
 
 
 @app.command(epilog=EXAMPLE)
@@ -58,6 +58,11 @@ def sweep(
              "instrument at once), e.g. --at 0.005,0.01,0.02; suffix 'rf' or 'sd' as for "
              "--direct."),
     adaptive: bool = typer.Option(False, "--adaptive", help="Add the falsification adaptive set (Masten & Poirier 2021) for several instruments."),
+    with_calibration: bool = typer.Option(
+        False, "--calibrate",
+        help="Also compute the leave-one-out yardsticks (as `sensiv calibrate`) on the same data "
+             "and state the breakdown against them in one sentence (JSON: calibration, "
+             "against_yardsticks)."),
     engine: str = ENGINE,
     scheduler: Optional[str] = SCHEDULER,
     as_json: bool = JSON,
@@ -79,7 +84,18 @@ def sweep(
                           polytope=str(direct_polytope) if direct_polytope else None, se=se,
                           confidence_level=level, small=small, threshold=threshold,
                           points=points, focus=focus, adaptive=adaptive, at=at)
+    if not with_calibration:
+        if out is not None:
+            write_outputs(out, result, sweep_files(result), chosen)
+        emit(result.to_dict(), str(result), as_json)
+        return
+    from sensiv.analyses.against import marked_curve, with_yardsticks
+    from sensiv.analyses.outputs import figure_files, table_files
+
+    combined = with_yardsticks(result, source, se=se, confidence_level=level, small=small)
     if out is not None:
-        write_outputs(out, result, sweep_files(result), chosen)
-    emit(result.to_dict(), str(result), as_json)
+        write_files(out, {**sweep_files(result), **table_files(result),
+                          **figure_files(result, chosen), **combined.files,
+                          **marked_curve(result, combined.comparison, chosen)})
+    emit(combined.to_dict(), combined.text, as_json)
 

@@ -12,7 +12,7 @@ from sensiv.present.tables import markdown_table
 from sensiv.present.text_at import at_cells, at_heading
 from sensiv.present.text_bias_aware import bias_aware_cells, optimal_cells, shown_optimal
 from sensiv.present.text_units import units_cells
-from sensiv.sensitivity import bounds
+from sensiv.sensitivity import bounds, prior
 from sensiv.sensitivity.breakdown_units import curve_units
 
 
@@ -141,7 +141,7 @@ def prior_markdown(res) -> str:
     return (f"# Prior interval: {res.focus} → {res.outcome}\n\n"
             + markdown_table(["quantity", "value"], rows)
             + "\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
-            + f"\n\n> {bounds.CAUTION}\n")
+            + f"\n\n> {prior.CAUTION}\n")
 
 
 def prior_files(res) -> dict[str, str]:

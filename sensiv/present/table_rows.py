@@ -10,7 +10,7 @@ from sensiv.partial_id import correlation_results, discrete_results
 from sensiv.present.tables import NONE_TEXT, TableRow, end_text, interval_text
 from sensiv.present.text_clusters import cluster_count_text
 from sensiv.present.text_units import table_words
-from sensiv.sensitivity import bounds, calibrate
+from sensiv.sensitivity import bounds, calibrate, prior, published
 
 
 def _pieces(pieces) -> tuple[Interval, ...]:
@@ -65,13 +65,14 @@ def _scale_words(res, scale: float | None, units) -> str:
             f"{format_number(b.threshold)})")
 
 
-def _bias_aware_row(res, name: str, words: str, n, cov: str) -> TableRow:
+def _bias_aware_row(res, name: str, words: str, n, cov: str,
+                    caution: str = bounds.CAUTION) -> TableRow:
     """The bias-aware interval (2SLS at the set's centre) with its breakdown scale."""
     ba = res.bias_aware
     return TableRow(f"{name} (2SLS at the {ba.centre})", words, ba.estimate, ba.se,
                     None, (ba.ci,), res.confidence_level, res.breakdown.bias_aware_scale,
                     _scale_words(res, res.breakdown.bias_aware_scale, res.breakdown.bias_aware_units), n, cov,
-                    bounds.CAUTION, breakdown_units=res.breakdown.bias_aware_units)
+                    caution, breakdown_units=res.breakdown.bias_aware_units)
 
 
 def sweep_rows(res) -> list[TableRow]:
@@ -105,7 +106,7 @@ def prior_rows(res) -> list[TableRow]:
                            f", Monte Carlo error {format_number(res.mc_error, 3)}")
     return [TableRow(f"prior interval: {res.focus}", f"direct effect {laws} ({method})",
                      res.center, None, None, (res.interval,), res.confidence_level, None,
-                     NONE_TEXT, res.n, _covariance_text(res.fit), bounds.CAUTION)]
+                     NONE_TEXT, res.n, _covariance_text(res.fit), prior.CAUTION)]
 
 
 def corrbound_rows(res) -> list[TableRow]:
@@ -162,32 +163,32 @@ def published_rows(res) -> list[TableRow]:
     box = res.direct_set
     words = (f"direct effect in {interval_text(box.low, box.high)} (outcome units; "
              "given as "
-             f"{res.range_text}); {res.approximation}")
+             f"{res.range_text})")
     # the curve at zero direct effect is the printed estimate's interval (unbounded when the
     # printed first stage is not significant)
     at_zero = Interval(float(res.curve.lower[0]), float(res.curve.upper[0]))
     rows = [TableRow("printed estimate", "exclusion restriction holds exactly (the printed "
                      f"estimate, its se and {pct} interval)", res.estimate, res.se, None,
                      (at_zero,), res.confidence_level, None, NONE_TEXT, res.reported.n, cov,
-                     bounds.CAUTION),
+                     published.CAUTION),
             TableRow("direct-effect stress test from printed numbers", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
                      res.breakdown.scale, _sweep_breakdown(res), res.reported.n, cov,
-                     bounds.CAUTION, breakdown_units=res.breakdown.direct_units)]
+                     published.CAUTION, breakdown_units=res.breakdown.direct_units)]
     if res.bias_aware is not None:
         rows.append(_bias_aware_row(res, "bias-aware interval from printed numbers", words,
-                                    res.reported.n, cov))
+                                    res.reported.n, cov, published.CAUTION))
     rows.append(TableRow("weak-IV-robust set from printed numbers", words, None, None, None,
                          _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
-                         res.reported.n, f"{cov}; {res.ar_method}", bounds.CAUTION))
+                         res.reported.n, f"{cov}; {res.ar_method}", published.CAUTION))
     if res.prior is not None:
         p = res.prior
         method = p.method + ("" if p.mc_error is None else
                              f", Monte Carlo error {format_number(p.mc_error, 3)}")
         rows.append(TableRow("prior interval from printed numbers",
-                             f"direct effect ~ {p.law} ({method}); {res.approximation}",
+                             f"direct effect ~ {p.law} ({method})",
                              p.center, None, None, (p.interval,), res.confidence_level, None,
-                             NONE_TEXT, res.reported.n, cov, bounds.CAUTION))
+                             NONE_TEXT, res.reported.n, cov, published.CAUTION))
     return rows
 
 

@@ -215,16 +215,16 @@ LATEX_COLUMNS = (r">{\raggedright\arraybackslash}p{0.15\linewidth}"
 
 def table_latex(table: Table) -> str:
     """The table as a booktabs ``tabular`` ready to ``\\input`` (needs the booktabs and
-    array packages), followed by the caution as a small paragraph."""
+    array packages), followed by each caution as its own small paragraph."""
     header, body = table_cells(table)
     lines = [f"% {latex_escape(table.title)} (written by sensiv; regenerate rather than edit)",
              r"% needs \usepackage{booktabs} and \usepackage{array}",
              r"\begin{tabular}{" + LATEX_COLUMNS + "}", r"\toprule",
              " & ".join(latex_escape(h) for h in header) + r" \\", r"\midrule"]
     lines += [" & ".join(latex_escape(c) for c in row) + r" \\" for row in body]
-    lines += [r"\bottomrule", r"\end{tabular}", r"\par\smallskip",
-              r"{\footnotesize " + " ".join(latex_escape(c) for c in table.cautions)
-              + r"\par}"]
+    lines += [r"\bottomrule", r"\end{tabular}", r"\par\smallskip"]
+    # each analysis's caution as its own small paragraph, never run together
+    lines += [r"{\footnotesize " + latex_escape(c) + r"\par}" for c in table.cautions]
     return "\n".join(lines) + "\n"
 
 

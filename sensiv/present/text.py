@@ -11,7 +11,7 @@ from sensiv.present.text_bias_aware import (bias_aware_breakdown, bias_aware_lin
 from sensiv.present.text_levels import absorbed_line, listed_names
 from sensiv.present.text_at import at_cells, at_heading
 from sensiv.present.text_units import breakdown_sentence, crossing_lines
-from sensiv.sensitivity import bounds
+from sensiv.sensitivity import bounds, prior
 
 
 def _table(header: list[str], rows: list[list[str]]) -> list[str]:
@@ -154,7 +154,7 @@ def prior_summary(res) -> str:
     for note in res.notes:
         lines += ["", "Warning: " + note]
     lines += ["", "Assumptions:"] + [f"  - {a}" for a in res.assumptions()]
-    lines += ["", bounds.CAUTION]
+    lines += ["", prior.CAUTION]
     return "\n".join(lines)
 
 

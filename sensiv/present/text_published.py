@@ -7,8 +7,7 @@ from sensiv.present.tables import markdown_table
 from sensiv.present.text_units import breakdown_sentence, units_cells
 from sensiv.present.text_bias_aware import (bias_aware_breakdown, bias_aware_cells,
                                             bias_aware_line)
-from sensiv.sensitivity.bounds import CAUTION
-from sensiv.sensitivity.published import PublishedResult
+from sensiv.sensitivity.published import CAUTION, PublishedResult
 from sensiv.sensitivity.published_inputs import Reported
 
 

@@ -9,10 +9,14 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 from sensiv.core.version import __version__
+from sensiv.analyses.against import marked_curve
 from sensiv.analyses.outputs import figure_files, results_table, summary_figure, table_files
 from sensiv.analyses.registry import entry, is_tabled
 from sensiv.present import figures
 from sensiv.present.bundle import REPORT_CAUTION, Block, render_html, render_markdown
+from sensiv.present.captions import SUMMARY_CAPTION, figure_caption
+from sensiv.present.text_against import HEADING, against_sentence
+from sensiv.sensitivity.against_yardsticks import compare
 from sensiv.present.word import render_docx, word_available
 from sensiv.present.writer import to_json
 from sensiv.sensitivity.bounds import CAUTION
@@ -40,23 +44,17 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
         blocks.append(Block("heading", f"Study: {study.name}", 2))
         if study.description:
             blocks.append(Block("paragraph", study.description))
-        tabled = [r for r in runs if is_tabled(r.result)]
-        effects = [r.result for r in tabled if entry(r.analysis.kind).in_summary]
+        effects = [r for r in runs if is_tabled(r.result) and entry(r.analysis.kind).in_summary]
+        summarised = set()
         if len(effects) > 1:
-            summary = results_table([r.result for r in tabled])
-            blocks.append(Block("table", summary))
-            for name, content in table_files([r.result for r in tabled],
-                                             stem=f"{study.name}-summary").items():
-                files[f"tables/{name}"] = content
-            summary_figures = figures.save_figure(summary_figure(effects, note=note), formats)
-            for fmt, data in summary_figures.items():
-                files[f"figures/{study.name}-summary-intervals.{fmt}"] = data
-            blocks.append(Block("figure", (f"figures/{study.name}-summary-intervals.png",
-                                           summary_figures["png"],
-                                           "Every analysis of this study as one interval, "
-                                           "each under its own assumption.")))
+            blocks += _summary_blocks(study.name, effects, formats, note, files)
+            summarised = {id(r) for r in effects}
+        against = comparisons(runs)
+        blocks += [Block("paragraph", f"{HEADING}: {against_sentence(c)}")
+                   for c in against.values()]
         for r in runs:
-            blocks += _analysis_blocks(r, formats, note, files)
+            blocks += _analysis_blocks(r, formats, note, files, id(r) in summarised,
+                                       against.get(id(r)))
             files[f"results/{r.stem}.json"] = to_json(r.result.to_dict())
     files["report.md"] = render_markdown(blocks)
     files["report.html"] = render_html(blocks, run.recipe.title)
@@ -65,36 +63,82 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
     return files
 
 
-def _analysis_blocks(r, formats, note, files) -> list[Block]:
+def comparisons(runs) -> dict:
+    """For a study with a sweep and a calibration of the same data: each sweep run (by
+    ``id``) → its breakdown set against the first calibration's yardsticks."""
+    calibrations = [r.result for r in runs if r.analysis.kind == "calibrate"]
+    if not calibrations:
+        return {}
+    return {id(r): compare(r.result, calibrations[0])
+            for r in runs if r.analysis.kind == "sweep"}
+
+
+def against_sentences(runs) -> list[str]:
+    """The sentence of each sweep against the yardsticks (none without a calibration)."""
+    return [against_sentence(c) for c in comparisons(runs).values()]
+
+
+def _summary_blocks(name, effects, formats, note, files) -> list[Block]:
+    """A study's headline table (the analyses that bound the effect; calibration rows keep
+    their own table in their section) and its summary figure."""
+    results = [r.result for r in effects]
+    blocks = [Block("table", results_table(results))]
+    for file, content in table_files(results, stem=f"{name}-summary").items():
+        files[f"tables/{file}"] = content
+    drawn = figures.save_figure(summary_figure(results, note=note), formats)
+    for fmt, data in drawn.items():
+        files[f"figures/{name}-summary-intervals.{fmt}"] = data
+    blocks.append(Block("figure", (f"figures/{name}-summary-intervals.png", drawn["png"],
+                                   SUMMARY_CAPTION)))
+    return blocks
+
+
+def _analysis_blocks(r, formats, note, files, summarised: bool = False,
+                     against=None) -> list[Block]:
+    """One analysis's section: assumptions, its table (unless its rows already stand in the
+    study's headline table), its figures with captions, notes and its own cautions."""
     result = r.result
-    title = entry(r.analysis.kind).title
+    kind = entry(r.analysis.kind)
     label = r.analysis.label
-    blocks = [Block("heading", title if label == r.analysis.kind else f"{title}: {label}", 3)]
+    blocks = [Block("heading", kind.title if label == r.analysis.kind
+                    else f"{kind.title}: {label}", 3)]
     assumptions = list(result.assumptions()) if hasattr(result, "assumptions") else []
     if assumptions:
         blocks.append(Block("paragraph", "Assumptions:"))
         blocks.append(Block("list", assumptions))
+    cautions = [_caution_of(result)]
     if not is_tabled(result):
         blocks.append(Block("pre", str(result)))
     else:
         table = results_table(result)
-        blocks.append(Block("table", table))
+        cautions = list(table.cautions)
+        if summarised:
+            blocks.append(Block("paragraph", "Its rows are in the study's table above."))
+        else:
+            blocks.append(Block("table", table))
         for name, content in table_files(result, stem=r.stem).items():
             files[f"tables/{name}"] = content
         drawn = figure_files([result], tuple(formats), note=note)
+        if against is not None:  # the yardsticks drawn on the curve
+            drawn.update(marked_curve(result, against, tuple(formats), note))
         for name, data in drawn.items():
             files[f"figures/{r.stem}-{name.split('-', 1)[1]}"] = data
         for name, data in drawn.items():
             if name.endswith(".png"):
-                path = f"figures/{r.stem}-{name.split('-', 1)[1]}"
-                blocks.append(Block("figure", (path, data, "")))
+                figure = name.split("-", 1)[1].removesuffix(".png")
+                caption = figure_caption(kind.name, figure, result)
+                blocks.append(Block("figure", (f"figures/{r.stem}-{figure}.png", data, caption)))
     notes = getattr(result, "notes", ())
     if notes:
         blocks.append(Block("paragraph", "Notes:"))
         blocks.append(Block("list", list(notes)))
+    for text in cautions:
+        text = text.removeprefix("Caution: ").removeprefix("Caution. ")
+        blocks.append(Block("caution", text[:1].upper() + text[1:]))
+    return blocks
+
+
+def _caution_of(result) -> str:
     caution = getattr(result, "caution", None)
     caution = caution() if callable(caution) else caution
-    text = caution if isinstance(caution, str) else CAUTION
-    text = text.removeprefix("Caution: ").removeprefix("Caution. ")
-    blocks.append(Block("caution", text[:1].upper() + text[1:]))
-    return blocks
+    return caution if isinstance(caution, str) else CAUTION

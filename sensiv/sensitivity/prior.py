@@ -28,11 +28,13 @@ from sensiv.core.progress import Progress
 from sensiv.core.results import Interval, Presentable, describe, json_number
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
-from sensiv.sensitivity.bounds import CAUTION
 from sensiv.sensitivity.linear_core import Core, build_core, focus_block, focus_index
 from sensiv.sensitivity.direct_sets import scale_of_pieces
 from sensiv.sensitivity.prior_laws import Prior, law_text, parse_prior, read_prior_file
 
+CAUTION = ("Caution: a prior interval averages over the stated law of the direct effect; it is "
+           "only as credible as that law (a prior centred elsewhere or spread wider gives a "
+           "different interval), and it does not prove that the instrument is valid.")
 MC_DRAWS = 200_000
 MC_BATCHES = 20
 QUANTILE_SPAN = 12.0     # search quantiles within this many SDs of the mean

@@ -29,7 +29,7 @@ from sensiv.core.results import Interval, Presentable, describe, intervals_to_li
 from sensiv.estimation import distributions as dist
 from sensiv.sensitivity.bias_aware import (BiasAware, bias_aware, bias_aware_curve,
                                            bias_aware_scale)
-from sensiv.sensitivity.bounds import (CAUTION, DEFAULT_POINTS, EXTEND_FACTOR, Breakdown, Curve,
+from sensiv.sensitivity.bounds import (DEFAULT_POINTS, EXTEND_FACTOR, Breakdown, Curve,
                                        conclusion_text, differs_materially, with_units)
 from sensiv.sensitivity.direct_sets import DirectSet, box_set
 from sensiv.sensitivity.frontier import Frontier, frontier_thresholds
@@ -48,6 +48,12 @@ from sensiv.sensitivity.union import SCALE_MAX, merge_intervals
 
 class InconsistentInputWarning(UserWarning):
     """Reported numbers do not agree with each other beyond their printed rounding."""
+
+
+CAUTION = ("Caution: these bounds are rebuilt from printed numbers only; they hold only under "
+           "the assumed range of direct effects and the approximations stated (one sample and "
+           "specification behind every printed number, a backed-out covariance), and they do "
+           "not prove that the instrument is valid.")
 
 
 # ============================================================================ results

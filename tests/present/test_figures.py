@@ -598,7 +598,7 @@ def test_calibration_figure_draws_yardsticks_and_zero_first_stage(extra):
     ax = fig.axes[0]
     assert ax.get_xlim()[0] < z.interval[0].low and "height_m" in ax.get_xlabel()
     (top,) = ax.child_axes                      # the secondary x-axis
-    assert "share of the reduced form" in top.get_xlabel()
+    assert "share of |reduced form|" in top.get_xlabel()
     caption = caption_words(fig)
     assert "not the true direct effect" in caption and "premise looks false" in caption
     row_texts = " ".join(t.get_text() for t in ax.texts)

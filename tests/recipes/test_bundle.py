@@ -97,7 +97,13 @@ def test_run_writes_the_bundle(recipe, tmp_path):
     parser = _Collector()
     parser.feed((out / "report.html").read_text())
     assert parser.images and all(src.startswith("data:image/png;base64,") for src in parser.images)
-    assert parser.tables >= 3
+    # common practice, no source: the study's headline table holds every row once, and no
+    # section repeats it
+    assert parser.tables == 1
+    rows = [line for line in report.splitlines() if line.startswith("| ") and "---" not in line]
+    assert len(rows) == len(set(rows)) >= 4
+    # figures are captioned by what they show, never by their file path
+    assert "![figures/" not in report
     assert "Direct-effect sweep" in parser.headings
     sweep = json.loads((out / "results/study1-2-sweep.json").read_text())
     assert sweep["union_ci"][0] < sweep["identified_set"][0]
@@ -183,3 +189,31 @@ def test_python_api_example_runs(tmp_path):
     assert "Union interval over direct effects" in done.stdout
     assert {"summary-table.tex", "sweep-curve.png", "summary-intervals.png"} <= {
         p.name for p in out.iterdir()}
+
+
+def test_calibration_rows_keep_their_own_table_and_caution(recipe, tmp_path):
+    # common practice, no source: the headline table holds the analyses that bound the
+    # effect; the calibration (reference magnitudes, not an effect) has its own table
+    recipe.write_text(RECIPE + '\n[[analysis]]\nkind = "calibrate"\n')
+    out = tmp_path / "out"
+    result = run("run", recipe, "--out", out)
+    assert result.exit_code == 0, result.stderr
+    report = (out / "report.md").read_text()
+    parser = _Collector()
+    parser.feed((out / "report.html").read_text())
+    assert parser.tables == 2
+    head, calibration = report.split("### Calibrating a plausible violation")
+    headline = [line for line in head.splitlines() if line.startswith("| ")]
+    assert headline and not any("yardstick" in line or "calibration scale" in line
+                                for line in headline)
+    assert "| yardstick:" in calibration and "| — | — | — |" not in head
+    summary_csv = (out / "tables" / "study1-summary-table.csv").read_text()
+    assert "yardstick" not in summary_csv
+    # each section ends with its own caution; none of them is the sweep's reused
+    cautions = [line for line in report.splitlines() if line.startswith("> **Caution.**")]
+    assert len(cautions) == len(set(cautions)) == 5  # report, fit, sweep, prior, calibrate
+    assert "reference magnitudes" in calibration and "prior interval averages" in head
+    # the sweep's breakdown set against the yardsticks, once, below the headline table
+    assert head.count("Against the leave-one-out yardsticks") == 1
+    assert "survives a direct effect of height_m up to" in head
+    assert "Against the leave-one-out yardsticks" in result.stdout

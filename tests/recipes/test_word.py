@@ -71,7 +71,7 @@ def test_word_report_has_the_html_reports_tables_figures_and_headings(bundle):
     document = docx.Document(str(bundle / "report.docx"))
     counter = Counter()
     counter.feed((bundle / "report.html").read_text(encoding="utf-8"))
-    assert len(document.tables) == counter.counts["table"] >= 3
+    assert len(document.tables) == counter.counts["table"] >= 1  # the headline table, once
     assert len(document.inline_shapes) == counter.counts["img"] >= 3
     headings = [p.text for p in document.paragraphs if p.style.name.startswith("Heading")]
     assert "Study: study1" in headings

@@ -78,10 +78,10 @@ class _CalibrationRow:
     gid: str
 
 
-def _share_text(share: float) -> str:
+def _share_text(share: float, absolute: bool = False) -> str:
     if not math.isfinite(share):
         return "reduced form is zero"
-    return minus(f"{format_number(100 * share, 3)}% of RF")
+    return minus(f"{format_number(100 * share, 3)}% of {'|RF|' if absolute else 'RF'}")
 
 
 def _interval_label(z) -> str | None:
@@ -96,8 +96,10 @@ def _calibration_rows(cal, single: bool) -> list[_CalibrationRow]:
                                        f" ({', '.join(b.columns)})")
         if not single:
             label += f" · {b.instrument}"
-        numbers = (f"{minus(format_number(b.implied_direct, 3))} "
-                   f"({_share_text(b.implied_direct_rf)})")
+        rf = abs(float(cal.scale.reduced_form[cal.instruments.index(b.instrument)]))
+        share = b.implied_direct_rf if not single else (b.implied_direct / rf if rf > 0
+                                                        else math.nan)
+        numbers = f"{minus(format_number(b.implied_direct, 3))} ({_share_text(share, single)})"
         rows.append(_CalibrationRow(label, b.implied_direct if single else b.implied_direct_rf,
                                     None, numbers, f"yardstick:{b.name}:{b.instrument}"))
     z = cal.zero_first_stage
@@ -144,6 +146,10 @@ def _x_axes(ax, cal, single: bool) -> bool:
     """The x-label and, with one instrument, the top axis in shares of the reduced form;
     True when a top axis is drawn."""
     if single:
+        from matplotlib.ticker import FuncFormatter
+
+        # plain numbers on the ticks: no offset or ×10^k factor dangling beside the label
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: minus(format_number(v, 3))))
         ax.set_xlabel(f"implied direct effect of {', '.join(cal.instruments)} on {cal.outcome}")
         return _rf_share_axis(ax, float(cal.scale.reduced_form[0]), cal.instruments[0])
     from matplotlib.ticker import PercentFormatter
@@ -159,11 +165,14 @@ def _rf_share_axis(ax, reduced_form: float, z: str) -> bool:
         return False
     from matplotlib.ticker import MaxNLocator, PercentFormatter
 
-    top = ax.secondary_xaxis("top", functions=(lambda x: x / reduced_form,
-                                               lambda s: s * reduced_form))
+    # shares of |reduced form|, signed as the direct effect: the top axis runs the same way
+    # as the bottom one whatever the sign of the reduced form
+    size = abs(reduced_form)
+    top = ax.secondary_xaxis("top", functions=(lambda x: x / size, lambda s: s * size))
     top.xaxis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]))
     top.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))
-    top.set_xlabel(f"share of the reduced form of {z} ({minus(format_number(reduced_form, 3))})",
+    top.set_xlabel(f"share of |reduced form| of {z} (reduced form "
+                   f"{minus(format_number(reduced_form, 3))})",
                    fontsize=SMALL_PT, color=GREY)
     top.tick_params(labelsize=SMALL_PT, colors=GREY)
     return True

@@ -11,10 +11,12 @@ from sensiv.present.figures.direct import (DirectAxis, DirectView, direct_axis, 
 from sensiv.present.figures.style import (BLUE, GREY, LIGHT_BLUE, LIGHT_GREY, ORANGE, SMALL_PT,
                                           WHITE, clip, finish, limits, make_canvas, minus, pct,
                                           style_context, text_box)
+from sensiv.present.figures.yardstick_marks import draw_marks, marks_for
 from sensiv.sensitivity.bounds import SCALE_MAX
+from sensiv.sensitivity.breakdown_units import radius
 
 
-def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
+def sensitivity_curve(sweep, ax=None, *, note: str | None = None, yardsticks=None):
     """Union interval and identified set of the focus coefficient against the allowed direct
     effect, with the threshold, the breakdown and the stated range.
 
@@ -31,6 +33,8 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
     ax : matplotlib.axes.Axes, optional
     note : str, optional
         A last caption line (e.g. that the data are invented).
+    yardsticks : sensiv.sensitivity.against_yardsticks.YardstickComparison, optional
+        Leave-one-out yardsticks of the same data, drawn as marks at their implied scale.
 
     Returns
     -------
@@ -38,6 +42,8 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
     """
     import numpy as np
 
+    marks = [] if yardsticks is None else marks_for(yardsticks, direct_axis(sweep).extent,
+                                                    radius(sweep.direct_set))
     sweep = direct_view(sweep)
     with style_context():
         canvas = make_canvas(ax)
@@ -80,10 +86,11 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None):
         if sweep.tidy_layout:
             thin_x_ticks(ax)
         words = _mark_curve_breakdown(ax, sweep, axis, x[-1], unbounded)
+        marked = draw_marks(ax, marks, x[-1])
         ax.set_xlabel(axis.label)
         ax.set_ylabel(f"β, effect of {sweep.focus}")
         top = share_axis(ax, axis, x[-1])
-        caption = [sweep.caption, *([words] if words else [])]
+        caption = [sweep.caption, *([words] if words else []), *([marked] if marked else [])]
         return finish(canvas, caption, note=note, top_axis=top)
 
 
