@@ -105,9 +105,11 @@ def guarded(command):
     @functools.wraps(command)
     def wrapper(*args, **kwargs):
         from sensiv.core.errors import InputError, SolverError
+        from sensiv.core.progress import silenced
 
         try:
-            with warnings.catch_warnings(record=True) as caught:
+            with warnings.catch_warnings(record=True) as caught, \
+                    silenced(bool(kwargs.get("as_json"))):  # --json: no progress bar at all
                 warnings.simplefilter("always")
                 result = command(*args, **kwargs)
             _echo_warnings(caught)

@@ -14,13 +14,31 @@ Examples
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import sys
 import time
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
 PROGRESS_AFTER = 2.0
 """Seconds a loop must have run before its bar is shown."""
+
+
+SILENT: contextvars.ContextVar[bool] = contextvars.ContextVar("sensiv_progress_silent",
+                                                              default=False)
+"""True while every bar is off (the CLI sets it for a command run with ``--json``)."""
+
+
+@contextlib.contextmanager
+def silenced(silent: bool = True) -> Iterator[None]:
+    """Turn every progress bar off inside the block (when ``silent``)."""
+    token = SILENT.set(silent or SILENT.get())
+    try:
+        yield
+    finally:
+        SILENT.reset(token)
 
 
 def stderr_is_terminal() -> bool:
@@ -47,7 +65,7 @@ class Progress:
 
     def __post_init__(self) -> None:
         self._start = time.monotonic()
-        self._show = bool(self.enabled) and stderr_is_terminal()
+        self._show = bool(self.enabled) and not SILENT.get() and stderr_is_terminal()
 
     def __enter__(self) -> Progress:
         return self

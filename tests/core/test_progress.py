@@ -43,3 +43,24 @@ def test_the_hand_written_helper_is_gone():
     from sensiv.estimation import inference
 
     assert not hasattr(inference, "Progress")
+
+
+def test_silenced_turns_every_bar_off(monkeypatch):
+    # the CLI runs a --json command inside progress.silenced(): no bar even on a terminal
+    with progress.silenced():
+        assert run_loop(Terminal(), monkeypatch) == ""
+    assert "bootstrap" in run_loop(Terminal(), monkeypatch)
+
+
+def test_a_json_command_runs_silenced(monkeypatch):
+    from sensiv.cli.app import guarded
+
+    seen = []
+
+    @guarded
+    def command(as_json: bool = False):
+        seen.append(progress.SILENT.get())
+
+    command(as_json=True)
+    command(as_json=False)
+    assert seen == [True, False]

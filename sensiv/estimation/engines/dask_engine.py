@@ -28,6 +28,7 @@ from typing import Any
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.core.progress import Progress
 from sensiv.data.convert import Tally
 from sensiv.data.datasets import missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
@@ -144,7 +145,13 @@ def merge_moments(left: tuple, right: tuple) -> tuple:
 
 
 def _tree(client: Any, leaves: list, merge: Callable) -> Any:
-    """Pairwise tree reduction of futures on the cluster; the merged result."""
+    """Pairwise tree reduction of futures on the cluster; the merged result (a progress bar
+    over the partitions on a terminal's stderr while they run; none under ``--json``)."""
+    from distributed import as_completed
+
+    with Progress(total=len(leaves), label="dask partitions") as bar:
+        for done, _ in enumerate(as_completed(leaves), start=1):
+            bar.update(done)
     level = leaves
     while len(level) > 1:
         paired = [client.submit(merge, level[i], level[i + 1], pure=False)
