@@ -113,11 +113,6 @@ def demean_chunks(chunks: Iterable[Chunk], stream: Stream, effect: str, descript
                     else chunk.clusters[keep], chunk.n_dropped, chunk.n_filtered, None)
 
 
-def cluster_label_columns(clusters: np.ndarray) -> list[np.ndarray]:
-    """The label column of each cluster variable (two for two-way clustering)."""
-    return [clusters] if clusters.ndim == 1 else [clusters[:, j] for j in range(clusters.shape[1])]
-
-
 # ----------------------------------------------------------------------------- checks
 def model_roles(layout: Layout) -> list[tuple[str, str]]:
     """``(role, column)`` of every model column of ``layout``, in the order of its columns."""

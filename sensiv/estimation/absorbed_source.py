@@ -25,9 +25,9 @@ import numpy as np
 from sensiv.core.errors import AbsorbConvergenceWarning, InputError
 from sensiv.data.source import Chunk, Layout
 from sensiv.estimation import absorb as fe
-from sensiv.estimation.absorb_view import (GroupAbsorbed, Stream, apply_drops,
-                                           cluster_label_columns, demean_chunks,
+from sensiv.estimation.absorb_view import (GroupAbsorbed, Stream, apply_drops, demean_chunks,
                                            group_absorbed, model_roles, refusal)
+from sensiv.estimation.moments import LabelCodes, cluster_label_columns
 from sensiv.estimation.passes import engine_of, group_stats_of
 
 
@@ -140,25 +140,12 @@ def _grow(array: np.ndarray | None, rows: int, fill: float, width: int | None = 
     return block if array is None else np.concatenate([array, block])
 
 
-def _codes(index, labels: np.ndarray):
-    """Codes of ``labels`` in ``index`` (a pandas Index grown with the new labels)."""
-    import pandas as pd
-
-    local, uniques = pd.factorize(labels, sort=False)
-    found = np.asarray(index.get_indexer(uniques))
-    new = found < 0
-    if new.any():
-        found[new] = len(index) + np.arange(int(new.sum()))
-        index = index.append(pd.Index(uniques[new]))
-    return found[local], index
-
-
 def _first_pass(source) -> tuple:
     """Per-level counts, weight sums, weighted sums, minima and maxima of every column, and
     the smallest and largest cluster code met in each level (equal when nested)."""
     import pandas as pd
 
-    labels, cluster_labels = pd.Index([]), None
+    levels, cluster_codes_of = LabelCodes(), None
     counts = totals = sums = lows = highs = None
     c_low = c_high = None
     shift = None
@@ -168,8 +155,8 @@ def _first_pass(source) -> tuple:
             continue
         if shift is None:
             shift = chunk.values[0].copy()
-        codes, labels = _codes(labels, chunk.groups[0])
-        n, p = len(labels), chunk.values.shape[1]
+        codes, n = levels.encode(chunk.groups[0])
+        p = chunk.values.shape[1]
         if counts is None or counts.size < n:
             grow = n - (0 if counts is None else counts.size)
             counts, totals = _grow(counts, grow, 0), _grow(totals, grow, 0.0)
@@ -179,9 +166,9 @@ def _first_pass(source) -> tuple:
             c_low, c_high = _grow(c_low, grow, np.inf, k), _grow(c_high, grow, -np.inf, k)
         if chunk.clusters is not None:
             columns = cluster_label_columns(chunk.clusters)
-            cluster_labels = cluster_labels or [pd.Index([]) for _ in columns]
+            cluster_codes_of = cluster_codes_of or [LabelCodes() for _ in columns]
             for j, column in enumerate(columns):
-                cluster_codes, cluster_labels[j] = _codes(cluster_labels[j], column)
+                cluster_codes, _ = cluster_codes_of[j].encode(column)
                 np.minimum.at(c_low[:, j], codes, cluster_codes)
                 np.maximum.at(c_high[:, j], codes, cluster_codes)
         counts += np.bincount(codes, minlength=n)
@@ -193,8 +180,8 @@ def _first_pass(source) -> tuple:
             np.minimum.at(lows[:, j], codes, column)
             np.maximum.at(highs[:, j], codes, column)
     # levels × cluster variables: whether the level meets a single cluster of that variable.
-    nested = None if c_low is None or not cluster_labels else c_low == c_high
-    return labels, counts, totals, sums, lows, highs, shift, nested
+    nested = None if c_low is None or not cluster_codes_of else c_low == c_high
+    return pd.Index(levels.labels()), counts, totals, sums, lows, highs, shift, nested
 
 
 def _streamed(source) -> AbsorbedSource:

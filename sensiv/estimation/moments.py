@@ -218,8 +218,9 @@ def _block_scores(block: ScoreBlock, a: np.ndarray, e: np.ndarray,
     return g
 
 
-class _ClusterIndex:
-    """Maps cluster labels met in successive chunks to consecutive integer codes."""
+class LabelCodes:
+    """Maps labels (of clusters, or of a fixed effect's levels) met in successive chunks to
+    consecutive integer codes, in the order of first appearance."""
 
     def __init__(self) -> None:
         self._codes: dict = {}
@@ -299,14 +300,14 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
         return ScoreSums({k: 0.5 * (v + v.T) for k, v in meats.items()}, None)
 
     first = True
-    indices: list[_ClusterIndex] = []
+    indices: list[LabelCodes] = []
     sums: list[dict[str, np.ndarray]] = []
     for chunk in chunks:
         if chunk.clusters is None:
             raise ValueError("cluster sums requested but the chunks carry no cluster labels")
         if first:
             ways = 3 if np.ndim(chunk.clusters) == 2 else 1
-            indices = [_ClusterIndex() for _ in range(ways)]
+            indices = [LabelCodes() for _ in range(ways)]
             sums = [{b.name: np.zeros((0, b.size)) for b in blocks} for _ in range(ways)]
             first = False
         coded = _encode_ways(indices, chunk.clusters)
@@ -335,7 +336,7 @@ def _add_by_code(acc: np.ndarray, codes: np.ndarray, n_groups: int, g: np.ndarra
     return acc
 
 
-def _encode_ways(indices: list[_ClusterIndex], labels: np.ndarray) -> list[tuple[np.ndarray, int]]:
+def _encode_ways(indices: list[LabelCodes], labels: np.ndarray) -> list[tuple[np.ndarray, int]]:
     """Codes of one chunk for each way: one-way, or ``A``, ``B`` and the pair ``A∩B``."""
     if len(indices) == 1:
         return [indices[0].encode(labels)]
@@ -351,7 +352,7 @@ def cluster_score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[Scor
     per block, an array ``(len(labels), size)``.  Sums over disjoint rows add by label, so
     partitions can be summed apart and merged (a group-by sum)."""
     maps = _RowMaps(blocks, mean)
-    index = _ClusterIndex()
+    index = LabelCodes()
     sums = {b.name: np.zeros((0, b.size)) for b in blocks}
     for chunk in chunks:
         if chunk.clusters is None:
@@ -373,13 +374,18 @@ def cluster_sums(chunks: Iterable, mean: np.ndarray, block: ScoreBlock) -> np.nd
     return cluster_score_sums(chunks, mean, [block])[1][block.name]
 
 
+def cluster_label_columns(clusters: np.ndarray) -> list[np.ndarray]:
+    """The label column of each cluster variable (two for two-way clustering)."""
+    return [clusters] if clusters.ndim == 1 else [clusters[:, j] for j in range(clusters.shape[1])]
+
+
 def count_clusters(chunks: Iterable) -> tuple[int, ...]:
     """Distinct cluster labels per cluster variable (one, or two for two-way) in ``chunks``."""
-    indices: list[_ClusterIndex] = []
+    indices: list[LabelCodes] = []
     for chunk in chunks:
         labels = chunk.clusters
-        columns = [labels] if np.ndim(labels) == 1 else [labels[:, j] for j in range(2)]
-        indices = indices or [_ClusterIndex() for _ in columns]
+        columns = cluster_label_columns(labels)
+        indices = indices or [LabelCodes() for _ in columns]
         for index, column in zip(indices, columns):
             index.encode(column)
     return tuple(len(index) for index in indices)

@@ -33,11 +33,11 @@ from sensiv.data.convert import Tally
 from sensiv.data.datasets import missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
 from sensiv.data.spec import read_columns
-from sensiv.estimation.absorb_view import (GroupAbsorbed, GroupStats, cluster_label_columns,
-                                           demean_chunks)
+from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats, demean_chunks
 from sensiv.estimation.cluster_ways import combine_ways, pair_labels
 from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
-                                       cluster_score_sums, empty_moments, score_sums as sums_of)
+                                       cluster_label_columns, cluster_score_sums,
+                                       empty_moments, score_sums as sums_of)
 
 CONNECT_SECONDS = 10
 """How long a ``--scheduler`` address may take to answer."""
