@@ -61,18 +61,24 @@ def usage_message(exc: "click_errors.UsageError") -> str:
     text = " ".join(exc.format_message().split())
     text = text[:1].lower() + text[1:]
     path = exc.ctx.command_path if exc.ctx is not None else "sensiv"
+    if text.endswith("?"):  # "no such command 'fti'. Did you mean 'fit'?"
+        return f"{text} See '{path} --help' for the options"
     return f"{text.rstrip('.')}; see '{path} --help' for the options"
 
 
-app = typer.Typer(
-    cls=SensivGroup,
-    add_completion=False,
-    no_args_is_help=True,
-    rich_markup_mode=None,
-    pretty_exceptions_enable=False,
-    help="Sensitivity analysis for instrumental-variable estimates whose instrument may have a "
-         "direct effect on the outcome.",
-)
+def _new_app() -> typer.Typer:
+    return typer.Typer(
+        cls=SensivGroup,
+        add_completion=False,
+        no_args_is_help=True,
+        rich_markup_mode=None,
+        pretty_exceptions_enable=False,
+        help="Sensitivity analysis for instrumental-variable estimates whose instrument may have "
+             "a direct effect on the outcome.",
+    )
+
+
+app = _new_app()
 
 
 EXIT_BAD_INPUT = 2
@@ -132,5 +138,34 @@ def _echo_warnings(caught) -> None:
 
 
 def main() -> None:
-    """Console-script entry point."""
-    app()
+    """Console-script entry point.
+
+    typer turns every registered function into a click command each time the program starts;
+    for ``sensiv CMD ...`` only the command asked for is built (one instead of nine), which
+    was most of what ``sensiv CMD --help`` cost beyond importing typer.  Anything else (no
+    command, ``--help``, ``--version``, a misspelt command) runs the whole application.
+    """
+    name = requested_command(sys.argv[1:])
+    (app if name is None else only(name))()
+
+
+def command_name(info) -> str:
+    """The name typer gives a registered command (its function's name, ``_`` → ``-``)."""
+    return info.name or info.callback.__name__.replace("_", "-")
+
+
+def requested_command(args: list[str]) -> str | None:
+    """The registered command named by the first argument, if there is one."""
+    if not args or args[0].startswith("-"):
+        return None
+    names = {command_name(info) for info in app.registered_commands}
+    return args[0] if args[0] in names else None
+
+
+def only(name: str) -> typer.Typer:
+    """The application with its root options and the one command ``name``."""
+    single = _new_app()
+    single.registered_callback = app.registered_callback
+    single.registered_commands = [info for info in app.registered_commands
+                                  if command_name(info) == name]
+    return single

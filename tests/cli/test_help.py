@@ -61,3 +61,23 @@ def test_the_example_in_the_help_runs(command, monkeypatch):
 def test_bundle_examples_are_well_formed(command):
     args = _example(_help(command))
     assert args[0] == command and "--out" in args
+
+
+@pytest.mark.parametrize("command", COMMANDS)
+def test_the_one_command_application_helps_as_the_whole(command):
+    # The console script builds only the command asked for (cli.app.main); its help and its
+    # usage errors must read exactly as the whole application's (common practice, no source).
+    from sensiv.cli.app import only, requested_command
+
+    assert requested_command([command, "--help"]) == command
+    for args in ([command, "--help"], [command, "--no-such-option"]):
+        whole = CliRunner().invoke(app, args, terminal_width=100)
+        single = CliRunner().invoke(only(command), args, terminal_width=100)
+        assert (single.exit_code, single.output) == (whole.exit_code, whole.output)
+
+
+def test_requested_command_leaves_the_rest_to_the_whole_application():
+    from sensiv.cli.app import requested_command
+
+    for args in ([], ["--help"], ["--version"], ["fti", "--help"]):
+        assert requested_command(args) is None
