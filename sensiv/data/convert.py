@@ -8,6 +8,7 @@ the column, its role, the data set and a data row (1-based, header not counted).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Iterator, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -59,6 +60,7 @@ def text_controls(spec: Spec, samples: Sequence[pd.DataFrame], description: str)
 
 IDENTIFIER_SHARE = 0.05
 IDENTIFIER_LEVELS = 50
+IDENTIFIER_SAMPLE_ROWS = 100_000  # leading rows of each sample that the check reads
 """An integer control with more distinct values than this share of rows and this count
 looks like an identifier (common practice, no source: thresholds named in the issue)."""
 
@@ -71,8 +73,8 @@ def identifier_notes(spec: Spec, samples: Sequence[pd.DataFrame], text: Sequence
     for name in spec.controls:
         if name in text:
             continue
-        values = np.concatenate([as_float(s[name], "control", name, description, 0)
-                                 for s in samples])
+        values = np.concatenate([as_float(s[name].iloc[:IDENTIFIER_SAMPLE_ROWS], "control",
+                                          name, description, 0) for s in samples])
         values = values[np.isfinite(values)]
         if values.size == 0 or not np.all(values == np.round(values)):
             continue
@@ -125,14 +127,22 @@ def as_float(series: pd.Series, role: str, name: str, description: str,
     )
 
 
+def extremes(values: np.ndarray) -> tuple[float, float]:
+    """The smallest and largest value, NaN ignored (NaN, NaN when no value is a number); two
+    reductions without temporaries, so a column is checked at the speed of reading it."""
+    if values.size == 0:
+        return math.nan, math.nan
+    return float(np.fmin.reduce(values)), float(np.fmax.reduce(values))
+
+
 def check_scale(values: np.ndarray, what: str, first_row: int) -> None:
     """Refuse values whose magnitude double precision cannot square and sum (above
     :data:`~sensiv.core.limits.MAX_MAGNITUDE`, or non-zero and all below its reciprocal):
     their spread would over- or underflow and the column would look constant."""
-    size = np.abs(values[np.isfinite(values)])
-    if size.size == 0:
+    lowest, highest = extremes(values)
+    if math.isnan(lowest):
         return
-    largest = float(size.max())
+    largest = max(abs(lowest), abs(highest)) if math.isfinite(lowest + highest) else math.inf
     if largest > MAX_MAGNITUDE:
         position = int(np.argmax(np.abs(np.nan_to_num(values)) > MAX_MAGNITUDE))
         raise InputError(f"{what} holds {values[position]:g} at data row "

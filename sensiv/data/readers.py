@@ -72,9 +72,17 @@ def _check_frame(frame: Any, what: str) -> None:
         raise InputError(f"{what} must be a pandas DataFrame; got {type(frame).__name__}")
 
 
+FRAME_CHUNK_ROWS = 65_536
+"""Rows per validated chunk of an in-memory frame (``chunk_rows=None``): the cleaned chunks
+are kept, so the source holds one float64 copy of the used columns and the conversion and
+the passes work on blocks that stay in the processor's caches, instead of three whole-frame
+copies (a column subset, the numeric columns, the block) at once."""
+
+
 def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None,
                description: str = "DataFrame") -> Source:
-    """In-memory source; ``chunk_rows=None`` yields the whole frame as one chunk.
+    """In-memory source, validated in chunks of ``chunk_rows`` rows (default
+    :data:`FRAME_CHUNK_ROWS`).
 
     ``description`` names the data in messages (e.g. the file the frame was read from).
 
@@ -86,17 +94,16 @@ def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None
         Unknown column, non-numeric, infinite or NaN-only column, bad weights, or no rows left.
     """
     _check_frame(frame, "frame")
-    rows = None if chunk_rows is None else _check_chunk_rows(chunk_rows)
+    rows = FRAME_CHUNK_ROWS if chunk_rows is None else _check_chunk_rows(chunk_rows)
     used = read_columns(spec) if isinstance(spec, Spec) else []
 
     def make_frames(text: list[str]) -> Callable[[], Iterator[pd.DataFrame]]:
         def frames() -> Iterator[pd.DataFrame]:
-            step = rows or max(len(frame), 1)
-            sub = frame[used]
-            for start in range(0, len(frame), step):
-                yield sub.iloc[start:start + step]
+            # Slice rows first: a column subset of the whole frame would copy all of it.
+            for start in range(0, len(frame), rows):
+                yield frame.iloc[start:start + rows][used]
             if len(frame) == 0:
-                yield sub
+                yield frame[used]
         return frames
 
     return build_source(spec, description, list(frame.columns), lambda: [frame], make_frames,
@@ -314,7 +321,8 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
         labels = [*text, *cluster_columns(spec)]
         return _reader(resolved, fmt, used, rows, labels)
 
-    source = build_source(spec, resolved.name, available, samples, make_frames, eager=False)
+    source = build_source(spec, resolved.name, available, samples, make_frames, eager=False,
+                          chunk_rows=rows)
     origin = Origin(fmt, (str(resolved),)) if fmt in ("csv", "parquet") else None
     return dataclasses.replace(source, origin=origin, chunk_rows=rows)
 

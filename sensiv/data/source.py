@@ -27,6 +27,7 @@ Examples
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -36,9 +37,10 @@ import warnings
 import numpy as np
 
 from sensiv.core.errors import IdentifierWarning, InputError
-from sensiv.data.convert import (as_float, check_scale, data_row, dtype_kind, identifier_notes,
-                                 level_index, level_strings, missing_mask, scan_levels, Tally,
-                                 text_controls)
+from sensiv.data.convert import (as_float, check_scale, data_row, dtype_kind, extremes,
+                                 identifier_notes, level_index, level_strings, missing_mask,
+                                 scan_levels, Tally, text_controls)
+from sensiv.data.dense_size import check_dense_size
 from sensiv.data.spec import check_columns, cluster_columns, roles, row_filter, Spec
 from sensiv.data.where import check_kinds, filter_columns, keep_mask, Node
 
@@ -193,8 +195,9 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
         else:
             numeric[name] = as_float(frame[name], role, name, where, first_row)
             mask = np.isnan(numeric[name])
-            infinite = np.isinf(numeric[name])
-            if infinite.any():
+            lowest, highest = extremes(numeric[name])
+            if math.isinf(lowest) or math.isinf(highest):
+                infinite = np.isinf(numeric[name])
                 raise InputError(
                     f"{role} {name!r} in {where} has {int(infinite.sum())} infinite value(s) "
                     f"(first at data row {data_row(first_row, int(np.argmax(infinite)))}); "
@@ -301,7 +304,7 @@ def _filter_kinds(spec: Spec, samples: Sequence[pd.DataFrame], text: list[str],
 def build_source(spec: Spec, description: str, available: Sequence[Any],
                  samples: Callable[[], Sequence[pd.DataFrame]],
                  make_frames: Callable[[list[str]], Callable[[], Iterator[pd.DataFrame]]],
-                 *, eager: bool) -> Source:
+                 *, eager: bool, chunk_rows: int | None = None) -> Source:
     """The steps every reader shares: column names, kinds, levels and layout.
 
     Parameters
@@ -318,6 +321,8 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
         columns.
     eager : bool
         Convert and validate every row now and keep the chunks (in-memory data).
+    chunk_rows : int, optional
+        Rows per streamed chunk, for the check that one chunk's design fits in memory.
     """
     if not isinstance(spec, Spec):
         raise InputError(f"spec must be a sensiv.data.Spec; got {type(spec).__name__}")
@@ -348,6 +353,10 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
             f"indicator column name(s) {sorted(clash)} in {description} clash with other "
             "columns; rename the text control or the clashing column"
         )
+    if eager or chunk_rows is not None:
+        rows = sum(len(sample) for sample in sampled) if eager else chunk_rows
+        check_dense_size(len(layout.columns) + 1, rows, levels, description,
+                         streamed=not eager)
     source = Source(spec, layout, description, frames, levels, None, row_filter_kinds,
                     tuple(notes))
     if eager:

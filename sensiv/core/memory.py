@@ -1,0 +1,52 @@
+"""How much memory this process may still take, for refusing a computation up front.
+
+Linux only in practice: ``MemAvailable`` of ``/proc/meminfo``, capped by the memory limit of
+the process's cgroup (containers, batch schedulers) minus what the cgroup already uses.
+Elsewhere, or when nothing can be read, the answer is ``None`` and callers skip their check.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+_CGROUP_LIMITS = (("/sys/fs/cgroup/memory.max", "/sys/fs/cgroup/memory.current"),      # v2
+                  ("/sys/fs/cgroup/memory/memory.limit_in_bytes",                       # v1
+                   "/sys/fs/cgroup/memory/memory.usage_in_bytes"))
+_UNLIMITED = 1 << 60  # cgroup v1 writes a huge number for "no limit"
+
+
+def _read_int(path: str) -> int | None:
+    try:
+        text = Path(path).read_text().strip()
+    except OSError:
+        return None
+    return int(text) if text.isdigit() else None
+
+
+def _meminfo_available() -> int | None:
+    try:
+        lines = Path("/proc/meminfo").read_text().splitlines()
+    except OSError:
+        return None
+    for line in lines:
+        if line.startswith("MemAvailable:"):
+            return int(line.split()[1]) * 1024
+    return None
+
+
+def available_memory() -> int | None:
+    """Bytes of memory still available to this process, or ``None`` where unknown."""
+    found = [value for value in (_meminfo_available(),) if value is not None]
+    for limit_path, usage_path in _CGROUP_LIMITS:
+        limit, usage = _read_int(limit_path), _read_int(usage_path)
+        if limit is not None and limit < _UNLIMITED:
+            found.append(max(limit - (usage or 0), 0))
+    return min(found) if found else None
+
+
+def format_bytes(size: float) -> str:
+    """``37.3 GiB``-style text for a byte count."""
+    for unit, scale in (("GiB", 2**30), ("MiB", 2**20), ("KiB", 2**10)):
+        if size >= scale:
+            return f"{size / scale:.1f} {unit}"
+    return f"{int(size)} bytes"
