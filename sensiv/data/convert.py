@@ -135,11 +135,13 @@ def extremes(values: np.ndarray) -> tuple[float, float]:
     return float(np.fmin.reduce(values)), float(np.fmax.reduce(values))
 
 
-def check_scale(values: np.ndarray, what: str, first_row: int) -> None:
+def check_scale(values: np.ndarray, what: str, first_row: int,
+                found: tuple[float, float] | None = None) -> None:
     """Refuse values whose magnitude double precision cannot square and sum (above
     :data:`~sensiv.core.limits.MAX_MAGNITUDE`, or non-zero and all below its reciprocal):
-    their spread would over- or underflow and the column would look constant."""
-    lowest, highest = extremes(values)
+    their spread would over- or underflow and the column would look constant.  ``found``:
+    the column's :func:`extremes`, when the caller has them."""
+    lowest, highest = extremes(values) if found is None else found
     if math.isnan(lowest):
         return
     largest = max(abs(lowest), abs(highest)) if math.isfinite(lowest + highest) else math.inf

@@ -193,17 +193,22 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
         if name in source._levels or name in cluster_columns(spec) or name in spec.absorb:
             mask = missing_mask(frame[name])
         else:
-            numeric[name] = as_float(frame[name], role, name, where, first_row)
-            mask = np.isnan(numeric[name])
-            lowest, highest = extremes(numeric[name])
-            if math.isinf(lowest) or math.isinf(highest):
-                infinite = np.isinf(numeric[name])
+            column = numeric[name] = as_float(frame[name], role, name, where, first_row)
+            found = extremes(column)
+            if math.isinf(found[0]) or math.isinf(found[1]):
+                infinite = np.isinf(column)
                 raise InputError(
                     f"{role} {name!r} in {where} has {int(infinite.sum())} infinite value(s) "
                     f"(first at data row {data_row(first_row, int(np.argmax(infinite)))}); "
                     "recode them to finite numbers or drop those rows"
                 )
-            check_scale(numeric[name], f"{role} {name!r} in {where}", first_row)
+            check_scale(column, f"{role} {name!r} in {where}", first_row, found)
+            # Finite values below MAX_MAGNITUDE cannot sum to NaN: a NaN sum means a missing
+            # value, and only then is the mask formed.
+            if not math.isnan(float(np.add.reduce(column))):
+                missing_counts[name] = 0
+                continue
+            mask = np.isnan(column)
         missing_counts[name] = int(mask.sum())
         drop |= mask
     if spec.weight is not None:

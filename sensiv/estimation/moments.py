@@ -23,6 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.estimation.score_rows import ScoreRows
 
 
 @dataclass(frozen=True, slots=True)
@@ -107,7 +108,8 @@ def empty_moments(columns: Sequence[str]) -> Moments:
 
 
 def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarray | None,
-                  n_dropped: int = 0, n_filtered: int = 0) -> Moments:
+                  n_dropped: int = 0, n_filtered: int = 0,
+                  scratch: np.ndarray | None = None) -> Moments:
     """Moments of one block of rows, by the two-pass (mean, then centred product) formula.
 
     Parameters
@@ -122,6 +124,8 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
         Rows of this block dropped before ``values`` was formed (carried along for reporting).
     n_filtered : int
         Rows of this block removed by the row filter (carried along for reporting).
+    scratch : ndarray, shape (n, p), optional
+        Space for the centred block, reused across chunks (a fresh one costs page faults).
 
     Examples
     --------
@@ -138,7 +142,7 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
     # (a calendar year, incomes in cents) is accumulated as small deviations: the mean is then
     # accurate to rounding of the spread, not of the level.
     shift = values[0]
-    centred = values - shift
+    centred = np.subtract(values, shift, out=scratch)
     if weights is None:
         total = float(n)
         offset = centred.mean(axis=0)
@@ -157,9 +161,13 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
 def accumulate(chunks: Iterable, columns: Sequence[str]) -> Moments:
     """Pass 1: moments of every chunk (objects with ``values``, ``weights``, ``n_dropped``), summed."""
     total = empty_moments(columns)
+    scratch: dict[tuple[int, ...], np.ndarray] = {}
     for chunk in chunks:
+        shape = chunk.values.shape
+        if shape not in scratch:
+            scratch = {shape: np.empty(shape, order="F")}   # one size at a time
         total = total + chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped,
-                                      getattr(chunk, "n_filtered", 0))
+                                      getattr(chunk, "n_filtered", 0), scratch[shape])
     return total
 
 
@@ -205,19 +213,6 @@ class ScoreSums:
     psd_fix: bool = False
 
 
-def _block_scores(block: ScoreBlock, a: np.ndarray, e: np.ndarray,
-                  weights: np.ndarray | None) -> np.ndarray:
-    if e.shape[1] == 1:
-        g = a * e
-    elif a.shape[1] == 1:
-        g = e * a
-    else:
-        g = (a[:, :, None] * e[:, None, :]).reshape(a.shape[0], block.size)
-    if weights is not None:
-        g *= weights[:, None]
-    return g
-
-
 class LabelCodes:
     """Maps labels (of clusters, or of a fixed effect's levels) met in successive chunks to
     consecutive integer codes, in the order of first appearance."""
@@ -246,30 +241,6 @@ class LabelCodes:
         return list(self._codes)
 
 
-class _RowMaps:
-    """All blocks' row maps applied in one product per chunk.
-
-    ``d̃ @ L = values @ L[1:] + (L[0] − μ @ L[1:])``, so the augmented rows are never formed.
-    """
-
-    def __init__(self, blocks: Sequence[ScoreBlock], mean: np.ndarray) -> None:
-        maps = [m for b in blocks for m in (b.left, b.right)]
-        stack = np.hstack(maps)
-        # Stored transposed: (maps × columns) @ (columns × rows) is much faster in BLAS than a
-        # tall-skinny (rows × columns) @ (columns × maps) product, and yields column-major
-        # per-map columns that the elementwise products below read contiguously.
-        self._stack_t = np.ascontiguousarray(stack[1:].T)
-        self._offset = stack[0] - mean @ stack[1:]
-        edges = np.cumsum([0, *(m.shape[1] for m in maps)])
-        self._slices = [(slice(edges[2 * i], edges[2 * i + 1]),
-                         slice(edges[2 * i + 1], edges[2 * i + 2])) for i in range(len(blocks))]
-
-    def apply(self, values: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
-        mapped = (self._stack_t @ values.T).T
-        mapped += self._offset
-        return [(mapped[:, left], mapped[:, right]) for left, right in self._slices]
-
-
 def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
                cluster: bool) -> ScoreSums:
     """Pass 2: robust or cluster sums of score outer products for every block.
@@ -291,34 +262,30 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
         ``Σ gᵢgᵢ'`` or ``Σ_g s_g s_g'`` per block.
     """
     meats = {b.name: np.zeros((b.size, b.size)) for b in blocks}
-    maps = _RowMaps(blocks, mean)
+    rows = ScoreRows(blocks, mean)
     if not cluster:
+        outer = [np.zeros((w, w)) for w in rows.widths]
         for chunk in chunks:
-            for b, (a, e) in zip(blocks, maps.apply(chunk.values)):
-                g = _block_scores(b, a, e, chunk.weights)
-                meats[b.name] += g.T @ g
-        return ScoreSums({k: 0.5 * (v + v.T) for k, v in meats.items()}, None)
+            for acc, h in zip(outer, rows.rows(chunk.values, chunk.weights)):
+                acc += h.T @ h
+        return ScoreSums(rows.meats(outer), None)
 
-    first = True
     indices: list[LabelCodes] = []
-    sums: list[dict[str, np.ndarray]] = []
+    sums: list[list[np.ndarray]] = []
     for chunk in chunks:
         if chunk.clusters is None:
             raise ValueError("cluster sums requested but the chunks carry no cluster labels")
-        if first:
+        if not indices:
             ways = 3 if np.ndim(chunk.clusters) == 2 else 1
             indices = [LabelCodes() for _ in range(ways)]
-            sums = [{b.name: np.zeros((0, b.size)) for b in blocks} for _ in range(ways)]
-            first = False
-        coded = _encode_ways(indices, chunk.clusters)
-        mapped = maps.apply(chunk.values)
-        for (codes, n_groups), acc_by_block in zip(coded, sums):
-            for b, (a, e) in zip(blocks, mapped):
-                g = _block_scores(b, a, e, chunk.weights)
-                acc_by_block[b.name] = _add_by_code(acc_by_block[b.name], codes, n_groups, g)
+            sums = [[np.zeros((0, w)) for w in rows.widths] for _ in range(ways)]
+        unit_rows = rows.rows(chunk.values, chunk.weights)
+        for (codes, n_groups), acc in zip(_encode_ways(indices, chunk.clusters), sums):
+            for u, h in enumerate(unit_rows):
+                acc[u] = _add_by_code(acc[u], codes, n_groups, h)
     if not sums:  # no chunk at all
         return ScoreSums(meats, 0)
-    outer = [{b.name: acc[b.name].T @ acc[b.name] for b in blocks} for acc in sums]
+    outer = [rows.meats([s.T @ s for s in acc]) for acc in sums]
     if len(outer) == 1:
         return ScoreSums(outer[0], len(indices[0]))
     counts = tuple(len(index) for index in indices)
@@ -351,17 +318,18 @@ def cluster_score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[Scor
     """Per-cluster score sums ``s_g``: the cluster labels in order of first appearance and,
     per block, an array ``(len(labels), size)``.  Sums over disjoint rows add by label, so
     partitions can be summed apart and merged (a group-by sum)."""
-    maps = _RowMaps(blocks, mean)
+    rows = ScoreRows(blocks, mean)
     index = LabelCodes()
-    sums = {b.name: np.zeros((0, b.size)) for b in blocks}
+    sums = [np.zeros((0, w)) for w in rows.widths]
     for chunk in chunks:
         if chunk.clusters is None:
             raise ValueError("cluster sums requested but the chunks carry no cluster labels")
         codes, n_groups = index.encode(chunk.clusters)
-        for b, (a, e) in zip(blocks, maps.apply(chunk.values)):
-            g = _block_scores(b, a, e, chunk.weights)
-            sums[b.name] = _add_by_code(sums[b.name], codes, n_groups, g)
-    return index.labels(), sums
+        for u, h in enumerate(rows.rows(chunk.values, chunk.weights)):
+            sums[u] = _add_by_code(sums[u], codes, n_groups, h)
+    if not len(index):
+        return [], {b.name: np.zeros((0, b.size)) for b in blocks}
+    return index.labels(), rows.sums(sums)
 
 
 def cluster_sums(chunks: Iterable, mean: np.ndarray, block: ScoreBlock) -> np.ndarray:

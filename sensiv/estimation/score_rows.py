@@ -1,0 +1,172 @@
+r"""Pass 2's per-row arithmetic: the rows whose sums give every score block's meat.
+
+A block's score is :math:`g_i = w_i\,\mathrm{vec}(a_i ⊗ e_i)` with :math:`a_i = \tilde d_i L`
+and :math:`e_i = \tilde d_i R` (:class:`sensiv.estimation.moments.ScoreBlock`).  When ``R``
+is one column — a residual — the score is a fixed linear map of the *residual-weighted row*
+:math:`h_i = w_i e_i \tilde d_i`:
+
+.. math::
+
+    g_i = h_i L, \qquad \sum_i g_i g_i' = L' \Big(\sum_i h_i' h_i\Big) L, \qquad
+    s_g = \Big(\sum_{i∈g} h_i\Big) L,
+
+and every block with the same residual (the 2SLS and overidentification blocks) shares one
+``h``.  Per chunk that is one residual per distinct ``R`` (a matrix–vector product), one
+scaling of the centred rows and one product whose result is ``(1+p) × (1+p)`` — instead of
+forming ``aᵢ`` for every block by a product whose result has a row per data row, which was
+the slowest operation of the pass (it writes ``rows × maps`` numbers and, on a busy
+multi-core machine, OpenBLAS threads wait on each other over it).  A block with several
+residual columns (the first stages), or whose ``L`` is much narrower than the row, keeps its
+own per-row scores.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+MAX_BUFFERS = 16
+"""Scratch arrays kept between chunks (a few per chunk size; the last chunk is shorter)."""
+
+NARROW_SHARE = 4
+"""A one-residual block whose ``L`` has fewer than ``(1+p)/NARROW_SHARE`` columns keeps its
+own scores, unless another block already forms the residual-weighted rows of its residual."""
+
+
+def _block_scores(left: np.ndarray, right: np.ndarray, size: int,
+                  weights: np.ndarray | None, out: np.ndarray) -> np.ndarray:
+    if right.shape[1] == 1:
+        np.multiply(left, right, out=out)
+    elif left.shape[1] == 1:
+        np.multiply(right, left, out=out)
+    else:
+        for j in range(left.shape[1]):
+            np.multiply(left[:, j:j + 1], right, out=out[:, j * right.shape[1]:
+                                                         (j + 1) * right.shape[1]])
+    if weights is not None:
+        out *= weights[:, None]
+    return out
+
+
+def _residual_unit(residuals: list[np.ndarray], column: np.ndarray, *, add: bool
+                   ) -> int | None:
+    """The unit of the residual ``column`` among ``residuals`` (added when ``add``)."""
+    for j, known in enumerate(residuals):
+        if np.array_equal(known, column):
+            return j
+    if not add:
+        return None
+    residuals.append(column)
+    return len(residuals) - 1
+
+
+class ScoreRows:
+    """The units of pass 2 for a list of blocks: per chunk, :meth:`rows` gives one array per
+    unit; sums of their outer products (or per-cluster sums) turn into the blocks' meats (or
+    per-cluster score sums) by :meth:`meats` (or :meth:`sums`)."""
+
+    def __init__(self, blocks: Sequence, mean: np.ndarray) -> None:
+        self._mean = mean
+        width = mean.size + 1
+        residuals: list[np.ndarray] = []
+        routes: dict[str, tuple[int, np.ndarray | None]] = {}
+        # Wide one-residual blocks get the residual-weighted rows of their residual ...
+        for b in blocks:
+            if b.right.shape[1] == 1 and NARROW_SHARE * b.left.shape[1] >= width:
+                routes[b.name] = (_residual_unit(residuals, b.right[:, 0], add=True), b.left)
+        # ... which narrow blocks with the same residual share.
+        for b in blocks:
+            if b.name not in routes and b.right.shape[1] == 1:
+                unit = _residual_unit(residuals, b.right[:, 0], add=False)
+                if unit is not None:
+                    routes[b.name] = (unit, b.left)
+        self._direct = [b for b in blocks if b.name not in routes]
+        for j, b in enumerate(self._direct):
+            routes[b.name] = (len(residuals) + j, None)
+        self._routes = [(b.name, *routes[b.name]) for b in blocks]
+        self._residual_map = (np.column_stack(residuals) if residuals
+                              else np.zeros((width, 0)))
+        self._direct_maps = _DirectMaps(self._direct, mean) if self._direct else None
+        self.widths = [width] * len(residuals) + [b.size for b in self._direct]
+        self._buffers: dict[tuple, np.ndarray] = {}
+
+    def rows(self, values: np.ndarray, weights: np.ndarray | None) -> list[np.ndarray]:
+        """One ``(rows, width)`` array per unit for a chunk's ``values``.
+
+        The arrays are scratch space that the next call overwrites: sum them before asking
+        for the next chunk's (fresh arrays of this size cost page faults at every chunk,
+        which took three times the arithmetic)."""
+        out = []
+        n = values.shape[0]
+        n_residuals = self._residual_map.shape[1]
+        if n_residuals:
+            r = self._residual_map
+            e = values @ r[1:]
+            e += r[0] - self._mean @ r[1:]
+            if weights is not None:
+                e *= weights[:, None]
+            for j in range(n_residuals):
+                h = self._scratch(("h", j), n, values.shape[1] + 1)
+                h[:, 0] = e[:, j]
+                np.subtract(values, self._mean, out=h[:, 1:])
+                h[:, 1:] *= e[:, j:j + 1]
+                out.append(h)
+        if self._direct_maps is not None:
+            mapped = self._direct_maps.apply(values, self._scratch("mapped", n,
+                                                                   self._direct_maps.width))
+            for j, (b, (a, e)) in enumerate(zip(self._direct, mapped)):
+                g = self._scratch(("g", j), n, b.size)
+                out.append(_block_scores(a, e, b.size, weights, g))
+        return out
+
+    def _scratch(self, tag, rows: int, columns: int) -> np.ndarray:
+        key = (tag, rows, columns)
+        if key not in self._buffers:
+            if len(self._buffers) > MAX_BUFFERS:
+                self._buffers.clear()
+            self._buffers[key] = np.empty((rows, columns), order="F")
+        return self._buffers[key]
+
+    def meats(self, outer: Sequence[np.ndarray]) -> dict[str, np.ndarray]:
+        """Each block's ``Σ gᵢgᵢ'`` from each unit's ``Σ hᵢ'hᵢ`` (or ``Σ_g S_g'S_g``)."""
+        found = {}
+        for name, unit, left in self._routes:
+            meat = outer[unit] if left is None else left.T @ outer[unit] @ left
+            found[name] = 0.5 * (meat + meat.T)
+        return found
+
+    def sums(self, per_cluster: Sequence[np.ndarray]) -> dict[str, np.ndarray]:
+        """Each block's per-cluster score sums from each unit's per-cluster row sums."""
+        return {name: per_cluster[unit] if left is None else per_cluster[unit] @ left
+                for name, unit, left in self._routes}
+
+
+class _DirectMaps:
+    """The direct blocks' row maps applied in one product per chunk.
+
+    ``d̃ @ L = values @ L[1:] + (L[0] − μ @ L[1:])``, so the augmented rows are never formed.
+    """
+
+    def __init__(self, blocks: Sequence, mean: np.ndarray) -> None:
+        maps = [m for b in blocks for m in (b.left, b.right)]
+        stack = np.hstack(maps)
+        # Stored transposed: (maps × columns) @ (columns × rows) is faster in BLAS than a
+        # tall-skinny (rows × columns) @ (columns × maps) product, and yields column-major
+        # per-map columns that the elementwise products read contiguously.
+        self._stack_t = np.ascontiguousarray(stack[1:].T)
+        self._offset = stack[0] - mean @ stack[1:]
+        edges = np.cumsum([0, *(m.shape[1] for m in maps)])
+        self._slices = [(slice(edges[2 * i], edges[2 * i + 1]),
+                         slice(edges[2 * i + 1], edges[2 * i + 2])) for i in range(len(blocks))]
+
+    @property
+    def width(self) -> int:
+        return self._stack_t.shape[0]
+
+    def apply(self, values: np.ndarray, out: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+        """The maps of ``values`` into ``out`` (column-major, ``rows × width``)."""
+        np.matmul(self._stack_t, values.T, out=out.T)
+        mapped = out
+        mapped += self._offset
+        return [(mapped[:, left], mapped[:, right]) for left, right in self._slices]
