@@ -81,6 +81,14 @@ def _calibrate(result) -> str:
             "magnitudes, not estimates of the true direct effect.")
 
 
+def _per_instrument_scatter(result) -> str:
+    return (f"Each of the {result.associations.count} instruments' reduced-form association "
+            "against its first-stage association (oriented so the first stage is positive, "
+            "with ±1 se bars), and the fitted lines: IVW through the origin, MR-Egger with its "
+            "intercept, and the weighted median and mode-based estimates as slopes through "
+            "the origin.")
+
+
 _CAPTIONS = {
     ("fit", "summary"): _fit,
     ("sweep", "curve"): _sweep_curve,
@@ -91,6 +99,7 @@ _CAPTIONS = {
     ("corrbound", "curve"): _corrbound,
     ("discrete", "curve"): _discrete,
     ("calibrate", "yardsticks"): _calibrate,
+    ("per_instrument", "scatter"): _per_instrument_scatter,
 }
 
 SUMMARY_CAPTION = "Every analysis of this study as one interval, each under its own assumption."
