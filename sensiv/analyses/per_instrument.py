@@ -13,13 +13,14 @@ from sensiv.sensitivity.associations import check_associations
 
 OPTIONS = {"per_instrument": str, "first_stage": str, "first_stage_se": str,
            "reduced_form": str, "reduced_form_se": str, "name": str, "weights": str,
-           "reps": int, "phi": float}
+           "reps": int, "phi": float, "direct": list, "prior": list, "threshold": float,
+           "points": int}
 RECIPE_LABELS = {**{r: r for r in ROLES}, "name": "name"}
 
 
 def analyse(table, columns, name=None, *, labels=None, weights="first", confidence_level=0.95,
             reps=robust_estimators.DEFAULT_REPS, seed=None, phi=robust_estimators.DEFAULT_PHI,
-            require_egger=False) -> published_table.PublishedTableResult:
+            require_egger=False, **parts) -> published_table.PublishedTableResult:
     """Read the table, validate the associations, run the analysis (shared by CLI and recipe)."""
     kwargs = {} if labels is None else {"labels": labels}
     read = read_per_instrument(table, columns, name, **kwargs)
@@ -29,7 +30,7 @@ def analyse(table, columns, name=None, *, labels=None, weights="first", confiden
                                reduced_form_se=c["reduced_form_se"], names=read.names)
     return published_table.published_table(
         assoc, table=read.source, weights=weights, confidence_level=confidence_level,
-        reps=reps, seed=seed, phi=phi, require_egger=require_egger)
+        reps=reps, seed=seed, phi=phi, require_egger=require_egger, **parts)
 
 
 def run(context, options) -> published_table.PublishedTableResult:
@@ -42,7 +43,9 @@ def run(context, options) -> published_table.PublishedTableResult:
                    labels=RECIPE_LABELS, weights=o.get("weights", "first"),
                    confidence_level=context.common["confidence_level"],
                    reps=o.get("reps", robust_estimators.DEFAULT_REPS), seed=context.seed,
-                   phi=o.get("phi", robust_estimators.DEFAULT_PHI))
+                   phi=o.get("phi", robust_estimators.DEFAULT_PHI), direct=o.get("direct"),
+                   prior=o.get("prior"), threshold=o.get("threshold", 0.0),
+                   points=o.get("points", published_table.DEFAULT_POINTS))
 
 
 def draw(result, note):

@@ -62,7 +62,8 @@ def refuse_table_only(given: dict) -> None:
 
 def run_table(table: Path, columns: dict, name: Optional[str], *, weights: Optional[str],
               reps: Optional[int], seed: Optional[int], level: float, direct, prior,
-              as_json: bool, out: Optional[Path], formats: tuple[str, ...]) -> None:
+              threshold: float, points: int, as_json: bool, out: Optional[Path],
+              formats: tuple[str, ...]) -> None:
     """Run the per-instrument analysis and print or write it."""
     from sensiv.analyses import per_instrument
     from sensiv.present.text_per_instrument import per_instrument_markdown
@@ -73,13 +74,10 @@ def run_table(table: Path, columns: dict, name: Optional[str], *, weights: Optio
     if lacking:
         raise InputError(f"--per-instrument needs the column of each role; name "
                          f"{', '.join(lacking)} (column names of the table)")
-    if direct is not None or prior is not None:
-        raise InputError("--direct and --prior with --per-instrument are not available in "
-                         "this version yet; run without them for the IVW estimate and the "
-                         "robust yardsticks")
     result = per_instrument.analyse(
         table, columns, name, weights=weights or "first", confidence_level=level,
-        reps=DEFAULT_REPS if reps is None else reps, seed=seed, require_egger=True)
+        reps=DEFAULT_REPS if reps is None else reps, seed=seed, require_egger=True,
+        direct=direct, prior=prior, threshold=threshold, points=points)
     document = result.to_dict()
     if out is not None:
         write_outputs(out, result, {"per_instrument.json": to_json(document),

@@ -46,11 +46,14 @@ def published(
         None, "--direct", metavar="LOW:HIGH",
         help="Assumed range LOW:HIGH of the instrument's direct effect on the outcome, in outcome "
              "units or with suffix 'rf' (share of the reduced form). Write --direct=-0.1:0.1 "
-             "when LOW is negative."),
+             "when LOW is negative. With --per-instrument: one range for every instrument, "
+             "in outcome units or with suffix 'se' (multiples of each instrument's "
+             "reduced-form SE) or 'rf'."),
     prior_law: Optional[str] = typer.Option(
         None, "--prior", metavar="LAW",
         help="Prior of the direct effect: normal:MEAN:SD, uniform:LOW:HIGH or "
-             "triangular:LOW:MODE:HIGH."),
+             "triangular:LOW:MODE:HIGH. With --per-instrument: normal:MEAN:SD for every "
+             "instrument's direct effect, independently (suffix 'se' or 'rf' allowed)."),
     threshold: float = THRESHOLD,
     points: int = typer.Option(101, "--points", metavar="INTEGER", help=f"Curve points over scalings 0..1 of the range (2 to {MAX_POINTS:,})."),
     level: float = LEVEL,
@@ -70,8 +73,8 @@ def published(
         columns = {"first_stage": first_stage, "first_stage_se": first_stage_se,
                    "reduced_form": reduced_form, "reduced_form_se": reduced_form_se}
         run_table(per_instrument, columns, name, weights=weights, reps=reps, seed=seed,
-                  level=level, direct=direct, prior=prior_law, as_json=as_json, out=out,
-                  formats=chosen)
+                  level=level, direct=direct, prior=prior_law, threshold=threshold,
+                  points=points, as_json=as_json, out=out, formats=chosen)
         return
     for option, value in (("--estimate", estimate), ("--se", se), ("--first-stage", first_stage)):
         if value is None:

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+from sensiv.core.results import format_number
 from sensiv.present.figures.summary import SummaryItem
 from sensiv.present.tables import NONE_TEXT, TableRow
+from sensiv.sensitivity.per_instrument_sets import UNIT_WORDS
 from sensiv.sensitivity.published_table import CAUTION, PublishedTableResult
 from sensiv.sensitivity.robust_estimators import ASSUMPTIONS
 
@@ -39,7 +41,48 @@ def per_instrument_rows(res: PublishedTableResult) -> list[TableRow]:
     if y.mode is not None:
         rows.append(row("mode-based estimate", ASSUMPTIONS["mode"], y.mode.estimate, y.mode.se,
                         y.mode.ci))
-    return rows
+    return rows + sensitivity_rows(res)
+
+
+def _scale_text(scale) -> str:
+    if scale is None:
+        return "none within the scales examined"
+    if scale == 0:
+        return "0: no conclusion at zero direct effect"
+    return f"{format_number(scale)} × the stated range"
+
+
+def sensitivity_rows(res: PublishedTableResult) -> list[TableRow]:
+    """The direct-effect bounds, the prior interval and the invalid-count breakdown."""
+    level, out = res.confidence_level, []
+    d = res.direct
+    if d is not None:
+        words = (f"|direct effect| of every instrument within {d.allowance.text} "
+                 f"({UNIT_WORDS[d.allowance.unit]}); IVW weights held fixed")
+        out.append(TableRow("IVW with direct effects bounded per instrument", words, None, None,
+                            (d.identified_set,), (d.union_ci,), level, d.breakdown.scale,
+                            _scale_text(d.breakdown.scale), None, COVARIANCE, CAUTION))
+        ba = d.bias_aware
+        out.append(TableRow("bias-aware interval (IVW at the centre of the set)", words,
+                            ba.estimate, ba.se, None, (ba.ci,), level,
+                            d.breakdown.bias_aware_scale,
+                            _scale_text(d.breakdown.bias_aware_scale), None, COVARIANCE,
+                            CAUTION))
+    p = res.prior
+    if p is not None:
+        out.append(TableRow("prior interval, per-instrument direct effects",
+                            f"each direct effect ~ N({p.prior.mean:g}, {p.prior.sd:g}²) "
+                            f"({UNIT_WORDS[p.prior.unit]}), independent", p.center, None, None,
+                            (p.interval,), level, None, NONE_TEXT, None, COVARIANCE, CAUTION))
+    c = res.invalid
+    if c is not None and c.count is not None:
+        exact = "exact" if c.exact else f"certified, gap {c.gap}"
+        out.append(TableRow("invalid-count breakdown", f"any {c.count} of {c.instruments} "
+                            "instruments may have any direct effect", None, None, None, None,
+                            level, float(c.count), f"{c.count} of {c.instruments} instruments "
+                            f"({format_number(100 * c.share, 3)}%, {exact})", None, COVARIANCE,
+                            CAUTION))
+    return out
 
 
 def per_instrument_items(res: PublishedTableResult) -> list[SummaryItem]:
@@ -58,4 +101,17 @@ def per_instrument_items(res: PublishedTableResult) -> list[SummaryItem]:
         center = value.slope if key == "egger" else value.estimate
         out.append(SummaryItem(f"{label}, {level} CI", (ci,), ASSUMPTIONS[key],
                                "direct effect", "interval", center))
+    d = res.direct
+    if d is not None:
+        words = f"direct effects per instrument within {d.allowance.text}"
+        out += [SummaryItem("identified set", (d.identified_set,), words, "direct effect", "set"),
+                SummaryItem(f"union of {level} intervals", (d.union_ci,), words, "direct effect",
+                            "interval"),
+                SummaryItem(f"bias-aware {level} interval", (d.bias_aware.ci,), words,
+                            "direct effect", "interval", d.bias_aware.estimate)]
+    if res.prior is not None:
+        p = res.prior
+        out.append(SummaryItem(f"{level} prior interval", (p.interval,),
+                               f"direct effects ~ N({p.prior.mean:g}, {p.prior.sd:g}²)",
+                               "direct effect", "interval", p.center))
     return out

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from sensiv.core.results import format_number
+from sensiv.present.text_per_instrument_bounds import direct_lines, invalid_lines, prior_lines
 from sensiv.sensitivity.published_table import CAUTION, PublishedTableResult
 
 WEIGHT_WORDS = {"first": "first-order weights", "second": "second-order weights"}
@@ -54,12 +55,17 @@ def yardstick_lines(res: PublishedTableResult) -> list[str]:
     return out
 
 
+def sensitivity_lines(res: PublishedTableResult) -> list[str]:
+    """Direct-effect bounds, prior interval and invalid-count breakdown, as far as present."""
+    return [*direct_lines(res.direct), *prior_lines(res.prior), *invalid_lines(res.invalid)]
+
+
 def per_instrument_text(res: PublishedTableResult) -> str:
     """The plain-text summary printed by ``sensiv published --per-instrument``."""
     lines = [f"Per-instrument analysis of {res.table}: {res.associations.count} instruments",
              *ivw_lines(res), "Yardsticks (robust estimators, each under its own assumption):",
              *("  " + line for line in yardstick_lines(res)),
-             "Assumptions:", *(f"  - {a}" for a in res.assumptions()),
+             *sensitivity_lines(res), "Assumptions:", *(f"  - {a}" for a in res.assumptions()),
              *(f"Note: {n}" for n in res.notes), CAUTION]
     return "\n".join(lines)
 
@@ -75,6 +81,8 @@ def per_instrument_markdown(res: PublishedTableResult) -> str:
     parts = [f"# Per-instrument analysis of {res.table}", "",
              *(f"- {line.strip()}" for line in ivw_lines(res)), "",
              "## Yardsticks", "", *(f"- {line}" for line in yardstick_lines(res)), "",
+             *(["## Sensitivity", "", *(f"- {line.strip()}" for line in sensitivity_lines(res)),
+                ""] if sensitivity_lines(res) else []),
              "## Instruments", "",
              "| instrument | first stage | se | reduced form | se | ratio |",
              "| --- | --- | --- | --- | --- | --- |", *rows, "",

@@ -14,8 +14,13 @@ from sensiv.core.errors import InputError
 from sensiv.core.results import Presentable, describe
 from sensiv.sensitivity import robust_estimators as robust
 from sensiv.sensitivity.associations import IVW, WEIGHT_ORDERS, Associations, ivw
+from sensiv.sensitivity.bounds import DEFAULT_POINTS
+from sensiv.sensitivity.invalid_count import InvalidCount, invalid_count
+from sensiv.sensitivity.per_instrument import DirectEffects, direct_effects
+from sensiv.sensitivity.per_instrument_prior import PriorEffects, prior_effects
 
 KIND = "per_instrument"
+FOCUS = "exposure"
 
 CAUTION = ("Caution: genetic and other per-instrument associations can violate independence as "
            "well as exclusion (population structure, assortative mating, dynastic effects), "
@@ -31,8 +36,10 @@ class PublishedTableResult(Presentable):
     ``to_dict()`` keys: ``kind``, ``table``, ``instruments`` (one entry per instrument: name,
     associations, ratio estimate and its SE), ``ivw`` (the chosen weights), ``ivw_by_weights``
     (``first`` and ``second``), ``yardsticks`` (``egger``, ``weighted_median``, ``mode``; each
-    ``{"available": false, "reason": ...}`` when it cannot be computed), ``assumptions``,
-    ``caution``.
+    ``{"available": false, "reason": ...}`` when it cannot be computed), ``invalid_count``
+    (the invalid-count breakdown), ``direct`` (direct effects bounded per instrument, from
+    ``--direct``; ``null`` without), ``prior`` (the normal prior on the direct effects, from
+    ``--prior``; ``null`` without), ``assumptions``, ``caution``.
     """
 
     table: str
@@ -43,11 +50,14 @@ class PublishedTableResult(Presentable):
     ivw_second: IVW
     yardsticks: robust.Yardsticks
     confidence_level: float
+    invalid: InvalidCount | None = None
+    direct: DirectEffects | None = None
+    prior: PriorEffects | None = None
     notes: tuple[str, ...] = field(default=())
 
     @property
     def focus(self) -> str:
-        return "treatment"
+        return FOCUS
 
     def assumptions(self) -> list[str]:
         out = [
@@ -63,6 +73,10 @@ class PublishedTableResult(Presentable):
                            ("mode", yard.mode)):
             if value is not None:
                 out.append(f"for the {robust.TITLES[key]}: {robust.ASSUMPTIONS[key]}")
+        for part, words in ((self.direct, "direct-effect bounds"), (self.prior, "prior interval"),
+                            (self.invalid, "invalid-count breakdown")):
+            if part is not None:
+                out += [f"for the {words}: {a}" for a in part.assumptions()]
         return out
 
     def to_dict(self) -> dict:
@@ -82,6 +96,9 @@ class PublishedTableResult(Presentable):
                 "ivw_by_weights": {"first": self.ivw_first.to_dict(),
                                    "second": self.ivw_second.to_dict()},
                 "yardsticks": self.yardsticks.to_dict(), "instruments": instruments,
+                "invalid_count": None if self.invalid is None else self.invalid.to_dict(),
+                "direct": None if self.direct is None else self.direct.to_dict(),
+                "prior": None if self.prior is None else self.prior.to_dict(),
                 "assumptions": self.assumptions(), "caution": CAUTION,
                 "notes": list(self.notes)}
 
@@ -89,23 +106,45 @@ class PublishedTableResult(Presentable):
         return describe(self)
 
 
+def one_text(value, option: str) -> str | None:
+    """A ``--direct`` / ``--prior`` value given once (a recipe gives a list of strings)."""
+    if value is None or isinstance(value, str):
+        return value
+    values = list(value)
+    if len(values) != 1:
+        raise InputError(f"{option} takes one value with a per-instrument table (one range or "
+                         f"prior for every instrument); got {len(values)}")
+    return str(values[0])
+
+
 def published_table(assoc: Associations, *, table: str = "the table", weights: str = "first",
                     confidence_level: float = 0.95, reps: int = robust.DEFAULT_REPS,
                     seed: int | None = None, phi: float = robust.DEFAULT_PHI,
-                    require_egger: bool = False) -> PublishedTableResult:
-    """IVW (both weight orders) and the yardsticks; ``require_egger`` refuses J < 3."""
+                    require_egger: bool = False, direct=None, prior=None,
+                    threshold: float = 0.0, points: int = DEFAULT_POINTS,
+                    count_invalid: bool = True) -> PublishedTableResult:
+    """IVW (both weight orders), the yardsticks, the invalid-count breakdown and, when given,
+    the direct-effect bounds (``direct``: one range such as ``"-2:2se"``) and the prior
+    interval (``prior``: ``"normal:MEAN:SD"``); ``require_egger`` refuses J < 3."""
     if weights not in WEIGHT_ORDERS:
         raise InputError(f"--weights {weights!r} is not one of {', '.join(WEIGHT_ORDERS)}; "
                          "give first (the reduced-form SE only) or second (also the "
                          "first-stage SE)")
     if require_egger and assoc.count < robust.MIN_INSTRUMENTS:
         robust.egger(assoc, confidence_level)
+    direct, prior = one_text(direct, "--direct"), one_text(prior, "--prior")
     first = ivw(assoc, "first", confidence_level)
     second = ivw(assoc, "second", confidence_level)
     yard = robust.yardsticks(assoc, weights, confidence_level, reps, seed, phi)
+    common = {"threshold": threshold, "confidence_level": confidence_level, "order": weights}
+    bounds = (None if direct is None else
+              direct_effects(assoc, direct, points=points, focus=FOCUS, **common))
+    law = None if prior is None else prior_effects(assoc, prior, focus=FOCUS, **common)
+    count = invalid_count(assoc, **common) if count_invalid else None
     notes = []
     if assoc.count < robust.MIN_INSTRUMENTS:
         notes.append(f"the robust yardsticks need at least {robust.MIN_INSTRUMENTS} "
                      f"instruments; the table has {assoc.count}")
     return PublishedTableResult(table, assoc, weights, first if weights == "first" else second,
-                                first, second, yard, confidence_level, tuple(notes))
+                                first, second, yard, confidence_level, count, bounds, law,
+                                tuple(notes))

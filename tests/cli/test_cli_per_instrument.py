@@ -134,15 +134,10 @@ def test_recipe_runs_the_per_instrument_kind(tmp_path):
     assert repr(cli["yardsticks"]["weighted_median"]["se"]) in written
 
 
-def test_ivw_matches_2sls_on_individual_level_data():
-    # common practice: with independent instruments IVW ≈ 2SLS (Burgess, Butterworth &
-    # Thompson 2013); simulation with seed 17, J = 10 instruments, n = 20000, one sample
-    from sensiv import data as sdata
-    from sensiv.estimation import iv
-    from sensiv.sensitivity.associations import check_associations, ivw
-
-    rng = np.random.default_rng(17)
-    n, j, beta = 20_000, 10, 0.5
+def simulated_associations(seed=17, n=20_000, j=10, beta=0.5):
+    """Individual-level data with J independent instruments (seed stated) and the
+    per-instrument associations by OLS of x and of y on each instrument alone."""
+    rng = np.random.default_rng(seed)
     z = rng.binomial(2, 0.3, (n, j)).astype(float)
     u = rng.normal(size=n)
     x = z @ rng.uniform(0.1, 0.3, j) + u + rng.normal(size=n)
@@ -155,10 +150,60 @@ def test_ivw_matches_2sls_on_individual_level_data():
             resid = target - target.mean() - slope * zc
             b.append(slope)
             s.append(np.sqrt(resid @ resid / (n - 2) / (zc @ zc)))
-    fit_ivw = ivw(check_associations(first_stage=bx, first_stage_se=sx, reduced_form=by,
-                                     reduced_form_se=sy))
     frame = pd.DataFrame({"y": y, "x": x, **{f"z{k}": z[:, k] for k in range(j)}})
-    tsls = iv.fit(frame, sdata.Spec("y", ["x"], [f"z{k}" for k in range(j)]), se="classic")
+    table = pd.DataFrame({"bx": bx, "sx": sx, "by": by, "sy": sy})
+    return frame, table
+
+
+def test_ivw_matches_2sls_on_individual_level_data():
+    # common practice: with independent instruments IVW ≈ 2SLS (Burgess, Butterworth &
+    # Thompson 2013); simulation with seed 17, J = 10 instruments, n = 20000, one sample
+    from sensiv import data as sdata
+    from sensiv.estimation import iv
+    from sensiv.sensitivity.associations import check_associations, ivw
+
+    frame, t = simulated_associations()
+    fit_ivw = ivw(check_associations(first_stage=t.bx, first_stage_se=t.sx,
+                                     reduced_form=t.by, reduced_form_se=t.sy))
+    spec = sdata.Spec("y", ["x"], [f"z{k}" for k in range(10)])
+    tsls = iv.fit(frame, spec, se="classic")
     est, se = tsls.tsls.value("x"), tsls.tsls.std_error("x")
     assert abs(fit_ivw.estimate - est) < se
     assert fit_ivw.se_fixed == pytest.approx(se, rel=0.25)
+
+
+@pytest.mark.filterwarnings("ignore::UserWarning")
+def test_direct_effect_bounds_track_sweep_on_the_same_data(tmp_path):
+    # the same box |α_j| ≤ 0.02 on every instrument: the per-instrument (IVW) identified set
+    # and union track sensiv's sweep (2SLS) on the individual data within one 2SLS se
+    # (common practice: IVW ≈ 2SLS with independent instruments; simulation, seed 17)
+    from sensiv import data as sdata
+    from sensiv.sensitivity.bounds import sweep
+
+    frame, t = simulated_associations()
+    path = write(tmp_path, t)
+    doc = json.loads(invoke("--per-instrument", path, "--first-stage", "bx", "--first-stage-se",
+                            "sx", "--reduced-form", "by", "--reduced-form-se", "sy",
+                            "--direct=-0.02:0.02", "--seed", "1", "--reps", "50",
+                            "--json").stdout)
+    spec = sdata.Spec("y", ["x"], [f"z{k}" for k in range(10)])
+    swept = sweep(frame, spec, direct=["-0.02:0.02"] * 10, se="classic")
+    tol = 0.5 * swept.se
+    for key in ("identified_set", "union_ci"):
+        mine, theirs = doc["direct"][key], getattr(swept, key).to_list()
+        assert mine == pytest.approx(theirs, abs=tol), key
+    # and the widths grow with the allowance in both
+    assert doc["direct"]["identified_set"][1] - doc["direct"]["identified_set"][0] > 0
+
+
+def test_direct_and_prior_with_a_table():
+    result = invoke("--per-instrument", TABLE, *COLUMNS, "--seed", "2", "--reps", "50",
+                    "--direct=-2:2se", "--prior", "normal:0:1se", "--json")
+    assert result.exit_code == 0, result.output
+    doc = json.loads(result.stdout)
+    union, ident = doc["direct"]["union_ci"], doc["direct"]["identified_set"]
+    assert union[0] <= ident[0] <= ident[1] <= union[1]
+    assert doc["prior"]["interval"][0] < doc["ivw"]["estimate"] < doc["prior"]["interval"][1]
+    assert doc["invalid_count"]["instruments"] == 25
+    bad = invoke("--per-instrument", TABLE, *COLUMNS, "--direct=-2:2sd")
+    assert bad.exit_code == 2 and "unit" in bad.output
