@@ -6,7 +6,9 @@ from __future__ import annotations
 from sensiv.analyses.kind import AnalysisKind
 from sensiv.core.errors import InputError
 from sensiv.data.per_instrument import ROLES, read_per_instrument
-from sensiv.present import rows_per_instrument, text_per_instrument
+from sensiv.present import rows_per_instrument, text_published_table
+from sensiv.present.figures.per_instrument import (per_instrument_curve,
+                                                   per_instrument_prior_map)
 from sensiv.present.figures.scatter import per_instrument_scatter
 from sensiv.sensitivity import published_table, robust_estimators
 from sensiv.sensitivity.associations import check_associations
@@ -49,15 +51,21 @@ def run(context, options) -> published_table.PublishedTableResult:
 
 
 def draw(result, note):
-    """The per-instrument scatter with the fitted lines."""
-    return {"scatter": per_instrument_scatter(result, note=note)}
+    """The per-instrument scatter with the fitted lines; with ``--direct`` the sensitivity
+    curve with its breakdown, with ``--prior`` the map over normal priors (μ, τ)."""
+    out = {"scatter": per_instrument_scatter(result, note=note)}
+    if result.direct is not None:
+        out["curve"] = per_instrument_curve(result.direct, note=note)
+    if result.prior is not None:
+        out["prior-map"] = per_instrument_prior_map(result.prior, note=note)
+    return out
 
 
 ENTRY = AnalysisKind(
     name="per_instrument", result_type=published_table.PublishedTableResult,
     title="Per-instrument analysis of published associations",
     table_title="IVW and robust yardsticks from per-instrument associations",
-    text=text_per_instrument.per_instrument_text, rows=rows_per_instrument.per_instrument_rows,
+    text=text_published_table.per_instrument_text, rows=rows_per_instrument.per_instrument_rows,
     figures=draw, summary_rows=rows_per_instrument.per_instrument_items,
     headline=lambda r: r.ivw.ci_random, options=OPTIONS, run=run, needs_data=False,
     note_heading="per-instrument analysis of published associations")

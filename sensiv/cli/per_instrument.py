@@ -66,7 +66,7 @@ def run_table(table: Path, columns: dict, name: Optional[str], *, weights: Optio
               formats: tuple[str, ...]) -> None:
     """Run the per-instrument analysis and print or write it."""
     from sensiv.analyses import per_instrument
-    from sensiv.present.text_per_instrument import per_instrument_markdown
+    from sensiv.present.text_published_table import per_instrument_markdown
     from sensiv.present.writer import to_json
     from sensiv.sensitivity.robust_estimators import DEFAULT_REPS
 

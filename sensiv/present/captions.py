@@ -89,6 +89,20 @@ def _per_instrument_scatter(result) -> str:
             "the origin.")
 
 
+def _per_instrument_curve(result) -> str:
+    d = result.direct
+    return (f"How the IVW estimate's identified set, union of {_pct(result)} intervals and "
+            f"bias-aware interval widen as the bound on every instrument's direct effect grows "
+            f"from zero to beyond the stated range {d.allowance.text}, with the breakdown of "
+            f"'{d.breakdown.conclusion}' marked.")
+
+
+def _per_instrument_prior_map(result) -> str:
+    return (f"Where the {_pct(result)} prior interval of the IVW estimate keeps the conclusion, "
+            "over normal priors on every instrument's direct effect with mean μ and SD τ; "
+            "the stated prior is marked.")
+
+
 _CAPTIONS = {
     ("fit", "summary"): _fit,
     ("sweep", "curve"): _sweep_curve,
@@ -100,6 +114,8 @@ _CAPTIONS = {
     ("discrete", "curve"): _discrete,
     ("calibrate", "yardsticks"): _calibrate,
     ("per_instrument", "scatter"): _per_instrument_scatter,
+    ("per_instrument", "curve"): _per_instrument_curve,
+    ("per_instrument", "prior-map"): _per_instrument_prior_map,
 }
 
 SUMMARY_CAPTION = "Every analysis of this study as one interval, each under its own assumption."
