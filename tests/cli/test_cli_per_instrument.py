@@ -207,3 +207,14 @@ def test_direct_and_prior_with_a_table():
     assert doc["invalid_count"]["instruments"] == 25
     bad = invoke("--per-instrument", TABLE, *COLUMNS, "--direct=-2:2sd")
     assert bad.exit_code == 2 and "unit" in bad.output
+
+
+def test_parquet_table_gives_the_csv_numbers(tmp_path):
+    # the same table as Parquet (the data readers' own formats) gives the same IVW
+    path = tmp_path / "t.parquet"
+    pd.read_csv(TABLE).to_parquet(path)
+    one = json.loads(invoke("--per-instrument", path, *COLUMNS, "--seed", "1", "--reps", "20",
+                            "--json").stdout)
+    two = json.loads(invoke("--per-instrument", TABLE, *COLUMNS, "--seed", "1", "--reps", "20",
+                            "--json").stdout)
+    assert one["ivw"] == two["ivw"] and one["yardsticks"] == two["yardsticks"]

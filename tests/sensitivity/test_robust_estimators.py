@@ -171,3 +171,45 @@ def test_bootstrap_rows_match_one_at_a_time():
     theta, w = rng.normal(0, 1, (20, 9)), rng.uniform(0.1, 3, 9)
     rows = robust.weighted_median_rows(theta, w)
     assert rows == pytest.approx([paper_weighted_median(t, w) for t in theta], abs=1e-10)
+
+
+def test_egger_is_invariant_to_the_orientation_of_an_instrument():
+    # the paper orients every instrument so b_x > 0 first; flipping both signs of one
+    # instrument's associations changes nothing (Bowden, Davey Smith & Burgess 2015)
+    a = random_table(31)
+    flip = np.where(np.arange(a.count) % 3 == 0, -1.0, 1.0)
+    b = check_associations(first_stage=a.first_stage * flip, first_stage_se=a.first_stage_se,
+                           reduced_form=a.reduced_form * flip, reduced_form_se=a.reduced_form_se)
+    one, two = robust.egger(a), robust.egger(b)
+    assert two.slope == pytest.approx(one.slope, abs=1e-12)
+    assert two.intercept == pytest.approx(one.intercept, abs=1e-12)
+    assert robust.weighted_median_value(a.ratios, a.ratio_se() ** -2) == pytest.approx(
+        robust.weighted_median_value(b.ratios, b.ratio_se() ** -2), abs=1e-12)
+
+
+def test_scaling_the_outcome_scales_every_yardstick():
+    # invariance: outcome in other units (× 10) scales slope, intercept and estimates by 10
+    # (common practice, no source)
+    a = random_table(41)
+    b = check_associations(first_stage=a.first_stage, first_stage_se=a.first_stage_se,
+                           reduced_form=10 * a.reduced_form, reduced_form_se=10 * a.reduced_form_se)
+    assert robust.egger(b).slope == pytest.approx(10 * robust.egger(a).slope, rel=1e-10)
+    assert robust.egger(b).intercept_se == pytest.approx(10 * robust.egger(a).intercept_se,
+                                                         rel=1e-10)
+    wa, wb = robust.weighted_median(a, seed=1, reps=50), robust.weighted_median(b, seed=1, reps=50)
+    assert wb.estimate == pytest.approx(10 * wa.estimate, rel=1e-10)
+    assert wb.se == pytest.approx(10 * wa.se, rel=1e-8)
+    ma, mb = robust.mode_based(a, seed=1, reps=20), robust.mode_based(b, seed=1, reps=20)
+    assert mb.estimate == pytest.approx(10 * ma.estimate, rel=1e-6)
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_bootstrap_mode_path_matches_the_exact_grid(seed):
+    # the bootstrap rows start from an FFT-binned density; every row must climb to the same
+    # maximum as from the exact grid (designed property of the module's two starts)
+    rng = np.random.default_rng(seed)
+    theta = np.concatenate([rng.normal(0.4, 0.05, 12), rng.normal(1.5, 0.4, 7)])
+    w = rng.uniform(0.5, 2, theta.size)
+    rows = theta + 0.08 * rng.standard_normal((200, theta.size))
+    assert robust.mode_rows(rows, w) == pytest.approx(
+        robust.mode_rows(rows, w, exact_start=True), abs=1e-9)
