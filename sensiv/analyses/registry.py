@@ -6,14 +6,15 @@ Adding an analysis = one computing module in its layer + one entry module here (
 
 from __future__ import annotations
 
-from sensiv.analyses import adaptive, calibrate, corrbound, discrete, fit, prior, published, sweep
+from sensiv.analyses import (adaptive, calibrate, corrbound, discrete, fit, per_instrument, prior,
+                             published, sweep)
 from sensiv.analyses.kind import AnalysisKind
 from sensiv.core.errors import InputError
 
 # Kinds a recipe can run and a report shows, in the order the documentation lists them.
 KINDS: dict[str, AnalysisKind] = {e.name: e for e in (
     fit.ENTRY, sweep.ENTRY, prior.ENTRY, corrbound.ENTRY, discrete.ENTRY, published.ENTRY,
-    calibrate.ENTRY)}
+    calibrate.ENTRY, per_instrument.ENTRY)}
 # Parts of an analysis that have their own result object (and so their own text).
 PARTS: dict[str, AnalysisKind] = {adaptive.ENTRY.name: adaptive.ENTRY}
 _BY_TYPE = {e.result_type: e for e in (*KINDS.values(), *PARTS.values())}

@@ -8,6 +8,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from sensiv.demo.generators import CSV_DECIMALS, irrigation, nudge, published_table
+from sensiv.demo.per_instrument import per_instrument_csv
 from sensiv.demo.recipe import demo_recipe
 
 if TYPE_CHECKING:  # pandas is imported inside the functions that need it
@@ -15,8 +16,9 @@ if TYPE_CHECKING:  # pandas is imported inside the functions that need it
 
 
 def write_examples(directory: str | Path) -> list[Path]:
-    """Write ``irrigation.csv``, ``nudge.csv``, ``published_table.json`` and the demo recipe
-    ``demo.toml`` into ``directory``.
+    """Write ``irrigation.csv``, ``nudge.csv``, ``published_table.json``, the demo recipe
+    ``demo.toml`` and the invented per-instrument table ``per_instrument.csv`` into
+    ``directory``.
 
     Numbers are written with the fixed decimals of ``CSV_DECIMALS`` and ``\\n`` line endings,
     so the files are identical byte for byte on every run with the same numpy.
@@ -29,7 +31,7 @@ def write_examples(directory: str | Path) -> list[Path]:
     Returns
     -------
     list of pathlib.Path
-        The three files written, in the order above.
+        The files written, in the order above.
     """
     directory = Path(directory)
     directory.mkdir(parents=True, exist_ok=True)
@@ -43,6 +45,9 @@ def write_examples(directory: str | Path) -> list[Path]:
     paths.append(path)
     path = directory / "demo.toml"
     path.write_bytes(demo_recipe().encode("utf-8"))
+    paths.append(path)
+    path = directory / "per_instrument.csv"
+    path.write_bytes(per_instrument_csv())
     paths.append(path)
     return paths
 

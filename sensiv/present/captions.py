@@ -81,6 +81,28 @@ def _calibrate(result) -> str:
             "magnitudes, not estimates of the true direct effect.")
 
 
+def _per_instrument_scatter(result) -> str:
+    return (f"Each of the {result.associations.count} instruments' reduced-form association "
+            "against its first-stage association (oriented so the first stage is positive, "
+            "with ±1 se bars), and the fitted lines: IVW through the origin, MR-Egger with its "
+            "intercept, and the weighted median and mode-based estimates as slopes through "
+            "the origin.")
+
+
+def _per_instrument_curve(result) -> str:
+    d = result.direct
+    return (f"How the IVW estimate's identified set, union of {_pct(result)} intervals and "
+            f"bias-aware interval widen as the bound on every instrument's direct effect grows "
+            f"from zero to beyond the stated range {d.allowance.text}, with the breakdown of "
+            f"'{d.breakdown.conclusion}' marked.")
+
+
+def _per_instrument_prior_map(result) -> str:
+    return (f"Where the {_pct(result)} prior interval of the IVW estimate keeps the conclusion, "
+            "over normal priors on every instrument's direct effect with mean μ and SD τ; "
+            "the stated prior is marked.")
+
+
 _CAPTIONS = {
     ("fit", "summary"): _fit,
     ("sweep", "curve"): _sweep_curve,
@@ -91,6 +113,9 @@ _CAPTIONS = {
     ("corrbound", "curve"): _corrbound,
     ("discrete", "curve"): _discrete,
     ("calibrate", "yardsticks"): _calibrate,
+    ("per_instrument", "scatter"): _per_instrument_scatter,
+    ("per_instrument", "curve"): _per_instrument_curve,
+    ("per_instrument", "prior-map"): _per_instrument_prior_map,
 }
 
 SUMMARY_CAPTION = "Every analysis of this study as one interval, each under its own assumption."

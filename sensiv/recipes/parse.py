@@ -164,7 +164,7 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
                                        f"{data['absorb']!r} in {where}.data): remove absorb "
                                        "from this study's [data], or put the discrete analysis "
                                        "in a study of its own without absorb")
-        for key in ("polytope", "prior_file", "counts"):
+        for key in ("polytope", "prior_file", "counts", "per_instrument"):
             if key in a.options:
                 resolved = (base / a.options[key]).resolve()
                 if not resolved.is_file():

@@ -222,6 +222,12 @@ def _check_polytope_lp(instruments: tuple[str, ...], a: np.ndarray, b: np.ndarra
 def read_polytope(path, instruments: Sequence[str]) -> DirectSet:
     """Read a polytope from a CSV file: one column per instrument (header = instrument names)
     plus a column ``bound``; each row states ``Σ_k coef_k·γ_k ≤ bound``."""
+    return polytope_set(instruments, *polytope_rows(path, instruments))
+
+
+def polytope_rows(path, instruments: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
+    """The rows ``(A, b)`` of a polytope CSV file (format of :func:`read_polytope`), checked
+    for the columns and finite numbers but not for boundedness."""
     import pandas as pd
 
     p = Path(path)
@@ -242,8 +248,7 @@ def read_polytope(path, instruments: Sequence[str]) -> DirectSet:
     if values.isna().any().any() or not np.isfinite(values.to_numpy()).all():
         raise InputError(f"polytope file '{path}' has non-numeric or missing entries; every "
                          "cell must be a finite number")
-    return polytope_set(instruments, values[list(instruments)].to_numpy(float),
-                        values["bound"].to_numpy(float))
+    return values[list(instruments)].to_numpy(float), values["bound"].to_numpy(float)
 
 
 def scale_from_moments(moments: Moments, outcome: str, instruments: Sequence[str],

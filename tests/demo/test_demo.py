@@ -55,7 +55,7 @@ def test_other_seed_gives_other_frame(generator):
 def test_shipped_examples_match_generator_byte_for_byte(tmp_path):
     written = demo.write_examples(tmp_path)
     assert [p.name for p in written] == ["irrigation.csv", "nudge.csv", "published_table.json",
-                                         "demo.toml"]
+                                         "demo.toml", "per_instrument.csv"]
     for path in written:
         shipped = EXAMPLES / path.name
         assert shipped.exists(), f"{shipped} missing: run `python -m sensiv.demo examples`"
@@ -82,6 +82,7 @@ def test_module_entry_point_writes_files(tmp_path, capsys):
         "demo.toml",
         "irrigation.csv",
         "nudge.csv",
+        "per_instrument.csv",
         "published_table.json",
     ]
 

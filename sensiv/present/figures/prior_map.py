@@ -20,8 +20,6 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
     -------
     matplotlib.figure.Figure
     """
-    import numpy as np
-
     pm = prior_result.prior_map
     if pm is None:
         raise InputError("this prior result has no prior map; recompute it with "
@@ -29,41 +27,8 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
     with style_context():
         canvas = make_canvas(ax)
         ax = canvas.ax
-        margin = pm.margin
-        theta = format_number(pm.threshold)
         level = pct(prior_result.confidence_level)
-        region = pm.region
-        # three regions from the two smooth ends (contours of the ends, not of the codes):
-        # the ground "contains", above it the side of 2SLS ("kept") and the other ("reversed")
-        ax.set_facecolor(PALE_ORANGE)
-        above, below = pm.lower - pm.threshold, pm.threshold - pm.upper
-        kept, reversed_ = (above, below) if pm.estimate >= pm.threshold else (below, above)
-        top = 2.0 * float(max(np.abs(above).max(), np.abs(below).max()) or 1.0)
-        for field, colour, gid in ((kept, PALE_BLUE, "kept"), (reversed_, MID_ORANGE,
-                                                                "reversed")):
-            if field.max() > 0.0:
-                ax.contourf(pm.mean, pm.sd, field, levels=[0.0, top], colors=[colour],
-                            zorder=0).set_gid(gid)
-        if margin.min() < 0.0 < margin.max():
-            contour = ax.contour(pm.mean, pm.sd, margin, levels=[0.0], colors=[BLUE],
-                                 linewidths=1.1, zorder=2)
-            contour.set_gid("boundary")
-        ax.plot([], [], color=BLUE, linewidth=1.1, label="boundary")
-        side = ">" if pm.estimate >= pm.threshold else "<"
-        names = region_names(level, theta, side)
-        for code, colour in ((1, PALE_BLUE), (0, PALE_ORANGE), (-1, MID_ORANGE)):
-            if code in (1, 0) or (region == code).any():
-                ax.fill([], [], facecolor=colour, label=names[code])
-        (given,) = ax.plot([pm.given[0]], [pm.given[1]], marker="X", markersize=6,
-                           color=ORANGE, markeredgecolor=WHITE, markeredgewidth=0.5,
-                           linestyle="none", zorder=5, clip_on=False, label="analysed prior")
-        given.set_gid("given")
-        ax.axvline(0.0, color=MID_GREY, linewidth=0.5, zorder=1)
-        from matplotlib.ticker import MaxNLocator
-
-        ax.xaxis.set_major_locator(MaxNLocator(nbins=5))     # no overlapping tick labels
-        ax.set_xlim(pm.mean[0], pm.mean[-1])
-        ax.set_ylim(pm.sd[0], pm.sd[-1])
+        names = draw_regions(ax, pm, level)
         if pm.axis == "direct effect":
             z = prior_result.instruments[0]
             ax.set_xlabel(f"prior mean of the direct effect of {z}")
@@ -89,6 +54,49 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
         return finish(canvas, caption, note=note,
                       legend_order=["analysed prior", "boundary", names[1], names[0],
                                     names[-1]])
+
+
+def draw_regions(ax, pm, level: str) -> dict[int, str]:
+    """Draw a :class:`~sensiv.sensitivity.prior.PriorMap` into ``ax``: the three regions, the
+    boundary, the analysed prior and the zero line, with the axis limits; return the region
+    names (legend labels, by code) for the caller's ``legend_order``."""
+    import numpy as np
+
+    margin = pm.margin
+    theta = format_number(pm.threshold)
+    region = pm.region
+    # three regions from the two smooth ends (contours of the ends, not of the codes):
+    # the ground "contains", above it the side of 2SLS ("kept") and the other ("reversed")
+    ax.set_facecolor(PALE_ORANGE)
+    above, below = pm.lower - pm.threshold, pm.threshold - pm.upper
+    kept, reversed_ = (above, below) if pm.estimate >= pm.threshold else (below, above)
+    top = 2.0 * float(max(np.abs(above).max(), np.abs(below).max()) or 1.0)
+    for field, colour, gid in ((kept, PALE_BLUE, "kept"), (reversed_, MID_ORANGE,
+                                                            "reversed")):
+        if field.max() > 0.0:
+            ax.contourf(pm.mean, pm.sd, field, levels=[0.0, top], colors=[colour],
+                        zorder=0).set_gid(gid)
+    if margin.min() < 0.0 < margin.max():
+        contour = ax.contour(pm.mean, pm.sd, margin, levels=[0.0], colors=[BLUE],
+                             linewidths=1.1, zorder=2)
+        contour.set_gid("boundary")
+    ax.plot([], [], color=BLUE, linewidth=1.1, label="boundary")
+    side = ">" if pm.estimate >= pm.threshold else "<"
+    names = region_names(level, theta, side)
+    for code, colour in ((1, PALE_BLUE), (0, PALE_ORANGE), (-1, MID_ORANGE)):
+        if code in (1, 0) or (region == code).any():
+            ax.fill([], [], facecolor=colour, label=names[code])
+    (given,) = ax.plot([pm.given[0]], [pm.given[1]], marker="X", markersize=6,
+                       color=ORANGE, markeredgecolor=WHITE, markeredgewidth=0.5,
+                       linestyle="none", zorder=5, clip_on=False, label="analysed prior")
+    given.set_gid("given")
+    ax.axvline(0.0, color=MID_GREY, linewidth=0.5, zorder=1)
+    from matplotlib.ticker import MaxNLocator
+
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=5))     # no overlapping tick labels
+    ax.set_xlim(pm.mean[0], pm.mean[-1])
+    ax.set_ylim(pm.sd[0], pm.sd[-1])
+    return names
 
 
 def region_names(level: str, theta: str, side: str) -> dict[int, str]:
