@@ -21,12 +21,15 @@ Method (exact, finite): minimise ``Σ d_j`` over ``d = 1 − x ∈ \{0,1\}^J`` s
 approximation ``c'x − z(√B_k + (b'x − B_k)/(2√B_k)) ≤ 0`` for tangent points ``B_k`` (a tangent
 of the concave ``√`` lies above it, so every truly failing ``x`` satisfies every cut: the
 programme's optimum is a lower bound on ``k_min``).  Each mixed-integer linear programme is
-solved by HiGHS (``scipy.optimize.milp``, relative gap 0); when its solution truly fails it is
-optimal, otherwise the tangent at its ``B = b'x`` is added (Kelley's cutting planes), or, if that
-point was cut at already, a no-good cut that removes that one ``x``.  A greedy sequence of drops
-gives an upper bound from the start.  With an iteration or time limit the result says
-``exact = false`` and reports the certified count (the largest ``s`` proven safe, ``LB − 1``),
-the upper bound and the gap.  Coefficients are scaled by ``Σb`` (``b'x ∈ [0, 1]``).
+solved by HiGHS (``scipy.optimize.milp``, relative gap 0, presolve off: on these dense rows
+HiGHS's presolve takes seconds and does not heed the time limit); when its solution truly
+fails it is optimal, otherwise the tangent at its ``B = b'x`` is added (Kelley's cutting
+planes), or, if that point was cut at already, a no-good cut that removes that one ``x``.  A
+greedy sequence of drops gives an upper bound from the start, and one sort a certified lower
+bound (:func:`sorted_bound`); when they meet no programme is solved.  With an iteration or time
+limit the result says ``exact = false`` and reports the certified count (the largest ``s``
+proven safe, ``LB − 1``), the upper bound and the gap.  Coefficients are scaled by ``Σb``
+(``b'x ∈ [0, 1]``).
 """
 
 from __future__ import annotations
@@ -44,6 +47,7 @@ from sensiv.sensitivity.associations import Associations, WeightOrder, ivw
 from sensiv.sensitivity.bounds import conclusion_text
 
 METHOD = "MILP outer approximation (Kelley cutting planes, HiGHS via scipy.optimize.milp)"
+METHOD_BOUNDS = "a one-sort lower bound met a greedy set of drops (no programme needed)"
 MAX_ITERATIONS = 200
 TIME_LIMIT = 60.0           # seconds over all programmes
 INITIAL_TANGENTS = 12       # tangent points spread geometrically over (0, 1]
@@ -134,6 +138,17 @@ def greedy_drops(problem: Problem, dropped: np.ndarray | None = None) -> np.ndar
     return 1.0 - kept
 
 
+def sorted_bound(problem: Problem) -> int:
+    """A certified lower bound on ``k_min`` by one sort: dropping any ``k`` instruments leaves
+    ``c'x ≥ Σc − (k largest c_j)`` and ``b'x ≤ 1 − (k smallest b_j)``, so while
+    ``Σc − top_k(c) − z√(1 − bottom_k(b)) > 0`` every set of ``k`` drops keeps the conclusion."""
+    top = np.concatenate([[0.0], np.cumsum(np.sort(problem.c)[::-1])])
+    low = np.concatenate([[0.0], np.cumsum(np.sort(problem.b))])
+    worst = problem.c.sum() - top - problem.z * np.sqrt(np.maximum(1.0 - low, 0.0))
+    failing = np.flatnonzero(worst <= 0.0)
+    return int(failing[0]) if failing.size else problem.c.size
+
+
 def _tangent_row(problem: Problem, point: float) -> tuple[np.ndarray, float]:
     """The cut at ``B_k = point`` written in the drops ``d``: ``row @ d ≤ rhs``."""
     g = problem.z / (2.0 * math.sqrt(point))
@@ -147,7 +162,8 @@ def _solve(rows: list[np.ndarray], rhs: list[float], size: int, seconds: float):
     res = milp(np.ones(size), constraints=[LinearConstraint(np.array(rows), -np.inf,
                                                             np.array(rhs))],
                integrality=np.ones(size), bounds=Bounds(0.0, 1.0),
-               options={"time_limit": max(seconds, 0.01), "mip_rel_gap": 0.0, "disp": False})
+               options={"time_limit": max(seconds, 0.01), "mip_rel_gap": 0.0, "disp": False,
+                        "presolve": False})
     bound = getattr(res, "mip_dual_bound", None)
     if res.status == 0:
         bound = res.fun if bound is None or not math.isfinite(bound) else max(bound, res.fun)
@@ -162,7 +178,7 @@ def min_drops(problem: Problem, max_iterations: int = MAX_ITERATIONS,
     ``lower == upper``; ``witness`` the drops of a failing set of size ``upper``."""
     start = time.monotonic()
     witness = greedy_drops(problem)
-    upper, lower = int(witness.sum()), 1
+    upper, lower = int(witness.sum()), max(1, sorted_bound(problem))
     rows, rhs, points = [], [], []
     for point in np.geomspace(max(float(problem.b.min()), 1e-12), 1.0, INITIAL_TANGENTS):
         row, r = _tangent_row(problem, float(point))
@@ -231,5 +247,6 @@ def invalid_count(assoc: Associations, *, threshold: float = 0.0,
                                                   float(time_limit))
     names = tuple(name for name, d in zip(assoc.names, witness) if d > 0.5)
     count = lower - 1
+    method = METHOD_BOUNDS if iterations == 0 and lower == upper else METHOD
     return InvalidCount(count, count / n, n, lower == upper, upper - 1, upper - lower, names,
-                        float(threshold), words, confidence_level, order, iterations)
+                        float(threshold), words, confidence_level, order, iterations, method)

@@ -54,12 +54,21 @@ CASES = [(seed, count, beta, spread) for seed, (count, beta, spread) in enumerat
      (12, 0.2, 0.08), (9, -0.15, 0.05), (11, 0.08, 0.02), (7, 0.3, 0.1), (12, 0.05, 0.01)])]
 
 
+@pytest.mark.parametrize("milp_only", [False, True])
 @pytest.mark.parametrize("seed, count, beta, spread", CASES)
-def test_milp_equals_enumeration(seed, count, beta, spread):
+def test_milp_equals_enumeration(seed, count, beta, spread, milp_only, monkeypatch):
+    # milp_only: without the one-sort lower bound, so the programmes decide
+    if milp_only:
+        monkeypatch.setattr(ic, "sorted_bound", lambda problem: 1)
     assoc = table(seed, count=count, beta=beta, spread=spread, sign_mix=seed % 2 == 1)
     res = ic.invalid_count(assoc)
+    if milp_only and res.count is not None and res.count > 0:
+        assert res.iterations >= 1 and res.method == ic.METHOD
     assert res.exact and res.gap == 0
     assert res.count == enumerated(assoc)
+    if res.count is not None and not milp_only:
+        # the one-sort bound is a certified lower bound on the fewest breaking drops
+        assert ic.sorted_bound(ic.problem_of(assoc, 0.0, 0.95, "first")[0]) <= res.count + 1
     if res.count is not None:
         assert res.share == pytest.approx(res.count / count)
         # the witness: dropping these count + 1 instruments breaks the conclusion
@@ -84,6 +93,7 @@ def test_threshold_and_mirror():
 def test_cut_short_search_brackets_the_exact_count(monkeypatch):
     # common practice: with one tangent and one programme the bound may be loose, never wrong
     monkeypatch.setattr(ic, "INITIAL_TANGENTS", 1)
+    monkeypatch.setattr(ic, "sorted_bound", lambda problem: 1)
     for seed in range(6):
         assoc = table(40 + seed, count=60, beta=0.1, spread=0.04, sign_mix=True)
         exact = ic.invalid_count(assoc)
@@ -92,6 +102,9 @@ def test_cut_short_search_brackets_the_exact_count(monkeypatch):
         assert short.count <= exact.count <= short.upper
         assert short.gap == short.upper - short.count
         assert short.exact == (short.gap == 0)
+    gaps = [ic.invalid_count(table(40 + s, count=60, beta=0.1, spread=0.04, sign_mix=True),
+                             max_iterations=1).gap for s in range(6)]
+    assert max(gaps) > 0                       # the cut-short search is really cut short
 
 
 @pytest.mark.parametrize("seed", [101, 102, 103])
@@ -143,4 +156,5 @@ def test_greedy_drops_are_not_exact_but_the_milp_is(seed):
     assert int(ic.greedy_drops(problem).sum()) > best
     lower, upper, witness, _ = ic.min_drops(problem)
     assert lower == upper == best == int(witness.sum())
+    assert ic.sorted_bound(problem) <= best
     assert problem.value(1.0 - witness) <= 0.0
