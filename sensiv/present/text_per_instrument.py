@@ -84,7 +84,7 @@ def prior_effects_lines(res: PriorEffects) -> list[str]:
             f"{format_number(res.prior.sd)}²) in {UNIT_WORDS[res.prior.unit]}, independently",
             f"  {pct} prior interval (closed form): {res.interval}  (centre "
             f"{format_number(res.center)}, sd {format_number(res.sd)}; the estimate moves by "
-            f"−μ × {format_number(res.shift)} and its variance grows by τ² × "
+            f"{format_number(-res.shift)} × μ and its variance grows by τ² × "
             f"{format_number(res.spread ** 2)})",
             f"  Conclusion examined: {res.conclusion}; under this prior "
             f"{_region_words(res.region, res.threshold)}"]

@@ -31,9 +31,10 @@ def _x_axis(res) -> tuple[float, str]:
 def _caption(res) -> list[str]:
     level = pct(res.confidence_level)
     core = res.core
-    shape = ("every instrument's direct effect in t times " + minus(res.allowance.text)
-             + f" ({UNIT_WORDS[res.allowance.unit]})" if res.allowance.is_box else
-             "the direct effects in t times the stated polytope (outcome units)")
+    shape = ("every instrument's direct effect in " + minus(res.allowance.text)
+             + f" ({UNIT_WORDS[res.allowance.unit]}; the grey band), scaled along the axis"
+             if res.allowance.is_box else
+             "the direct effects in the stated polytope (outcome units), scaled along the axis")
     return [f"Assumption: {shape}; otherwise the {len(res.instruments)} instruments are valid "
             "and independent.",
             f"IVW estimate with {core.order}-order weights held fixed and its {core.se_rule}-"
