@@ -1,7 +1,11 @@
 """95% tF critical values c(q) at q = √F, written by ``sensiv.estimation.tf.write_table``
 (the recurrence of :mod:`sensiv.estimation.tf`; every 4th point of its grid, so linear
 interpolation of this convex function errs upwards, on the safe side; regenerate with
-``python -m sensiv.estimation.tf``).  Do not edit."""
+``python -m sensiv.estimation.tf``).  Computed by sensiv.estimation.tf.tabulate from the LMMP
+characterisation.  Do not edit."""
+
+LEVEL = 0.95
+Z = 1.959963984540054
 
 Q_VALUES = (
     1.959965, 1.9599652, 1.9599654, 1.9599657, 1.9599661, 1.9599665, 1.959967,

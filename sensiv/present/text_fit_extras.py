@@ -38,5 +38,9 @@ def tf_lines(fit) -> list[str]:
             f"F = {format_number(tf.f, 4)}: ")
     if tf.critical_value is None:
         return [head + (tf.reason or "not available")]
-    return [head + f"critical value {format_number(tf.critical_value, 4)} (1.96 from F = "
-                   f"104.7), 95% tF interval {tf.ci}"]
+    table = tf.table
+    end = (f"{format_number(table.z, 4)} from F = {format_number(table.upper_f, 4)}"
+           if table.reaches_z else f"{format_number(table.last, 4)} from F = "
+           f"{format_number(table.upper_f, 4)}, where the table ends")
+    return [head + f"critical value {format_number(tf.critical_value, 4)} ({end}), "
+                   f"{100 * tf.level:g}% tF interval {tf.ci}"]

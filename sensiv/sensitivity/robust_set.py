@@ -6,7 +6,8 @@ r"""The weak-instrument-robust sensitivity set: Anderson–Rubin inversion under
 
 with ``ρ``, ``π`` the reduced-form and first-stage coefficients on the instruments
 (:class:`ReducedForm`).  The set may be unbounded or a union of intervals, and is reported as
-such: exactly with one instrument, by a grid refined with root finding with several.
+such: exactly with one instrument, certified by interval bounds with several
+(:mod:`sensiv.sensitivity.robust_certified`).
 """
 
 from __future__ import annotations
@@ -23,13 +24,14 @@ from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import ScoreSums
 from sensiv.partial_id.solver import solve
 from sensiv.sensitivity.direct_sets import DirectSet
+from sensiv.sensitivity.robust_certified import certified_set
 from sensiv.sensitivity.union import merge_intervals
 
 # The weak-IV-robust set "differs materially" from the Wald union when their hulls differ by
 # more than this share of the Wald union's width.
 MATERIAL_SHARE = 0.25
 
-# Grids that locate the weak-IV-robust set with several instruments (then refined by roots):
+# Grids of the earlier method :func:`grid_set` (kept for comparison, then refined by roots):
 AR_GRID = 401               # box: bounded least squares per point
 AR_GRID_POLYTOPE = 101      # polytope: one quadratic programme per point
 
@@ -129,8 +131,9 @@ def robust_set(rf: ReducedForm, dset: DirectSet) -> tuple[tuple[Interval, ...], 
 
     One instrument, Γ = [l, h]: the set is exactly the union of the AR sets at ``γ = l`` and
     ``γ = h`` and of ``{β₀ : l ≤ ρ − β₀π ≤ h}`` (the minimum over γ is the squared distance of
-    ``ρ − β₀π`` to ``[l, h]``).  Several instruments: the minimum over Γ is a small quadratic
-    programme per ``β₀``; the set's boundary is located on a grid and refined by root finding.
+    ``ρ − β₀π`` to ``[l, h]``).  Several instruments: certified by interval bounds and
+    bisection over the whole line (:mod:`sensiv.sensitivity.robust_certified`), its middle
+    chart on :func:`located_range`.
     """
     if len(rf.rho) == 1:
         lo, hi = dset.bounding_box[0].low, dset.bounding_box[0].high
@@ -145,7 +148,9 @@ def robust_set(rf: ReducedForm, dset: DirectSet) -> tuple[tuple[Interval, ...], 
         elif lo <= rho <= hi:
             pieces.append(Interval(-math.inf, math.inf))
         return merge_intervals(pieces), "exact"
-    return _robust_set_numeric(rf, dset), "grid with root refinement"
+    lo, hi = located_range(rf, dset)
+    return certified_set(rf.rho, rf.pi, rf.v_rr, rf.v_rp, rf.v_pp, rf.critical, dset,
+                         centre=0.5 * (lo + hi), radius=0.5 * (hi - lo))
 
 
 def locating_points(dset: DirectSet) -> np.ndarray:
@@ -165,7 +170,27 @@ def locating_points(dset: DirectSet) -> np.ndarray:
     return np.array(rows)
 
 
-def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...]:
+def located_range(rf: ReducedForm, dset: DirectSet) -> tuple[float, float]:
+    """Where the set's bounded pieces are expected: the hull of the finite ends of the exact
+    AR sets at :func:`locating_points` and of ``ρ'π/π'π``, widened by twice its width on each
+    side (a guide for the search only: the certified method covers the whole line)."""
+    vertex_pieces = []
+    for v in locating_points(dset):
+        vertex_pieces.extend(linalg.quadratic_ratio_set(rf.rho - v, rf.pi, rf.v_rr, rf.v_rp,
+                                                        rf.v_pp, rf.critical))
+    finite = [e for p in vertex_pieces for e in (p.low, p.high) if math.isfinite(e)]
+    center = float(rf.rho @ rf.pi / (rf.pi @ rf.pi))
+    finite.append(center)
+    lo, hi = min(finite), max(finite)
+    width = max(hi - lo, 1e-8 * max(1.0, abs(center)))
+    return lo - 2 * width, hi + 2 * width
+
+
+def grid_set(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...]:
+    """The earlier method, kept for comparison (tests and benchmarks), not used by any
+    analysis: ``g`` on a grid of :data:`AR_GRID` (box) or :data:`AR_GRID_POLYTOPE` points over
+    :func:`located_range` (widened until both ends are outside when the set is bounded), sign
+    changes refined by ``brentq``.  A piece narrower than the grid step can be missed."""
     from scipy.optimize import brentq
 
     minimum = _ar_minimiser(rf, dset)
@@ -173,19 +198,10 @@ def _robust_set_numeric(rf: ReducedForm, dset: DirectSet) -> tuple[Interval, ...
     def g(b: float) -> float:
         return minimum(b) - rf.critical
 
-    # Exact pieces at the vertices locate the region; the set is unbounded exactly when the
-    # first-stage Wald statistic π'V_ππ⁻¹π is at most the critical value.
-    vertex_pieces = []
-    for v in locating_points(dset):
-        vertex_pieces.extend(linalg.quadratic_ratio_set(rf.rho - v, rf.pi, rf.v_rr, rf.v_rp,
-                                                        rf.v_pp, rf.critical))
+    # the set is unbounded exactly when the first-stage Wald statistic π'V_ππ⁻¹π is at most
+    # the critical value (the limit of the minimised statistic as |β₀| → ∞)
     unbounded = linalg.wald_statistic(rf.pi, rf.v_pp) <= rf.critical
-    finite = [e for p in vertex_pieces for e in (p.low, p.high) if math.isfinite(e)]
-    center = float(rf.rho @ rf.pi / (rf.pi @ rf.pi))
-    finite.append(center)
-    lo, hi = min(finite), max(finite)
-    width = max(hi - lo, 1e-8 * max(1.0, abs(center)))
-    lo, hi = lo - 2 * width, hi + 2 * width
+    lo, hi = located_range(rf, dset)
     while not unbounded and (g(lo) <= 0 or g(hi) <= 0):
         lo, hi = lo - 2 * (hi - lo), hi + 2 * (hi - lo)
     grid = np.linspace(lo, hi, AR_GRID if dset.box is not None else AR_GRID_POLYTOPE)

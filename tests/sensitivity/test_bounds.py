@@ -347,7 +347,7 @@ def test_robust_set_two_instruments_numeric(tmp_path, polytope):
         res = bounds.sweep(from_frame(frame, spec_for(2)), polytope=str(path), points=3)
     else:
         res = run_sweep(frame, 2, ["-0.03:0.03", "-0.03:0.03"])
-    assert res.ar_method.startswith("grid")
+    assert res.ar_method.startswith("certified")
     crit = stats.chi2.ppf(0.95, 2)
     piece = res.ar_set[0]
     for end in (piece.low, piece.high):
