@@ -12,6 +12,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import PUBLISHED_LABEL, document, published_roles, put_in_force
 from sensiv.core.limits import MAX_POINTS
 from sensiv.cli.options import (FORMAT, JSON, LEVEL, THRESHOLD, check_out, emit, figure_formats,
                                 out_option, write_outputs)
@@ -47,6 +48,7 @@ def published(
     threshold: float = THRESHOLD,
     points: int = typer.Option(101, "--points", metavar="INTEGER", help=f"Curve points over scalings 0..1 of the range (2 to {MAX_POINTS:,})."),
     level: float = LEVEL,
+    label: Optional[list[str]] = PUBLISHED_LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Write published.json and published.md here."),
     formats: Optional[list[str]] = FORMAT,
@@ -59,14 +61,15 @@ def published(
     from sensiv.sensitivity.published import published_analysis
 
     chosen = figure_formats(formats)
+    put_in_force(label, published_roles())
 
     result = published_analysis(
         estimate=estimate, se=se, first_stage=first_stage, first_stage_se=first_stage_se,
         first_stage_f=first_stage_f, reduced_form=reduced_form, reduced_form_se=reduced_form_se,
         n=n, direct=direct, prior=prior_law, threshold=threshold, points=points,
         confidence_level=level)
-    document = result.to_dict()
+    labelled = document(result.to_dict())
     if out is not None:
-        write_outputs(out, result, {"published.json": to_json(document),
+        write_outputs(out, result, {"published.json": to_json(labelled),
                            "published.md": published_markdown(result)}, chosen)
-    emit(document, str(result), as_json)
+    emit(labelled, str(result), as_json)

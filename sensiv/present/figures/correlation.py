@@ -3,6 +3,7 @@ and OLS, the threshold, the breakdown ratio and the bootstrap interval."""
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.present.figures.marks import X_PAD, draw_breakdown_point, hatch_no_fit, interval_at
 from sensiv.present.figures.style import (BLUE, GREY, LIGHT_BLUE, MID_GREY, clip, ends,
@@ -71,12 +72,13 @@ def correlation_curve(corr_result, ax=None, *, note: str | None = None):
             ax, r.breakdown_ratio, r.threshold, x_end, "r̄",
             f"the set does not contain {format_number(r.threshold)} for any r̄ up to 1")
         ax.set_xlabel("ratio bound r̄ on |corr(Z, u)| / |corr(X, u)|")
-        ax.set_ylabel(f"effect of {r.treatment}")
+        ax.set_ylabel(labels.axis_label("", r.treatment, r.outcome))
         sign = {"positive": "positive", "negative": "negative",
                 "unknown": "of either sign"}[r.endogeneity]
         caption = [f"Assumption: each instrument is correlated with the error in the same "
-                   f"direction as {r.treatment}, at most r̄ times as strongly; endogeneity "
-                   f"{sign}. Effect of {r.treatment} on {r.outcome}, 2SLS at r̄ = 0; "
+                   f"direction as {labels.name(r.treatment)}, at most r̄ times as strongly; "
+                   f"endogeneity {sign}. "
+                   f"E{labels.effect_words(r.treatment, r.outcome)[1:]}, 2SLS at r̄ = 0; "
                    f"n = {r.n}."
                    + (f" {level} interval: bootstrap (Imbens & Manski) at the largest r̄."
                       if ci is not None else ""), *([words] if words else []),

@@ -14,6 +14,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from sensiv.core import labels
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, format_number
 from sensiv.present.figures.marks import row_texts
@@ -117,7 +118,8 @@ def sweep_items(sweep) -> list[SummaryItem]:
     """Identified set, union interval and weak-IV-robust set of a
     :class:`~sensiv.sensitivity.bounds.SweepResult` (its fit's rows not included)."""
     level = pct(sweep.confidence_level)
-    ranges = ", ".join(f"{z} in [{format_number(b.low)}, {format_number(b.high)}]"
+    ranges = ", ".join(f"{labels.name(z)} in [{format_number(b.low)}, "
+                       f"{format_number(b.high)}]"
                        for z, b in zip(sweep.instruments, sweep.direct_set))
     words = minus(f"direct effect {ranges}")
     out = [SummaryItem("identified set", (sweep.identified_set,), words, "direct effect",
@@ -150,7 +152,7 @@ def prior_items(prior) -> list[SummaryItem]:
     """The prior interval of a :class:`~sensiv.sensitivity.prior.PriorResult` (its fit's rows
     not included)."""
     level = pct(prior.confidence_level)
-    laws = "; ".join(f"{z} ~ {p}" for z, p in zip(prior.instruments, prior.priors))
+    laws = "; ".join(f"{labels.name(z)} ~ {p}" for z, p in zip(prior.instruments, prior.priors))
     return [SummaryItem(f"{level} prior interval", (prior.interval,), f"direct effect {laws}",
                         "direct effect", "interval", prior.center)]
 
@@ -195,7 +197,7 @@ def discrete_items(bounds) -> list[SummaryItem]:
     """The bounds (empty when the model does not fit) and, when bootstrapped, their interval
     from discrete bounds (:class:`~sensiv.partial_id.discrete_results.DiscreteBounds`)."""
     level = pct(bounds.confidence_level)
-    words = (f"{bounds.table.instrument} acts directly on at most "
+    words = (f"{labels.name(bounds.table.instrument)} acts directly on at most "
              f"{format_number(bounds.budget)} of units"
              + ("; monotone" if bounds.monotone else ""))
     pieces = (bounds.bounds,) if bounds.bounds is not None else ()
