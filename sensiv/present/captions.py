@@ -80,6 +80,12 @@ def _discrete(result) -> str:
             "grows from 0.")
 
 
+def _sweep_polytope(result) -> str:
+    return (f"The stated polytope of direct effects of {_names(result.instruments)} (shaded), "
+            "its constraints (dashed) and its bounding box (dotted), with the polytope scaled "
+            "to the breakdown; the sensitivity curve scales this set.")
+
+
 def _calibrate(result) -> str:
     return (f"Leave-one-out yardsticks: the direct effect of {_names(result.instruments)} on "
             f"{labels.name(result.outcome)} that matches the shift in its reduced form when "
@@ -92,6 +98,7 @@ _CAPTIONS = {
     ("fit", "summary"): _fit,
     ("sweep", "curve"): _sweep_curve,
     ("sweep", "frontier"): _sweep_frontier,
+    ("sweep", "polytope"): _sweep_polytope,
     ("published", "curve"): _sweep_curve,
     ("published", "frontier"): _sweep_frontier,
     ("prior", "map"): _prior_map,
