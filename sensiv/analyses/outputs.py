@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from sensiv.core import labels
 from sensiv.analyses.registry import entry_for, is_tabled
 from sensiv.core.errors import InputError
 from sensiv.present import figures
@@ -93,9 +94,21 @@ def summary_threshold(results: Sequence) -> float | None:
     return next((t for t in map(threshold_of, results) if t is not None), None)
 
 
+def outcome_name(result) -> str:
+    """The outcome a result is about (its outcome or its table's; ``"outcome"`` for printed
+    numbers)."""
+    value = getattr(result, "outcome", None)
+    if not isinstance(value, str):
+        table = getattr(result, "table", None)
+        value = getattr(table, "outcome", None)
+    return value if isinstance(value, str) else "outcome"
+
+
 def summary_xlabel(results: Sequence) -> str:
-    """``"effect of FOCUS"`` from the first result that names its focus, else ``"effect"``."""
-    return next((f"effect of {name}" for name in map(focus_name, results) if name), "effect")
+    """``"effect of FOCUS"`` (with its unit when the labels in force state them) from the first
+    result that names its focus, else ``"effect"``."""
+    return next((labels.axis_label("", name, outcome_name(res))
+                 for res, name in zip(results, map(focus_name, results)) if name), "effect")
 
 
 def summary_figure(results: Sequence, note: str | None = None):

@@ -24,6 +24,9 @@ def draw(result, note):
     out = {"curve": figures.sensitivity_curve(result, note=note)}
     if result.frontier is not None:
         out["frontier"] = figures.breakdown_frontier(result, note=note)
+    polytope = getattr(result, "direct_polytope", None)   # a stress test has none
+    if polytope is not None and polytope.vertices is not None and len(result.instruments) == 2:
+        out["polytope"] = figures.polytope_figure(result, note=note)
     return out
 
 

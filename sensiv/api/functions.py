@@ -32,7 +32,10 @@ from typing import Any
 from sensiv.api.arguments import (ROLES, api_terms, as_frame, direct_ranges, level_of, prior_laws,
                                   spec_of_roles)
 from sensiv.api.fitted import from_fitted, is_fitted_model
+from sensiv.core import labels as column_labels
 from sensiv.core.errors import InputError
+from sensiv.core.results import with_labels
+from sensiv.data.spec import used_columns
 from sensiv.estimation import iv
 from sensiv.partial_id import correlation
 from sensiv.sensitivity import bounds
@@ -70,20 +73,40 @@ def _inputs(data: Any, spec: Any, roles: dict[str, Any], se: str | None,
     return data, spec, se, bool(small)
 
 
+def _labels_for(labels: Any, data: Any, spec: Any) -> column_labels.Labels | None:
+    """``labels=`` ({column: text}) checked against the columns of the model (``None``: no
+    labels)."""
+    if labels is None:
+        return None
+    parsed = column_labels.parse(labels, option="labels=")
+    spec = spec if spec is not None else getattr(data, "spec", None)
+    if spec is not None:
+        column_labels.check_columns(parsed, used_columns(spec), option="labels=")
+    return parsed
+
+
+def _labelled(result, labels: column_labels.Labels | None):
+    """The result presented with ``labels`` (itself without them)."""
+    return result if labels is None else with_labels(result, labels)
+
+
 def fit(data, spec=None, *, se: str | None = None, level: float = 0.95,
-        small: bool | None = None, chunk_rows: int | None = None, **roles) -> iv.IVFit:
+        small: bool | None = None, chunk_rows: int | None = None,
+        labels: Mapping[str, str] | None = None, **roles) -> iv.IVFit:
     """2SLS with diagnostics (:func:`sensiv.estimation.iv.fit`), arguments as the CLI's."""
     with api_terms():
         data, spec, se, small = _inputs(data, spec, roles, se, small)
-        return iv.fit(data, spec, se=se, confidence_level=level_of(level), small=small,
-                      chunk_rows=chunk_rows)
+        names = _labels_for(labels, data, spec)
+        result = iv.fit(data, spec, se=se, confidence_level=level_of(level), small=small,
+                        chunk_rows=chunk_rows)
+        return _labelled(result, names)
 
 
 def sweep(data, spec=None, *, direct: Any = None, polytope: str | None = None,
           se: str | None = None, level: float = 0.95, small: bool | None = None,
           threshold: float = 0.0, points: int = bounds.DEFAULT_POINTS,
           focus: str | None = None, adaptive: bool = False, chunk_rows: int | None = None,
-          **roles) -> bounds.SweepResult:
+          labels: Mapping[str, str] | None = None, **roles) -> bounds.SweepResult:
     """Direct-effect sweep (:func:`sensiv.sensitivity.bounds.sweep`).
 
     ``direct`` is one range per instrument: ``"-0.02:0.02"``, ``"-0.1:0.1rf"``,
@@ -91,50 +114,59 @@ def sweep(data, spec=None, *, direct: Any = None, polytope: str | None = None,
     """
     with api_terms():
         data, spec, se, small = _inputs(data, spec, roles, se, small)
-        return bounds.sweep(data, spec, direct=direct_ranges(direct), polytope=polytope, se=se,
-                            confidence_level=level_of(level), small=small,
-                            threshold=threshold, points=points, focus=focus,
-                            adaptive=adaptive, chunk_rows=chunk_rows)
+        names = _labels_for(labels, data, spec)
+        result = bounds.sweep(data, spec, direct=direct_ranges(direct), polytope=polytope,
+                              se=se, confidence_level=level_of(level), small=small,
+                              threshold=threshold, points=points, focus=focus,
+                              adaptive=adaptive, chunk_rows=chunk_rows)
+        return _labelled(result, names)
 
 
 def prior(data, spec=None, *, prior: Any = None, prior_file: str | None = None,
           se: str | None = None, level: float = 0.95, small: bool | None = None,
           focus: str | None = None, draws: int = prior_layer.MC_DRAWS, seed: int | None = 0,
           threshold: float = 0.0, chunk_rows: int | None = None, progress: bool = True,
-          **roles) -> prior_layer.PriorResult:
+          labels: Mapping[str, str] | None = None, **roles) -> prior_layer.PriorResult:
     """Prior interval (:func:`sensiv.sensitivity.prior.prior_analysis`); ``prior`` is one law
     per instrument, e.g. ``"normal:0:0.01"`` or a list."""
     with api_terms():
         data, spec, se, small = _inputs(data, spec, roles, se, small)
-        return prior_layer.prior_analysis(
+        names = _labels_for(labels, data, spec)
+        result = prior_layer.prior_analysis(
             data, spec, priors=prior_laws(prior), prior_file=prior_file, se=se,
             confidence_level=level_of(level), small=small, focus=focus, draws=draws,
             seed=seed, chunk_rows=chunk_rows, threshold=threshold, progress=progress)
+        return _labelled(result, names)
 
 
 def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = None,
               no_first_stage_group: str | None = None, se: str | None = None,
               level: float = 0.95, small: bool | None = None, chunk_rows: int | None = None,
-              **roles) -> calibration.Calibration:
+              labels: Mapping[str, str] | None = None, **roles) -> calibration.Calibration:
     """Calibration yardsticks (:func:`sensiv.sensitivity.calibrate.calibrate`)."""
     with api_terms():
         data, spec, se, small = _inputs(data, spec, roles, se, small)
-        return calibration.calibrate(data, spec, groups=groups,
-                                     no_first_stage_group=no_first_stage_group, se=se,
-                                     confidence_level=level_of(level), small=small,
-                                     chunk_rows=chunk_rows)
+        names = _labels_for(labels, data, spec)
+        result = calibration.calibrate(data, spec, groups=groups,
+                                       no_first_stage_group=no_first_stage_group, se=se,
+                                       confidence_level=level_of(level), small=small,
+                                       chunk_rows=chunk_rows)
+        return _labelled(result, names)
 
 
 def corrbound(data, spec=None, *, max_ratio: float = correlation.DEFAULT_MAX_RATIO,
               endogeneity: str = "unknown", threshold: float = 0.0,
               points: int = correlation.DEFAULT_POINTS, reps: int = correlation.DEFAULT_REPS,
               seed: int | None = None, level: float = 0.95, chunk_rows: int | None = None,
-              progress: bool = True, **roles) -> correlation.CorrelationBounds:
+              progress: bool = True, labels: Mapping[str, str] | None = None,
+              **roles) -> correlation.CorrelationBounds:
     """Correlation-restriction bounds (:func:`sensiv.partial_id.correlation.correlation_bounds`);
     from a fitted model only its rows and roles are used (the bootstrap has its own inference)."""
     with api_terms():
         data, spec, _, _ = _inputs(data, spec, roles, None, None)
-        return correlation.correlation_bounds(
+        names = _labels_for(labels, data, spec)
+        result = correlation.correlation_bounds(
             data, spec, max_ratio=max_ratio, endogeneity=endogeneity, threshold=threshold,
             points=points, reps=reps, seed=seed, confidence_level=level_of(level),
             chunk_rows=chunk_rows, progress=progress)
+        return _labelled(result, names)

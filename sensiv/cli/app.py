@@ -111,11 +111,13 @@ def guarded(command):
     @functools.wraps(command)
     def wrapper(*args, **kwargs):
         from sensiv.core.errors import InputError, SolverError
+        from sensiv.core import labels
         from sensiv.core.progress import silenced
 
         try:
             with warnings.catch_warnings(record=True) as caught, \
-                    silenced(bool(kwargs.get("as_json"))):  # --json: no progress bar at all
+                    silenced(bool(kwargs.get("as_json"))), \
+                    labels.using(labels.NONE):  # a command's --label ends with it
                 warnings.simplefilter("always")
                 result = command(*args, **kwargs)
             _echo_warnings(caught)

@@ -13,6 +13,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import LABEL, document, put_in_force
 from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE, check_out,
@@ -51,6 +52,7 @@ def calibrate(
     no_first_stage_group: Optional[str] = NO_FIRST_STAGE_GROUP,
     engine: str = ENGINE,
     scheduler: Optional[str] = SCHEDULER,
+    label: Optional[list[str]] = LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write calibrate.json and calibrate.md here."),
     formats: Optional[list[str]] = FORMAT,
@@ -60,6 +62,7 @@ def calibrate(
     check_out(out)
     from sensiv.present.text_calibrate import calibration_markdown
     from sensiv.sensitivity import calibrate as calibration
+    from sensiv.data.spec import used_columns
     from sensiv.estimation import iv
     from sensiv.present.writer import to_json
 
@@ -68,6 +71,7 @@ def calibrate(
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                              where, categorical, absorb, absorb_tolerance)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    put_in_force(label, used_columns(spec))
     groups = calibration.parse_groups(group or [])
     if engine != "numpy" and no_first_stage_group is not None:
         from sensiv.core.errors import InputError
@@ -79,8 +83,8 @@ def calibrate(
     result = calibration.calibrate(data, spec, groups=groups,
                                    no_first_stage_group=no_first_stage_group, se=se,
                                    confidence_level=level, small=small)
-    document = result.to_dict()
+    labelled = document(result.to_dict())
     if out is not None:
-        write_outputs(out, result, {"calibrate.json": to_json(document),
+        write_outputs(out, result, {"calibrate.json": to_json(labelled),
                            "calibrate.md": calibration_markdown(result)}, chosen)
-    emit(document, str(result), as_json)
+    emit(labelled, str(result), as_json)

@@ -12,6 +12,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import LABEL, document, put_in_force
 from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
                                 LEVEL, OUTCOME, TREATMENT, WEIGHT, WHERE, check_out, emit,
@@ -57,6 +58,7 @@ def corrbound(
     constant: bool = CONSTANT,
     engine: str = ENGINE,
     scheduler: Optional[str] = SCHEDULER,
+    label: Optional[list[str]] = LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write corrbound.json and corrbound.md here."),
     formats: Optional[list[str]] = FORMAT,
@@ -65,6 +67,7 @@ def corrbound(
     treatment's direction and at most --max-ratio times as strongly (Nevo & Rosen 2012)."""
     check_out(out)
     from sensiv.core.errors import InputError
+    from sensiv.data.spec import used_columns
     from sensiv.partial_id.correlation import (check_one_treatment, check_options,
                                               correlation_bounds)
     from sensiv.present.text_correlation import bounds_markdown
@@ -80,11 +83,12 @@ def corrbound(
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                              where, categorical, absorb, absorb_tolerance)
     check_one_treatment(spec)
+    put_in_force(label, used_columns(spec))
     result = correlation_bounds(engine_source(data, spec, engine, scheduler), max_ratio=max_ratio,
                                 endogeneity=endogeneity, threshold=threshold, points=points,
                                 reps=reps, seed=seed, confidence_level=level, progress=not as_json)
-    document = result.to_dict()
+    labelled = document(result.to_dict())
     if out is not None:
-        write_outputs(out, result, {"corrbound.json": to_json(document),
+        write_outputs(out, result, {"corrbound.json": to_json(labelled),
                            "corrbound.md": bounds_markdown(result)}, chosen)
-    emit(document, str(result), as_json)
+    emit(labelled, str(result), as_json)

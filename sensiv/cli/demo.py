@@ -42,6 +42,7 @@ def demo(
 
     from sensiv import demo as demo_data
     from sensiv.analyses.outputs import results_table
+    from sensiv.core import labels
     from sensiv.present.text import text_table
     from sensiv.present.text_against import HEADING
     from sensiv.recipes.bundle import against_sentences
@@ -78,9 +79,10 @@ def demo(
     for study in recipe.studies:
         runs = [r for r in result.runs if r.study == study.name]
         lines += [f"== {study.name} ==", study.description, ""]
-        table = results_table([r.result for r in runs if r.analysis.kind != "calibrate"])
-        lines += [text_table(table), ""]
-        lines += [f"{HEADING}: {sentence}" for sentence in against_sentences(runs)]
+        with labels.using(study.labels):  # the invented scenarios' own labels
+            lines += [text_table(results_table([r.result for r in runs
+                                                if r.analysis.kind != "calibrate"])), ""]
+            lines += [f"{HEADING}: {sentence}" for sentence in against_sentences(runs)]
         lines += [""] if lines[-1] else []
         entry = {"analyses": [{"kind": r.analysis.kind, "label": r.analysis.label,
                                "result": r.result.to_dict()} for r in runs]}

@@ -8,6 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import LABEL, document, put_in_force
 from sensiv.cli.options import (ENGINE, FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
                                 WHERE, check_engine, check_out, emit, figure_formats,
                                 out_option, write_outputs)
@@ -60,6 +61,7 @@ def discrete(
                                                "past the breakdown budget]."),
     level: float = LEVEL,
     engine: str = ENGINE,
+    label: Optional[list[str]] = LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write discrete.json and "
                                        "discrete.md here."),
@@ -74,7 +76,6 @@ def discrete(
     from sensiv.present.markdown import discrete_markdown
 
     chosen = figure_formats(formats)
-
     check_engine(engine, None)
     if engine != "numpy":
         from sensiv.core.errors import InputError
@@ -82,6 +83,7 @@ def discrete(
         raise InputError(f"discrete tabulates the rows in-process; --engine {engine} is not "
                          "supported here yet: use --engine numpy (the default)")
     x, z = _one(treatment, "treatment"), _one(instrument, "instrument")
+    put_in_force(label, (outcome, x, z))
     if counts:
         from sensiv.core.errors import InputError
         from sensiv.partial_id.discrete_data import read_counts
@@ -106,9 +108,9 @@ def discrete(
         typer.echo(f"error: {exc}; the bounds could not be computed (report this with the "
                    "data, if you can)", err=True)
         raise typer.Exit(EXIT_SOLVER_FAILURE) from exc
-    document = result.to_dict()
+    labelled = document(result.to_dict())
     if out is not None:
-        write_outputs(out, result, {"discrete.json": to_json(document),
+        write_outputs(out, result, {"discrete.json": to_json(labelled),
                                     "discrete.md": discrete_markdown(result)}, chosen)
-    emit(document, str(result), as_json)
+    emit(labelled, str(result), as_json)
 

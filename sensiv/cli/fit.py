@@ -9,6 +9,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import LABEL, document, put_in_force
 from sensiv.core.limits import MAX_REPS
 from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FORMAT, INSTRUMENT, JSON,
@@ -61,6 +62,7 @@ def fit(
     constant: bool = CONSTANT,
     engine: str = ENGINE,
     scheduler: Optional[str] = SCHEDULER,
+    label: Optional[list[str]] = LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write fit.json, fit.md, tables and a figure here."),
     formats: Optional[list[str]] = FORMAT,
@@ -71,6 +73,7 @@ def fit(
 ) -> None:
     """2SLS with OLS beside it, first stages, Anderson-Rubin set and overidentification test."""
     check_out(out)
+    from sensiv.data.spec import used_columns
     from sensiv.estimation import iv
     from sensiv.present.writer import to_json
     from sensiv.present.markdown import fit_markdown
@@ -79,6 +82,7 @@ def fit(
     spec = spec_from_options(outcome, treatment, instrument, control, cluster, weight, constant,
                              where, categorical, absorb, absorb_tolerance)
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
+    put_in_force(label, used_columns(spec))
     source = engine_source(data, spec, engine, scheduler)
     if bootstrap is None:
         result = iv.fit(source, se=se, confidence_level=level, small=small)
@@ -86,9 +90,9 @@ def fit(
         result = bootstrapped_fit(source, bootstrap, se=se or iv.default_se(spec),
                                   level=level, small=small, threshold=threshold, reps=reps,
                                   seed=seed, progress=not as_json)
-    document = result.to_dict()
+    labelled = document(result.to_dict())
     if out is not None:
-        write_outputs(out, result, {"fit.json": to_json(document), "fit.md": fit_markdown(result)},
+        write_outputs(out, result, {"fit.json": to_json(labelled), "fit.md": fit_markdown(result)},
                       chosen)
-    emit(document, str(result), as_json)
+    emit(labelled, str(result), as_json)
 

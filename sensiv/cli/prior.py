@@ -8,6 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import LABEL, document, put_in_force
 from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, TREATMENT, WEIGHT, WHERE,
@@ -55,12 +56,14 @@ def prior(
     threshold: float = typer.Option(0.0, "--threshold", metavar="NUMBER", help="Threshold for the prior map: which priors leave an interval that excludes it."),
     engine: str = ENGINE,
     scheduler: Optional[str] = SCHEDULER,
+    label: Optional[list[str]] = LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Write prior.json, prior.md, tables and the prior map here."),
     formats: Optional[list[str]] = FORMAT,
 ) -> None:
     """Interval for the effect when the direct effect follows a prior law."""
     check_out(out)
+    from sensiv.data.spec import used_columns
     from sensiv.estimation import iv
     from sensiv.sensitivity import prior as prior_layer
     from sensiv.present.markdown import prior_files
@@ -70,11 +73,12 @@ def prior(
     source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
                          constant, where, categorical, absorb, engine,
                          scheduler, absorb_tolerance=absorb_tolerance)
+    put_in_force(label, used_columns(source.spec))
     result = prior_layer.prior_analysis(
         source, priors=prior_law or None, prior_file=str(prior_file) if prior_file else None,
         se=se, confidence_level=level, small=small, focus=focus, draws=draws, seed=seed,
         threshold=threshold, progress=not as_json)
     if out is not None:
         write_outputs(out, result, prior_files(result), chosen)
-    emit(result.to_dict(), str(result), as_json)
+    emit(document(result.to_dict()), str(result), as_json)
 

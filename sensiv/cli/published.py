@@ -12,6 +12,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import PUBLISHED_LABEL, document, published_roles, put_in_force
 from sensiv.core.limits import MAX_POINTS, MAX_REPS
 from sensiv.cli.per_instrument import (missing, number, refuse_single_only, refuse_table_only,
                                        run_table)
@@ -57,6 +58,7 @@ def published(
     threshold: float = THRESHOLD,
     points: int = typer.Option(101, "--points", metavar="INTEGER", help=f"Curve points over scalings 0..1 of the range (2 to {MAX_POINTS:,})."),
     level: float = LEVEL,
+    label: Optional[list[str]] = PUBLISHED_LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Write published.json and published.md here."),
     formats: Optional[list[str]] = FORMAT,
@@ -90,11 +92,13 @@ def published(
     from sensiv.present.writer import to_json
     from sensiv.sensitivity.published import published_analysis
 
+    put_in_force(label, published_roles())
+
     result = published_analysis(
         **values, first_stage_f=first_stage_f, n=n, direct=direct, prior=prior_law,
         threshold=threshold, points=points, confidence_level=level)
-    document = result.to_dict()
+    labelled = document(result.to_dict())
     if out is not None:
-        write_outputs(out, result, {"published.json": to_json(document),
+        write_outputs(out, result, {"published.json": to_json(labelled),
                            "published.md": published_markdown(result)}, chosen)
-    emit(document, str(result), as_json)
+    emit(labelled, str(result), as_json)

@@ -28,6 +28,8 @@ def run(
 ) -> None:
     """Run every analysis of a recipe and write the report bundle."""
     check_out(out)
+    from sensiv.core import labels
+    from sensiv.core.results import labels_of
     from sensiv.recipes.bundle import run_files
     from sensiv.recipes.parse import parse_recipe
     from sensiv.recipes.run import run_recipe
@@ -41,7 +43,8 @@ def run(
     write_files(out, files)
     document = {"recipe": str(recipe), "out": str(out), "title": parsed.title,
                 "analyses": [{"study": r.study, "kind": r.analysis.kind,
-                              "label": r.analysis.label, "result": r.result.to_dict()}
+                              "label": r.analysis.label, "result": r.result.to_dict(),
+                              "labels": (labels_of(r.result) or labels.NONE).to_dict()}
                              for r in result.runs],
                 "files": sorted(files)}
     text = [f"{parsed.title}: {len(result.runs)} analyses in {len(parsed.studies)} "
@@ -64,6 +67,7 @@ def study_tables(parsed, result) -> list[str]:
     """Each study's summary table for the terminal (the analyses that bound the effect), as
     ``sensiv demo`` prints it."""
     from sensiv.analyses.outputs import results_table
+    from sensiv.core import labels
     from sensiv.analyses.registry import entry
     from sensiv.present.text import text_table
     from sensiv.present.text_against import HEADING
@@ -74,7 +78,8 @@ def study_tables(parsed, result) -> list[str]:
         shown = [r.result for r in result.runs
                  if r.study == study.name and entry(r.analysis.kind).in_summary]
         if shown:
-            lines += ["", f"== {study.name} ==", text_table(results_table(shown))]
-            lines += [f"{HEADING}: {sentence}" for sentence in
-                      against_sentences([r for r in result.runs if r.study == study.name])]
+            with labels.using(study.labels):
+                lines += ["", f"== {study.name} ==", text_table(results_table(shown))]
+                lines += [f"{HEADING}: {sentence}" for sentence in
+                          against_sentences([r for r in result.runs if r.study == study.name])]
     return lines + [""]

@@ -8,6 +8,7 @@ from typing import Optional
 import typer
 
 from sensiv.cli.app import app, guarded
+from sensiv.cli.labels import LABEL, document, put_in_force
 from sensiv.cli.options import ABSORB, ABSORB_TOLERANCE, ENGINE, SCHEDULER, engine_source
 from sensiv.cli.options import (CATEGORICAL, CLUSTER, CONSTANT, CONTROL, FOCUS, FORMAT, INSTRUMENT,
                                 JSON, LEVEL, OUTCOME, SE, SMALL, THRESHOLD, TREATMENT, WEIGHT,
@@ -65,6 +66,7 @@ def sweep(
              "against_yardsticks)."),
     engine: str = ENGINE,
     scheduler: Optional[str] = SCHEDULER,
+    label: Optional[list[str]] = LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Write sweep.json, sweep.md, curve.csv, tables and figures here."),
     formats: Optional[list[str]] = FORMAT,
@@ -72,6 +74,7 @@ def sweep(
     """Direct-effect sweep: identified set, union of intervals, breakdown point, robust set."""
     check_out(out)
     from sensiv.sensitivity import bounds
+    from sensiv.data.spec import used_columns
     from sensiv.estimation import iv
     from sensiv.present.markdown import sweep_files
 
@@ -80,6 +83,7 @@ def sweep(
     source = data_source(data, outcome, treatment, instrument, control, cluster, weight,
                          constant, where, categorical, absorb, engine,
                          scheduler, absorb_tolerance=absorb_tolerance)
+    put_in_force(label, used_columns(source.spec))
     result = bounds.sweep(source, direct=direct or None,
                           polytope=str(direct_polytope) if direct_polytope else None, se=se,
                           confidence_level=level, small=small, threshold=threshold,
@@ -87,7 +91,7 @@ def sweep(
     if not with_calibration:
         if out is not None:
             write_outputs(out, result, sweep_files(result), chosen)
-        emit(result.to_dict(), str(result), as_json)
+        emit(document(result.to_dict()), str(result), as_json)
         return
     from sensiv.analyses.against import marked_curve, with_yardsticks
     from sensiv.analyses.outputs import figure_files, table_files
@@ -97,5 +101,5 @@ def sweep(
         write_files(out, {**sweep_files(result), **table_files(result),
                           **figure_files(result, chosen), **combined.files,
                           **marked_curve(result, combined.comparison, chosen)})
-    emit(combined.to_dict(), combined.text, as_json)
+    emit(document(combined.to_dict()), combined.text, as_json)
 

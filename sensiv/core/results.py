@@ -10,6 +10,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from sensiv.core import labels as column_labels
+
 
 def json_number(value: float | None) -> float | None:
     """Return ``value`` as a JSON-safe float: ``None`` for ±inf, NaN or ``None``."""
@@ -159,7 +161,8 @@ def describe(result: object) -> str:
     """
     import importlib
 
-    return importlib.import_module(REGISTRY_MODULE).describe(result)
+    with column_labels.using(labels_of(result)):
+        return importlib.import_module(REGISTRY_MODULE).describe(result)
 
 
 # The same hook for notebooks: HTML table, figure and DataFrame of a result, built in the
@@ -168,25 +171,44 @@ NOTEBOOK_MODULE = "sensiv.analyses.notebook"
 
 
 class Presentable:
-    """Mixin of the analysis results for notebooks (no state: ``__slots__`` is empty).
+    """Mixin of the analysis results for notebooks.
 
     ``_repr_html_`` renders the results table in Jupyter, :meth:`plot` returns the matplotlib
     Figure of one of the result's figure kinds and :meth:`to_frame` its curve or table as a
-    pandas DataFrame.
+    pandas DataFrame.  Its one slot holds the column labels a front end attached with
+    :func:`with_labels` (presentation only: not a field, so equality, ``repr`` and
+    ``to_dict()`` ignore it); text, HTML and figures of the result are drawn with them.
     """
 
-    __slots__ = ()
+    __slots__ = (column_labels.SLOT,)
 
     def _repr_html_(self) -> str:
-        return _notebook().html(self)
+        with column_labels.using(labels_of(self)):
+            return _notebook().html(self)
 
     def plot(self, name: str | None = None):
         """The matplotlib Figure ``name`` of this result (its first figure when ``None``)."""
-        return _notebook().plot(self, name)
+        with column_labels.using(labels_of(self)):
+            return _notebook().plot(self, name)
 
     def to_frame(self):
         """The curve (or, without one, the results table) as a pandas DataFrame."""
         return _notebook().to_frame(self)
+
+
+def with_labels(result, labels: column_labels.Labels):
+    """A shallow copy of the result ``result`` that is presented with ``labels`` (its fields,
+    and so its numbers and JSON keys, are the same objects)."""
+    import copy
+
+    labelled = copy.copy(result)
+    object.__setattr__(labelled, column_labels.SLOT, labels)
+    return labelled
+
+
+def labels_of(result) -> column_labels.Labels | None:
+    """The labels attached to ``result`` with :func:`with_labels` (``None``: none attached)."""
+    return getattr(result, column_labels.SLOT, None)
 
 
 def _notebook():

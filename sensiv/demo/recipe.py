@@ -20,6 +20,10 @@ treatments = ["irrigation_hours"]
 instruments = ["height_m"]
 controls = ["plot_ha", "soil"]
 cluster = "village"
+[study.labels]
+maize_yield = "Maize yield (t/ha)"
+irrigation_hours = "Irrigation (hours)"
+height_m = "Height above the intake (m)"
 [study.inference]
 se = "cluster"
 [[study.analysis]]
@@ -46,6 +50,10 @@ path = "{data}nudge.csv"
 outcome = "bp_controlled"
 treatments = ["screened"]
 instruments = ["sms"]
+[study.labels]
+bp_controlled = "Blood pressure controlled"
+screened = "Screened"
+sms = "Text message"
 [study.inference]
 se = "robust"
 [[study.analysis]]

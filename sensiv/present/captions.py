@@ -8,11 +8,12 @@ analysis, so a new kind never shows a path.
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 
 
 def _names(names) -> str:
-    names = list(names)
+    names = [labels.name(name) for name in names]
     return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
 
 
@@ -22,7 +23,8 @@ def _pct(result) -> str:
 
 def _fit(result) -> str:
     focus = result.treatments[0]
-    return (f"The 2SLS estimate of the effect of {focus} with its {_pct(result)} interval"
+    return (f"The 2SLS estimate of the effect of {labels.name(focus)} with its "
+            f"{_pct(result)} interval"
             + (" and the Anderson–Rubin set" if result.ar_set is not None else "")
             + ", all assuming that the exclusion restriction holds exactly.")
 
@@ -31,7 +33,7 @@ def _sweep_subject(result) -> tuple[str, str, str]:
     """(effect, instruments, source words) of a sweep or of a stress test of printed numbers."""
     if hasattr(result, "reported"):
         return "the printed effect", "the instrument", " (from the printed numbers only)"
-    return f"the effect of {result.focus}", _names(result.instruments), ""
+    return f"the effect of {labels.name(result.focus)}", _names(result.instruments), ""
 
 
 def _sweep_curve(result) -> str:
@@ -56,27 +58,38 @@ def _sweep_frontier(result) -> str:
 
 
 def _prior_map(result) -> str:
-    return (f"The prior interval for the effect of {result.focus} over a grid of prior means "
+    return (f"The prior interval for the effect of {labels.name(result.focus)} over a grid of "
+            f"prior means "
             f"and spreads of the direct effect of {_names(result.instruments)}: where it keeps "
             "the sign of 2SLS, where it contains the threshold and where the sign reverses.")
 
 
 def _corrbound(result) -> str:
-    return (f"Bounds on the effect of {result.treatment} and their {_pct(result)} interval as "
+    return (f"Bounds on the effect of {labels.name(result.treatment)} and their "
+            f"{_pct(result)} interval as "
             "the allowed ratio r̄ of each instrument's correlation with the error to the "
             "treatment's grows from 0 (the exclusion restriction).")
 
 
 def _discrete(result) -> str:
     t = result.table
-    return (f"Bounds on the average effect of {t.treatment} on {t.outcome} over all units (a "
+    return (f"Bounds on the average effect of {labels.name(t.treatment)} on "
+            f"{labels.name(t.outcome)} over all units (a "
             "different quantity from the complier effect that 2SLS estimates) as the budget ε, "
-            f"the share of units whose outcome {t.instrument} changes directly, grows from 0.")
+            f"the share of units whose outcome {labels.name(t.instrument)} changes directly, "
+            "grows from 0.")
+
+
+def _sweep_polytope(result) -> str:
+    return (f"The stated polytope of direct effects of {_names(result.instruments)} (shaded), "
+            "its constraints (dashed) and its bounding box (dotted), with the polytope scaled "
+            "to the breakdown; the sensitivity curve scales this set.")
 
 
 def _calibrate(result) -> str:
     return (f"Leave-one-out yardsticks: the direct effect of {_names(result.instruments)} on "
-            f"{result.outcome} that matches the shift in its reduced form when each control is "
+            f"{labels.name(result.outcome)} that matches the shift in its reduced form when "
+            f"each control is "
             "left out, in outcome units and as a share of the reduced form; reference "
             "magnitudes, not estimates of the true direct effect.")
 
@@ -107,6 +120,7 @@ _CAPTIONS = {
     ("fit", "summary"): _fit,
     ("sweep", "curve"): _sweep_curve,
     ("sweep", "frontier"): _sweep_frontier,
+    ("sweep", "polytope"): _sweep_polytope,
     ("published", "curve"): _sweep_curve,
     ("published", "frontier"): _sweep_frontier,
     ("prior", "map"): _prior_map,

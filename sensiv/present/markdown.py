@@ -3,6 +3,7 @@ and the sweep's ``curve.csv``: formatting only, every number read from a result 
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.estimation import iv
 from sensiv.partial_id.discrete_data import plain_number
@@ -27,9 +28,9 @@ def fit_markdown(fit) -> str:
                      format_number(fit.ols.value(name)),
                      format_number(fit.ols.std_error(name))])
     parts = [
-        f"# 2SLS: {fit.outcome} on {', '.join(fit.treatments)}\n",
-        f"Instruments: {', '.join(fit.instruments)}. Controls: "
-        f"{', '.join(fit.controls) if fit.controls else 'none'}"
+        f"# 2SLS: {labels.name(fit.outcome)} on {', '.join(map(labels.name, fit.treatments))}\n",
+        f"Instruments: {', '.join(map(labels.name, fit.instruments))}. Controls: "
+        f"{', '.join(map(labels.name, fit.controls)) or 'none'}"
         f"{' and a constant' if fit.constant else ''}. n = {fit.n} "
         f"({fit.n_dropped} rows dropped for missing values"
         f"{f'; {fit.n_filtered} filtered out by the row filter {fit.where!r}' if fit.where else ''}"
@@ -96,7 +97,8 @@ def sweep_markdown(res) -> str:
          zip(res.instruments, res.direct_set, res.direct_set_rf, res.direct_set_sd)])
     notes = "".join(f"\n**Warning:** {n}\n" for n in res.notes)
     at = (f"\n## {at_heading(res)}\n\n{markdown_table(*at_cells(res))}" if res.at else "")
-    return (f"# Direct-effect sensitivity: {res.focus} → {res.outcome}\n\n"
+    return (f"# Direct-effect sensitivity: {labels.name(res.focus)} → "
+            f"{labels.name(res.outcome)}\n\n"
             f"n = {res.n}, covariance: {res.se_type}.\n\n## Assumed direct effects\n\n{ranges}\n"
             f"## Results\n\n{markdown_table(['quantity', 'value'], rows)}{notes}{at}\n"
             "## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
@@ -125,7 +127,7 @@ def curve_csv(res) -> str:
 
 
 def sweep_files(res) -> dict[str, str]:
-    return {"sweep.json": to_json(res.to_dict()), "sweep.md": sweep_markdown(res),
+    return {"sweep.json": to_json(labels.document(res.to_dict())), "sweep.md": sweep_markdown(res),
             "curve.csv": curve_csv(res)}
 
 
@@ -138,14 +140,14 @@ def prior_markdown(res) -> str:
             ["method", res.method],
             ["Monte Carlo error", "n/a" if res.mc_error is None else format_number(res.mc_error,
                                                                                    3)]]
-    return (f"# Prior interval: {res.focus} → {res.outcome}\n\n"
+    return (f"# Prior interval: {labels.name(res.focus)} → {labels.name(res.outcome)}\n\n"
             + markdown_table(["quantity", "value"], rows)
             + "\n## Assumptions\n\n" + "\n".join(f"- {a}" for a in res.assumptions())
             + f"\n\n> {prior.CAUTION}\n")
 
 
 def prior_files(res) -> dict[str, str]:
-    return {"prior.json": to_json(res.to_dict()), "prior.md": prior_markdown(res)}
+    return {"prior.json": to_json(labels.document(res.to_dict())), "prior.md": prior_markdown(res)}
 
 
 def discrete_markdown(result) -> str:
@@ -164,7 +166,8 @@ def discrete_markdown(result) -> str:
             for c in result.contrasts]
     ineq = result.inequality
     parts = [
-        f"# Discrete bounds: {t.treatment} on {t.outcome}, instrument {t.instrument}\n\n",
+        f"# Discrete bounds: {labels.name(t.treatment)} on {labels.name(t.outcome)}, instrument "
+        f"{labels.name(t.instrument)}\n\n",
         f"Data: {t.description}, n = {t.n} ({t.n_dropped} rows dropped for missing values). "
         f"Estimand: {result.estimand()}. Budget: {result.budget:g}"
         + (f"; monotone with defier budget {result.defier_budget:g}" if result.monotone

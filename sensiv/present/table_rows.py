@@ -4,6 +4,7 @@ breakdown, n, covariance, caution).  The analysis registry names the builder of 
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import Interval, format_number
 from sensiv.estimation import iv
 from sensiv.partial_id import correlation_results, discrete_results
@@ -18,7 +19,7 @@ def _pieces(pieces) -> tuple[Interval, ...]:
 
 
 def _ranges_text(names, boxes) -> str:
-    return ", ".join(f"{z} in {interval_text(b.low, b.high)}"
+    return ", ".join(f"{labels.name(z)} in {interval_text(b.low, b.high)}"
                      for z, b in zip(names, boxes))
 
 
@@ -33,12 +34,12 @@ def fit_rows(fit) -> list[TableRow]:
     """2SLS for every treatment, and the Anderson–Rubin set (one treatment)."""
     rows = []
     for name in fit.treatments:
-        rows.append(TableRow(f"2SLS: {name}", "exclusion restriction holds exactly",
+        rows.append(TableRow(f"2SLS: {labels.name(name)}", "exclusion restriction holds exactly",
                              fit.tsls.value(name), fit.tsls.std_error(name), None,
                              (fit.conf_int(name),), fit.confidence_level, None, NONE_TEXT,
                              fit.n, _covariance_text(fit), iv.CAUTION))
     if fit.ar_set is not None:
-        rows.append(TableRow(f"Anderson–Rubin set: {fit.treatments[0]}",
+        rows.append(TableRow(f"Anderson–Rubin set: {labels.name(fit.treatments[0])}",
                              "exclusion restriction holds exactly; valid with a weak first "
                              "stage", None, None, None, _pieces(fit.ar_set),
                              fit.confidence_level, None, NONE_TEXT, fit.n,
@@ -60,7 +61,8 @@ def _scale_words(res, scale: float | None, units) -> str:
     if scale == 0.0:
         return f"0: no conclusion about θ = {format_number(b.threshold)} at zero direct effect"
     sign = ">" if res.estimate > b.threshold else "<"
-    lead = f"{table_words(units)} = " if units is not None else ""
+    outcome = getattr(res, "outcome", "outcome")
+    lead = f"{table_words(units, outcome)} = " if units is not None else ""
     return (f"{lead}{format_number(scale)} × the stated set (β {sign} "
             f"{format_number(b.threshold)})")
 
@@ -80,31 +82,34 @@ def sweep_rows(res) -> list[TableRow]:
     shape = "polytope with bounding box " if res.polytope else ""
     words = f"direct effect in {shape}{_ranges_text(res.instruments, res.direct_set)}"
     cov = _covariance_text(res.fit)
-    rows = [TableRow(f"direct-effect sweep: {res.focus}", words, None, None,
+    rows = [TableRow(f"direct-effect sweep: {labels.name(res.focus)}", words, None, None,
                      (res.identified_set,), (res.union_ci,), res.confidence_level,
                      res.breakdown.scale, _sweep_breakdown(res), res.n, cov, bounds.CAUTION,
                      breakdown_units=res.breakdown.direct_units)]
     if res.bias_aware is not None:
-        rows.append(_bias_aware_row(res, f"bias-aware interval: {res.focus}", words, res.n,
-                                    cov))
+        rows.append(_bias_aware_row(res, f"bias-aware interval: {labels.name(res.focus)}",
+                                    words, res.n, cov))
     opt = getattr(res, "bias_aware_optimal", None)
     if opt is not None and opt.traced:
-        rows.append(TableRow(f"bias-aware interval, optimal weights: {res.focus}", words,
+        rows.append(TableRow(f"bias-aware interval, optimal weights: "
+                             f"{labels.name(res.focus)}", words,
                              opt.interval.estimate, opt.interval.se, None, (opt.interval.ci,),
                              res.confidence_level, None, NONE_TEXT, res.n, cov,
                              bounds.CAUTION))
     if res.ar_set is not None:
-        rows.append(TableRow(f"weak-IV-robust sweep: {res.focus}", words, None, None, None,
+        rows.append(TableRow(f"weak-IV-robust sweep: {labels.name(res.focus)}", words, None,
+                             None, None,
                              _pieces(res.ar_set), res.confidence_level, None, NONE_TEXT,
                              res.n, cov, bounds.CAUTION))
     return rows
 
 
 def prior_rows(res) -> list[TableRow]:
-    laws = "; ".join(f"{z} ~ {p}" for z, p in zip(res.instruments, res.priors))
+    laws = "; ".join(f"{labels.name(z)} ~ {p}" for z, p in zip(res.instruments, res.priors))
     method = res.method + ("" if res.mc_error is None else
                            f", Monte Carlo error {format_number(res.mc_error, 3)}")
-    return [TableRow(f"prior interval: {res.focus}", f"direct effect {laws} ({method})",
+    return [TableRow(f"prior interval: {labels.name(res.focus)}",
+                     f"direct effect {laws} ({method})",
                      res.center, None, None, (res.interval,), res.confidence_level, None,
                      NONE_TEXT, res.n, _covariance_text(res.fit), prior.CAUTION)]
 
@@ -123,7 +128,7 @@ def corrbound_rows(res) -> list[TableRow]:
                + (f", {b.clusters} clusters" if b.clusters is not None else ", rows"))
     else:
         cov = "no bootstrap"
-    return [TableRow(f"correlation bounds: {res.treatment}", words, None, None,
+    return [TableRow(f"correlation bounds: {labels.name(res.treatment)}", words, None, None,
                      _pieces(res.pieces), (res.ci,) if res.ci is not None else None,
                      res.confidence_level, k, text, res.n, cov, correlation_results.CAUTION)]
 
@@ -134,7 +139,8 @@ ESTIMAND_WORDS = ("bounds the average effect over all units, Σ_z P̂(z)·E[Y(1,
 
 def discrete_rows(res) -> list[TableRow]:
     t = res.table
-    words = (f"{t.instrument} randomised; changes {t.outcome} directly for at most "
+    words = (f"{labels.name(t.instrument)} randomised; changes {labels.name(t.outcome)} "
+             f"directly for at most "
              f"{format_number(res.budget)} of units"
              + (f"; monotone (defiers ≤ {format_number(res.defier_budget)})"
                 if res.monotone else "")
@@ -146,7 +152,7 @@ def discrete_rows(res) -> list[TableRow]:
         k = c.breakdown_budget
         text = _bound_breakdown("ε", k, res.threshold, "bounds")
         rows.append(TableRow(
-            f"discrete bounds: {t.treatment} {format_number(c.level)} vs "
+            f"discrete bounds: {labels.name(t.treatment)} {format_number(c.level)} vs "
             f"{format_number(c.base)}", words, None, None,
             (c.bounds,) if c.bounds is not None else (),
             (c.ci,) if c.ci is not None else None, res.confidence_level, k, text, t.n, cov,
@@ -201,18 +207,19 @@ def calibrate_rows(res) -> list[TableRow]:
     rows = []
     for k, z in enumerate(s.instruments):
         rows.append(TableRow(
-            f"calibration scale: reduced form of {z}",
-            f"a reference scale, no assumption: a direct effect d of {z} reads as "
+            f"calibration scale: reduced form of {labels.name(z)}",
+            f"a reference scale, no assumption: a direct effect d of {labels.name(z)} reads as "
             f"d / reduced form or d · SD({z}) / SD({res.outcome}); SD({z}) = "
             f"{end_text(float(s.instrument_sd[k]))}, SD({res.outcome}) = {end_text(s.outcome_sd)}",
             float(s.reduced_form[k]), None, None, None, level, None, NONE_TEXT, res.n,
             "none (point values)", calibrate.CAUTION))
     for b in res.yardsticks:
-        left = ", ".join(b.columns)
+        left = ", ".join(map(labels.name, b.columns))
         rows.append(TableRow(
-            f"yardstick: {_direct_of(b.instrument)} without {b.name}",
+            f"yardstick: {_direct_of(b.instrument)} without {labels.name(b.name)}",
             f"an unobserved direct effect comparable to the shift in the reduced form of "
-            f"{b.instrument} when {left} {'are' if len(b.columns) > 1 else 'is'} left out "
+            f"{labels.name(b.instrument)} when {left} "
+            f"{'are' if len(b.columns) > 1 else 'is'} left out "
             "(a judgement, not a test)",
             b.implied_direct, None, None, None, level, None, NONE_TEXT, res.n,
             "none (point values)", calibrate.CAUTION, b.implied_direct_rf, b.implied_direct_sd,
@@ -237,7 +244,7 @@ def calibrate_rows(res) -> list[TableRow]:
 
 def _direct_of(instrument: str) -> str:
     """How a calibration row names the instrument whose direct effect it measures."""
-    return f"direct effect of {instrument}"
+    return f"direct effect of {labels.name(instrument)}"
 
 
 def _bound_breakdown(symbol: str, value: float | None, threshold: float, what: str) -> str:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.present.tables import table_cells
 from sensiv.present.text_clusters import cluster_count_text
@@ -31,8 +32,8 @@ def fit_summary(fit) -> str:
     pct = f"{100 * fit.confidence_level:g}%"
     se_label = fit.se_type + (", small-sample" if fit.small else "")
     lines = [
-        f"2SLS of {fit.outcome} on {', '.join(fit.treatments)} "
-        f"(instruments: {', '.join(fit.instruments)})",
+        f"2SLS of {labels.name(fit.outcome)} on {', '.join(map(labels.name, fit.treatments))} "
+        f"(instruments: {', '.join(map(labels.name, fit.instruments))})",
         f"n = {fit.n} (dropped {fit.n_dropped} with missing values"
         + (f"; {fit.n_filtered} filtered out by {fit.where!r}" if fit.where else "") + ")"
         + (f", clusters = {cluster_count_text(fit)}" if fit.n_clusters is not None else "")
@@ -89,7 +90,7 @@ def sweep_summary(res) -> str:
     pct = f"{100 * res.confidence_level:g}%"
     b = res.breakdown
     lines = [
-        f"Direct-effect sensitivity of the effect of {res.focus} on {res.outcome} "
+        f"Direct-effect sensitivity of the {labels.effect_words(res.focus, res.outcome)} "
         f"(n = {res.n}, covariance: {res.se_type})",
         f"2SLS at zero direct effect: {format_number(res.estimate)} "
         f"(se {format_number(res.se)})",
@@ -98,7 +99,7 @@ def sweep_summary(res) -> str:
         "instrument SD):",
     ]
     for z, a, r, s in zip(res.instruments, res.direct_set, res.direct_set_rf, res.direct_set_sd):
-        lines.append(f"  {z}: {a} | {r} | {s}")
+        lines.append(f"  {labels.name(z)}: {a} | {r} | {s}")
     lines += [
         "",
         f"Identified set (no sampling error):    {res.identified_set}",
@@ -110,13 +111,14 @@ def sweep_summary(res) -> str:
         f"Weak-instrument-robust {pct} set:      {_pieces(res.ar_set)}"
         + (f" ({res.ar_method})" if res.ar_method else ""),
         "",
-        f"Conclusion examined: {b.conclusion}",
-        "Breakdown: " + breakdown_sentence(b.scale, b.direct_units),
+        f"Conclusion examined: {labels.leading(b.conclusion, res.focus)}",
+        "Breakdown: " + breakdown_sentence(b.scale, b.direct_units, outcome=res.outcome),
     ]
     lines += crossing_lines(res.instruments, b)
     if res.bias_aware is not None:
         lines.append("Bias-aware breakdown: "
-                     + bias_aware_breakdown(b.bias_aware_scale, units=b.bias_aware_units))
+                     + bias_aware_breakdown(b.bias_aware_scale, units=b.bias_aware_units,
+                                          outcome=res.outcome))
     if res.at:
         lines += ["", at_heading(res) + ":", *_table(*at_cells(res))]
     if res.fit.overid is not None:
@@ -136,11 +138,12 @@ def prior_summary(res) -> str:
     """Text summary of a :class:`sensiv.sensitivity.prior.PriorResult`."""
     pct = f"{100 * res.confidence_level:g}%"
     lines = [
-        f"Prior interval for the effect of {res.focus} on {res.outcome} "
+        f"Prior interval for the {labels.effect_words(res.focus, res.outcome)} "
         f"(n = {res.n}, covariance: {res.se_type})",
         f"2SLS at zero direct effect: {format_number(res.estimate)} "
         f"(se {format_number(res.se)})",
-        "Prior: " + "; ".join(f"{z} ~ {p}" for z, p in zip(res.instruments, res.priors)),
+        "Prior: " + "; ".join(f"{labels.name(z)} ~ {p}"
+                              for z, p in zip(res.instruments, res.priors)),
         "",
         f"{pct} prior interval: {res.interval}  (center {format_number(res.center)}, "
         f"method: {res.method}"

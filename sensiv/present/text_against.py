@@ -6,6 +6,7 @@
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.present.tables import markdown_table
 
@@ -20,10 +21,11 @@ def ratio_words(ratio: float) -> str:
 def _part(comparison, k: int, z: str) -> str:
     b, rf = comparison.breakdown[k], comparison.breakdown_rf[k]
     share = f" ({format_number(100 * rf)}% of its reduced form)" if rf is not None else ""
-    text = f"a direct effect of {z} up to {format_number(b)}{share}"
+    text = f"a direct effect of {labels.name(z)} up to {format_number(b)}{share}"
     item = next((i for i in comparison.largest if i.instrument == z), None)
     if item is not None and item.ratio is not None:
-        text += (f"; leaving out {item.yardstick} would imply {format_number(item.implied)}, "
+        text += (f"; leaving out {labels.name(item.yardstick)} would imply "
+                 f"{format_number(item.implied)}, "
                  f"{ratio_words(item.ratio)}")
     return text
 
@@ -33,16 +35,17 @@ def against_sentence(comparison) -> str:
     each beside it; without a conclusion or a breakdown, the largest yardstick alone."""
     if comparison.conclusion.startswith("none"):
         return ("There is no conclusion at zero direct effect to set against the yardsticks "
-                f"({comparison.conclusion}).")
+                f"({labels.leading(comparison.conclusion)}).")
     if any(b is None for b in comparison.breakdown):
-        largest = "; ".join(f"leaving out {i.yardstick} would imply a direct effect of "
-                            f"{i.instrument} of {format_number(i.implied)}"
+        largest = "; ".join(f"leaving out {labels.name(i.yardstick)} would imply a direct "
+                            f"effect of {labels.name(i.instrument)} of "
+                            f"{format_number(i.implied)}"
                             for i in comparison.largest)
-        return (f"The conclusion ({comparison.conclusion}) does not break within the scales "
+        return (f"The conclusion ({labels.leading(comparison.conclusion)}) does not break within the scales "
                 "examined" + (f"; {largest}." if largest else "."))
     parts = [_part(comparison, k, z) for k, z in enumerate(comparison.instruments)]
     together = " together" if len(parts) > 1 else ""
-    return (f"The conclusion ({comparison.conclusion}) survives{together} "
+    return (f"The conclusion ({labels.leading(comparison.conclusion)}) survives{together} "
             + "; and ".join(parts) + ".")
 
 
@@ -57,7 +60,8 @@ def combined_text(sweep_text: str, calibration_text: str, comparison) -> str:
 
 def combined_markdown(comparison) -> str:
     """``against_yardsticks.md``: the sentence and every yardstick beside the breakdown."""
-    rows = [[i.instrument, f"without {i.yardstick}", format_number(i.implied),
+    rows = [[labels.name(i.instrument), f"without {labels.name(i.yardstick)}",
+             format_number(i.implied),
              "—" if i.implied_rf is None else f"{format_number(100 * i.implied_rf)}%",
              "—" if i.ratio is None else format_number(i.ratio, 2)]
             for i in comparison.items]

@@ -15,14 +15,15 @@ def bias_aware_line(ba, confidence_level: float) -> str:
             f"{format_number(ba.critical_value)}; Armstrong & Kolesar 2021)")
 
 
-def bias_aware_breakdown(scale: float | None, what: str = "set", units=None) -> str:
+def bias_aware_breakdown(scale: float | None, what: str = "set", units=None,
+                         outcome: str = "outcome") -> str:
     """The bias-aware breakdown scale in words (``what``: "set" or "range"), led by the
     direct effect it stands for when ``units`` (a ``DirectUnits``) is given."""
     if scale is None:
         return f"the bias-aware interval stays clear for every scaling of the {what} up to 1000x"
     if scale == 0.0:
         return "the bias-aware interval at zero direct effect has no conclusion to break"
-    lead = (f"at {direct_effect_words(units)}, that is " if units is not None else "")
+    lead = (f"at {direct_effect_words(units, outcome)}, that is " if units is not None else "")
     return (f"the bias-aware interval reaches the threshold {lead}when the {what} is scaled "
             f"by {format_number(scale)}")
 

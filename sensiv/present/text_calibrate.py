@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.estimation import iv
 from sensiv.present.tables import markdown_table
@@ -56,8 +57,9 @@ def calibration_text(cal: Calibration) -> str:
     """Plain-text summary (formatting only)."""
     s = cal.scale
     lines = [
-        f"Calibration of direct effects on {cal.outcome} "
-        f"(treatment: {', '.join(cal.treatments)}; instruments: {', '.join(cal.instruments)}; "
+        f"Calibration of direct effects on {labels.name(cal.outcome)} "
+        f"(treatment: {', '.join(map(labels.name, cal.treatments))}; instruments: "
+        f"{', '.join(map(labels.name, cal.instruments))}; "
         f"n = {cal.n}, dropped {cal.n_dropped} with missing values"
         + (f", {cal.n_filtered} filtered out by {cal.where!r}" if cal.where else "") + ")",
         "",
@@ -89,9 +91,10 @@ def calibration_markdown(cal: Calibration) -> str:
     """Markdown report (formatting only)."""
     s = cal.scale
     parts = [
-        f"# Calibration of direct effects on {cal.outcome}\n\n",
-        f"Treatment: {', '.join(cal.treatments)}. Instruments: {', '.join(cal.instruments)}. "
-        f"Controls: {', '.join(cal.controls) or 'none'}. n = {cal.n}.\n\n",
+        f"# Calibration of direct effects on {labels.name(cal.outcome)}\n\n",
+        f"Treatment: {', '.join(map(labels.name, cal.treatments))}. Instruments: "
+        f"{', '.join(map(labels.name, cal.instruments))}. "
+        f"Controls: {', '.join(map(labels.name, cal.controls)) or 'none'}. n = {cal.n}.\n\n",
         "## Scale\n\nA direct effect d of instrument z reads as d / RF (share of the reduced "
         "form) or d · SD(z) / SD(y) (SD units).\n\n",
         markdown_table(["instrument", "reduced form", "instrument SD"],

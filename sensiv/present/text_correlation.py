@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.partial_id.correlation_results import CAUTION, CorrelationBounds
 
@@ -74,11 +75,11 @@ def summary_lines(result: CorrelationBounds, *, markdown: bool) -> list[str]:
     """
     pct = f"{100 * result.confidence_level:g}%"
     r = format_number(result.max_ratio)
-    title = (f"Correlation-restriction bounds (Nevo & Rosen 2012): effect of "
-             f"{result.treatment} on {result.outcome}")
+    title = (f"Correlation-restriction bounds (Nevo & Rosen 2012): "
+             f"{labels.effect_words(result.treatment, result.outcome)}")
     lines = [f"# {title}" if markdown else title, ""]
-    lines.append(f"Instruments: {', '.join(result.instruments)}; controls: "
-                 f"{', '.join(result.controls) if result.controls else 'none'}"
+    lines.append(f"Instruments: {', '.join(map(labels.name, result.instruments))}; controls: "
+                 f"{', '.join(map(labels.name, result.controls)) or 'none'}"
                  f"{' and a constant' if result.constant else ''}; n = {result.n} "
                  f"({result.n_dropped} rows dropped for missing values"
                  f"{f'; {result.n_filtered} filtered out by {result.where!r}' if result.where else ''})"

@@ -5,6 +5,7 @@ comes from the result.
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.partial_id.discrete_data import plain_number
 from sensiv.partial_id.discrete_results import CAUTION, DiscreteBounds
@@ -20,11 +21,12 @@ def discrete_summary(result: DiscreteBounds) -> str:
                              (t.treatment, t.treatment_levels),
                              (t.outcome, t.outcome_levels)))
     lines = [
-        f"Discrete bounds: effect of {t.treatment} on {t.outcome}, instrument {t.instrument}",
+        f"Discrete bounds: {labels.effect_words(t.treatment, t.outcome)}, instrument "
+        f"{labels.name(t.instrument)}",
         f"Data: {t.description}, n = {t.n} ({t.n_dropped} rows dropped for missing values); "
         f"levels {levels}",
         f"Estimand: {result.estimand()}",
-        f"Budget for direct effects of {t.instrument}: {result.budget:g}"
+        f"Budget for direct effects of {labels.name(t.instrument)}: {result.budget:g}"
         + (f"; monotone, defier budget {result.defier_budget:g}" if result.monotone else ""),
         "",
     ]

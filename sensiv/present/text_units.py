@@ -4,10 +4,18 @@ form and in outcome SDs per instrument SD (formatting only; the numbers come fro
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 
 
-def one_instrument(units, k: int) -> str:
+def outcome_amount(value: float, outcome: str = "outcome", instrument: str = "") -> str:
+    """A direct effect in outcome units: ``0.01417 t/ha`` when the label of ``outcome`` states
+    its unit (``t/ha per metre`` with the instrument's), else ``0.01417 in outcome units``."""
+    unit = labels.direct_unit(outcome, instrument)
+    return f"{format_number(value)} {unit}" if unit else f"{format_number(value)} in outcome units"
+
+
+def one_instrument(units, k: int, outcome: str = "outcome") -> str:
     """Instrument ``k``'s direct effect in every available unit, e.g. ``0.01417 in outcome
     units (31.02% of the reduced form; 0.1103 outcome SD per instrument SD)``."""
     extra = []
@@ -15,19 +23,21 @@ def one_instrument(units, k: int) -> str:
         extra.append(f"{format_number(100 * units.rf[k])}% of the reduced form")
     if units.sd[k] is not None:
         extra.append(f"{format_number(units.sd[k])} outcome SD per instrument SD")
-    text = f"{format_number(units.outcome[k])} in outcome units"
+    text = outcome_amount(units.outcome[k], outcome, units.instruments[k])
     return text + (f" ({'; '.join(extra)})" if extra else "")
 
 
-def direct_effect_words(units) -> str:
+def direct_effect_words(units, outcome: str = "outcome") -> str:
     """The direct effects of a breakdown set, one instrument or several together."""
     if len(units.instruments) == 1:
-        return f"a direct effect of {one_instrument(units, 0)}"
-    parts = [f"{z}: {one_instrument(units, k)}" for k, z in enumerate(units.instruments)]
+        return f"a direct effect of {one_instrument(units, 0, outcome)}"
+    parts = [f"{labels.name(z)}: {one_instrument(units, k, outcome)}"
+             for k, z in enumerate(units.instruments)]
     return "direct effects of " + ", ".join(parts) + " (all at once, each as large in absolute value)"
 
 
-def breakdown_sentence(scale: float | None, units, what: str = "set") -> str:
+def breakdown_sentence(scale: float | None, units, what: str = "set",
+                       outcome: str = "outcome") -> str:
     """The breakdown in words: the direct effect first, the scale of the stated ``what``
     ("set" or "range") second.  ``scale`` is ``None`` (no breakdown within 1000×) or ``0``
     (no conclusion at zero direct effect) or a positive breakdown scale."""
@@ -38,12 +48,12 @@ def breakdown_sentence(scale: float | None, units, what: str = "set") -> str:
                 "the threshold")
     verdict = (f"it survives the assumed {what}" if scale > 1 else
                f"it does NOT survive the assumed {what}")
-    lead = (f"the conclusion holds up to {direct_effect_words(units)}"
+    lead = (f"the conclusion holds up to {direct_effect_words(units, outcome)}"
             if units is not None else "the conclusion holds")
     return f"{lead}; that is {format_number(scale)} × the stated {what} ({verdict})"
 
 
-def table_words(units) -> str:
+def table_words(units, outcome: str = "outcome") -> str:
     """Compact words for a table cell: ``direct effect up to 0.01417 (31.02% of reduced
     form; 0.1103 SD)`` per instrument (largest absolute value of the scaled set)."""
     parts = []
@@ -53,8 +63,9 @@ def table_words(units) -> str:
             extra.append(f"{format_number(100 * units.rf[k])}% of reduced form")
         if units.sd[k] is not None:
             extra.append(f"{format_number(units.sd[k])} SD")
-        name = f"{z} " if len(units.instruments) > 1 else ""
-        parts.append(f"{name}{format_number(units.outcome[k])}"
+        name = f"{labels.name(z)} " if len(units.instruments) > 1 else ""
+        unit = labels.direct_unit(outcome, z)
+        parts.append(f"{name}{format_number(units.outcome[k])}{' ' + unit if unit else ''}"
                      + (f" ({'; '.join(extra)})" if extra else ""))
     return "direct effect up to " + ", ".join(parts)
 
@@ -69,12 +80,12 @@ def crossing_lines(instruments, b) -> list[str]:
         lo_t = "none" if lo is None else format_number(lo)
         hi_t = "none" if hi is None else format_number(hi)
         if b.scale == 0:
-            lines.append(f"  {z} alone: a conclusion about {theta} would first appear at a "
-                         f"direct effect of {lo_t} (nearest below zero) or {hi_t} (nearest "
+            lines.append(f"  {labels.name(z)} alone: a conclusion about {theta} would first "
+                         f"appear at a direct effect of {lo_t} (nearest below zero) or {hi_t} (nearest "
                          "above zero), where the interval stops containing it")
         else:
-            lines.append(f"  {z} alone: an end of the interval crosses {theta} at a direct "
-                         f"effect of {lo_t} (nearest below zero) or {hi_t} (nearest above "
+            lines.append(f"  {labels.name(z)} alone: an end of the interval crosses {theta} at "
+                         f"a direct effect of {lo_t} (nearest below zero) or {hi_t} (nearest above "
                          "zero)")
     return lines
 
@@ -86,7 +97,7 @@ def units_cells(units, what: str) -> list[list[str]]:
         return []
     rows = []
     for k, z in enumerate(units.instruments):
-        name = f", {z}" if len(units.instruments) > 1 else ""
+        name = f", {labels.name(z)}" if len(units.instruments) > 1 else ""
         rf = "n/a" if units.rf[k] is None else f"{format_number(100 * units.rf[k])}%"
         sd = "n/a" if units.sd[k] is None else format_number(units.sd[k])
         rows.append([f"{what} direct effect{name} (outcome units / share of reduced form / "

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from sensiv.core import labels
 from sensiv.core.version import __version__
 from sensiv.analyses.against import marked_curve
 from sensiv.analyses.outputs import figure_files, results_table, summary_figure, table_files
@@ -40,27 +41,35 @@ def run_files(run, formats: Sequence[str] = ("png",), note: str | None = None
                                  + (f" with seed {run.recipe.seed}" if run.recipe.seed is not None
                                     else "") + ".")]
     for study in run.recipe.studies:
-        runs = [r for r in run.runs if r.study == study.name]
-        blocks.append(Block("heading", f"Study: {study.name}", 2))
-        if study.description:
-            blocks.append(Block("paragraph", study.description))
-        effects = [r for r in runs if is_tabled(r.result) and entry(r.analysis.kind).in_summary]
-        summarised = set()
-        if len(effects) > 1:
-            blocks += _summary_blocks(study.name, effects, formats, note, files)
-            summarised = {id(r) for r in effects}
-        against = comparisons(runs)
-        blocks += [Block("paragraph", f"{HEADING}: {against_sentence(c)}")
-                   for c in against.values()]
-        for r in runs:
-            blocks += _analysis_blocks(r, formats, note, files, id(r) in summarised,
-                                       against.get(id(r)))
-            files[f"results/{r.stem}.json"] = to_json(r.result.to_dict())
+        with labels.using(study.labels):
+            blocks += _study_blocks(study, [r for r in run.runs if r.study == study.name],
+                                    formats, note, files)
     files["report.md"] = render_markdown(blocks)
     files["report.html"] = render_html(blocks, run.recipe.title)
     if word_available():
         files["report.docx"] = render_docx(blocks, run.recipe.title)
     return files
+
+
+def _study_blocks(study, runs, formats, note, files) -> list[Block]:
+    """One study's part of the report (its headline table and figure, the sentence against
+    the yardsticks, each analysis); its result files go into ``files``."""
+    blocks = [Block("heading", f"Study: {study.name}", 2)]
+    if study.description:
+        blocks.append(Block("paragraph", study.description))
+    effects = [r for r in runs if is_tabled(r.result) and entry(r.analysis.kind).in_summary]
+    summarised = set()
+    if len(effects) > 1:
+        blocks += _summary_blocks(study.name, effects, formats, note, files)
+        summarised = {id(r) for r in effects}
+    against = comparisons(runs)
+    blocks += [Block("paragraph", f"{HEADING}: {against_sentence(c)}")
+               for c in against.values()]
+    for r in runs:
+        blocks += _analysis_blocks(r, formats, note, files, id(r) in summarised,
+                                   against.get(id(r)))
+        files[f"results/{r.stem}.json"] = to_json(labels.document(r.result.to_dict()))
+    return blocks
 
 
 def comparisons(runs) -> dict:

@@ -10,10 +10,13 @@ from pathlib import Path
 from typing import Any
 
 from sensiv.analyses.registry import KINDS
+from sensiv.core import labels
 from sensiv.core.errors import InputError
+from sensiv.core.labels import Labels
 from sensiv.data import ENGINES
 from sensiv.data.datasets import is_dataset
 from sensiv.data.where import parse_filter
+from sensiv.sensitivity.published_covariance import ROLES as PUBLISHED_ROLES
 from sensiv.recipes.schema import (COMMON_KEYS, DATA_KEYS, FORMATS, INFERENCE_KEYS, SE_CHOICES,
                                    STUDY_KEYS, TOP_KEYS, Analysis, Recipe, Study)
 
@@ -175,7 +178,36 @@ def _study(table: Mapping, where: str, lines: KeyLines, base: Path, index: int,
     if not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
         raise lines.fail("name", f"study name {name!r} may hold only letters, digits, '_', "
                                  "'.' and '-' (it names output files)")
-    return Study(name, table.get("description", ""), data, inference, analyses)
+    return Study(name, table.get("description", ""), data, inference, analyses,
+                 _labels(table, data, where, lines))
+
+
+DATA_ROLES = ("outcome", "treatments", "instruments", "controls", "categorical", "absorb",
+              "cluster", "weight")
+"""Keys of ``[study.data]`` that name columns (the columns ``[study.labels]`` may name)."""
+
+
+def _labels(table: Mapping, data: Mapping | None, where: str, lines: KeyLines) -> Labels:
+    """``[study.labels]``: text values, for columns the study's data roles name (or, for a
+    study of printed numbers only, ``outcome``, ``treatment`` and ``instrument``)."""
+    entries = table.get("labels", {})
+    for column, text in entries.items():
+        if not isinstance(text, str):
+            raise lines.fail(column, f"label of {column!r} in {where}.labels is {text!r}, not a "
+                                     f"text: write {column} = \"Irrigation (hours)\"")
+    if data is None:
+        columns = list(PUBLISHED_ROLES)
+    else:
+        columns = [name for key in DATA_ROLES
+                   for name in ([data[key]] if isinstance(data.get(key), str)
+                                else data.get(key) or [])]
+    try:
+        parsed = labels.parse(entries, option=f"{where}.labels")
+        labels.check_columns(parsed, columns, option=f"{where}.labels")
+    except InputError as exc:
+        bad = next((c for c in entries if c not in columns), "labels")
+        raise lines.fail(bad, str(exc)) from exc
+    return parsed
 
 
 def _holds_data(path: Path) -> bool:

@@ -12,6 +12,7 @@ from typing import Any
 from sensiv.analyses.kind import RunContext
 from sensiv.analyses.registry import entry
 from sensiv.core.errors import InputError
+from sensiv.core.results import with_labels
 from sensiv.data import Spec, from_file, from_frame, read_table, with_engine
 from sensiv.data.datasets import is_dataset
 from sensiv.recipes.parse import KeyLines, parse_recipe, recipe_text
@@ -71,6 +72,8 @@ def run_recipe(recipe: Recipe | str | Path) -> RunResult:
                 result = kind.run(context, analysis.options)
             except InputError as exc:
                 raise in_recipe_terms(exc, recipe, study, index, first + index - 1) from exc
+            if study.labels:  # its text, HTML and figures then read the study's labels
+                result = with_labels(result, study.labels)
             runs.append(AnalysisRun(study.name, index, analysis, result))
         first += len(study.analyses)
     return RunResult(recipe, tuple(runs))

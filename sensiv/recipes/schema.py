@@ -29,6 +29,10 @@ the recipe file)::
                                    #   also be a directory or glob of files, or file.duckdb::table
     scheduler = "tcp://host:8786"  # optional, with engine = "dask": a running Dask scheduler
 
+    [study.labels]                 # optional: names for readers (figures, text; not JSON keys)
+    maize_yield = "Maize yield (t/ha)"          # a trailing (unit) gives the column's unit
+    irrigation_hours = "Irrigation (hours)"
+
     [study.inference]              # optional
     se = "cluster"                 # classic | robust | cluster
     level = 0.95
@@ -48,6 +52,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from sensiv.core.labels import NONE, Labels
+
 FORMATS = ("png", "pdf", "svg")
 SE_CHOICES = ("classic", "robust", "cluster")
 
@@ -55,9 +61,10 @@ SE_CHOICES = ("classic", "robust", "cluster")
 # types accepts any of them (``cluster``: one name, or a list of two for two-way
 # clustering).  The keys of each analysis kind are its registry entry's ``options``.
 TOP_KEYS = {"title": str, "seed": int, "formats": list, "study": list, "name": str,
-            "description": str, "data": dict, "inference": dict, "analysis": list}
+            "description": str, "data": dict, "inference": dict, "analysis": list,
+            "labels": dict}
 STUDY_KEYS = {"name": str, "description": str, "data": dict, "inference": dict,
-              "analysis": list}
+              "analysis": list, "labels": dict}
 DATA_KEYS = {"path": str, "outcome": str, "treatments": list, "instruments": list,
              "controls": list, "cluster": (str, list), "weight": str, "constant": bool,
              "where": str, "categorical": list, "absorb": list, "absorb_tolerance": float, "engine": str,
@@ -85,6 +92,7 @@ class Study:
     data: dict[str, Any] | None
     inference: dict[str, Any]
     analyses: tuple[Analysis, ...]
+    labels: Labels = NONE          # [study.labels]: column → reader-facing name
 
 
 @dataclass(frozen=True, slots=True)

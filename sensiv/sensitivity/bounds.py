@@ -146,6 +146,7 @@ class SweepResult(Presentable):
     union_method: UnionMethod | None = None
     at: tuple[AtPoint, ...] = ()            # intervals at the --at grid of direct effects
     bias_aware_optimal: OptimalBiasAware | None = None   # overidentified models
+    direct_polytope: DirectSet | None = None   # the set Γ itself, for a polytope sweep
 
     def assumptions(self) -> list[str]:
         ranges = ", ".join(f"{z} in {r}" for z, r in zip(self.instruments, self.direct_set))
@@ -343,7 +344,8 @@ def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int,
         ar_method=ar_method, scale=scale, fit=result, notes=tuple(dict.fromkeys(notes)),
         frontier=frontier, curve_extended=extended, adaptive=fas, bias_aware=ba,
         union_method=method, bias_aware_optimal=optimal,
-        at=at_points(core, scale, at, level, uninformative))
+        at=at_points(core, scale, at, level, uninformative),
+        direct_polytope=dset if dset.box is None else None)
 
 
 def with_units(breakdown: Breakdown, box, reduced_form, outcome_sd, instrument_sd,

@@ -66,6 +66,8 @@ from sensiv.sensitivity.union import (breakdown_scale, direct_breakdown, identif
 
 FOCUS = "treatment"          # published numbers carry no column names
 INSTRUMENT = "instrument"
+OUTCOME = "outcome"
+ROLES = (OUTCOME, FOCUS, INSTRUMENT)   # what --label / [study.labels] name for printed numbers
 # Below this |B|·SP relative to S·|P| the back-out c = (…)/(2B) has lost every digit.
 BACKOUT_TOL = 1e-12
 

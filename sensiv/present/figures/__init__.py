@@ -18,6 +18,8 @@ One module per figure kind, over a shared :mod:`~sensiv.present.figures.style`:
 - :mod:`~sensiv.present.figures.frontier` — :func:`breakdown_frontier`
   (both read a sweep or a published stress test through
   :mod:`~sensiv.present.figures.direct`)
+- :mod:`~sensiv.present.figures.polytope` — :func:`polytope_figure` (a polytope sweep over
+  two instruments: the set itself)
 - :mod:`~sensiv.present.figures.prior_map` — :func:`prior_map`
 - :mod:`~sensiv.present.figures.discrete` — :func:`discrete_curve`
 - :mod:`~sensiv.present.figures.correlation` — :func:`correlation_curve`
@@ -40,6 +42,7 @@ from sensiv.present.figures.correlation import correlation_curve
 from sensiv.present.figures.curve import sensitivity_curve
 from sensiv.present.figures.discrete import discrete_curve
 from sensiv.present.figures.frontier import breakdown_frontier
+from sensiv.present.figures.polytope import polytope_figure
 from sensiv.present.figures.prior_map import prior_map
 from sensiv.present.figures.style import FORMATS, save_figure
 from sensiv.present.figures.summary import (SummaryItem, correlation_items, discrete_items,
@@ -49,5 +52,5 @@ from sensiv.present.figures.summary import (SummaryItem, correlation_items, disc
 __all__ = ["FORMATS", "SummaryItem", "breakdown_frontier", "calibration_yardsticks",
            "correlation_curve", "correlation_items", "discrete_curve", "discrete_items",
            "distinct_rows",
-           "fit_items", "prior_items", "prior_map", "published_items", "save_figure",
+           "fit_items", "polytope_figure", "prior_items", "prior_map", "published_items", "save_figure",
            "sensitivity_curve", "summary_intervals", "sweep_items"]

@@ -7,6 +7,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from sensiv.core import labels
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, format_number
 from sensiv.estimation.iv import WEAK_F
@@ -92,10 +93,10 @@ def _interval_label(z) -> str | None:
 def _calibration_rows(cal, single: bool) -> list[_CalibrationRow]:
     rows = []
     for b in cal.yardsticks:
-        label = f"without {b.name}" + ("" if b.columns == (b.name,) else
-                                       f" ({', '.join(b.columns)})")
+        label = f"without {labels.name(b.name)}" + ("" if b.columns == (b.name,) else
+                                          f" ({', '.join(map(labels.name, b.columns))})")
         if not single:
-            label += f" · {b.instrument}"
+            label += f" · {labels.name(b.instrument)}"
         rf = abs(float(cal.scale.reduced_form[cal.instruments.index(b.instrument)]))
         share = b.implied_direct_rf if not single else (b.implied_direct / rf if rf > 0
                                                         else math.nan)
@@ -106,7 +107,8 @@ def _calibration_rows(cal, single: bool) -> list[_CalibrationRow]:
     if z is not None:
         for k, name in enumerate(z.instruments):
             interval = z.interval[k] if single else z.interval_rf[k]
-            label = f"zero first stage ({z.group} == 1)" + ("" if single else f" · {name}")
+            label = (f"zero first stage ({z.group} == 1)"
+                     + ("" if single else f" · {labels.name(name)}"))
             ci = z.interval[k]
             numbers = minus(f"{format_number(float(z.direct[k]), 3)} "
                             f"[{format_number(ci.low, 3)}, {format_number(ci.high, 3)}]")
@@ -150,7 +152,8 @@ def _x_axes(ax, cal, single: bool) -> bool:
 
         # plain numbers on the ticks: no offset or ×10^k factor dangling beside the label
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: minus(format_number(v, 3))))
-        ax.set_xlabel(f"implied direct effect of {', '.join(cal.instruments)} on {cal.outcome}")
+        ax.set_xlabel(f"implied direct effect of {', '.join(map(labels.name, cal.instruments))} on "
+                      f"{labels.name(cal.outcome)}")
         return _rf_share_axis(ax, float(cal.scale.reduced_form[0]), cal.instruments[0])
     from matplotlib.ticker import PercentFormatter
 
@@ -171,7 +174,7 @@ def _rf_share_axis(ax, reduced_form: float, z: str) -> bool:
     top = ax.secondary_xaxis("top", functions=(lambda x: x / size, lambda s: s * size))
     top.xaxis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]))
     top.xaxis.set_major_formatter(PercentFormatter(xmax=1.0))
-    top.set_xlabel(f"share of |reduced form| of {z} (reduced form "
+    top.set_xlabel(f"share of |reduced form| of {labels.name(z)} (reduced form "
                    f"{minus(format_number(reduced_form, 3))})",
                    fontsize=SMALL_PT, color=GREY)
     top.tick_params(labelsize=SMALL_PT, colors=GREY)
@@ -181,14 +184,15 @@ def _rf_share_axis(ax, reduced_form: float, z: str) -> bool:
 def _caption(cal, single: bool) -> list[str]:
     """What the bars and the point assume, and the sample size."""
     z = cal.zero_first_stage
-    instruments = ", ".join(cal.instruments)
+    instruments = ", ".join(map(labels.name, cal.instruments))
     caption = ["Reference magnitudes, not the true direct effect."]
     which = (f"of {instruments}" if single else
              f"of each instrument ({instruments}; the x-axis in shares of its own reduced "
              "form, the numbers at the right in outcome units)")
     if cal.yardsticks:
         caption.append(
-            f"Bars: the shift in the reduced-form coefficient {which} on {cal.outcome} when "
+            f"Bars: the shift in the reduced-form coefficient {which} on "
+            f"{labels.name(cal.outcome)} when "
             "the named control is left out (without minus with). Assumption: an "
             "unobserved violation of the exclusion restriction is comparable in size to "
             "the confounding that an observed control removes (a judgement, not a test).")
@@ -199,7 +203,8 @@ def _caption(cal, single: bool) -> list[str]:
             f"{pct(z.confidence_level)} interval ({z.se_type} covariance, "
             f"n{NBSP}={NBSP}{z.n}). Assumption: there the "
             f"{'instrument does' if single else 'instruments do'} not move "
-            f"{', '.join(cal.treatments)}, and the direct effect is as in the whole sample."
+            f"{', '.join(map(labels.name, cal.treatments))}, and the direct effect is as in "
+            "the whole sample."
             + (f" The first-stage F there is {f_words} (≥ {format_number(WEAK_F)}): the "
                "premise looks false." if z.premise_doubtful else ""))
     caption.append(f"Whole sample: n{NBSP}={NBSP}{cal.n}.")

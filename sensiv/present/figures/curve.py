@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import math
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.present.figures.direct import (DirectAxis, DirectView, direct_axis, direct_view,
                                            share_axis, thin_x_ticks)
@@ -88,7 +89,7 @@ def sensitivity_curve(sweep, ax=None, *, note: str | None = None, yardsticks=Non
         words = _mark_curve_breakdown(ax, sweep, axis, x[-1], unbounded)
         marked = draw_marks(ax, marks, x[-1])
         ax.set_xlabel(axis.label)
-        ax.set_ylabel(f"β, effect of {sweep.focus}")
+        ax.set_ylabel(labels.axis_label("β, ", sweep.focus, sweep.outcome))
         top = share_axis(ax, axis, x[-1])
         caption = [sweep.caption, *([words] if words else []), *([marked] if marked else [])]
         return finish(canvas, caption, note=note, top_axis=top)

@@ -16,6 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from sensiv.core import labels
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, format_number
 from sensiv.present.figures.style import GREY, NBSP, SMALL_PT, minus, pct
@@ -48,7 +49,10 @@ def direct_axis(sweep) -> DirectAxis:
     """The x-axis of a :class:`DirectView` (or a sweep): unit, label and top-axis share."""
     rf = sweep.direct_set_rf
     if len(sweep.instruments) == 1:
-        z = sweep.instruments[0]
+        column = sweep.instruments[0]
+        # the label without its unit when the axis states the direct effect's unit
+        z = (labels.stem(column) if labels.direct_unit(sweep.outcome, column) else
+             labels.name(column))
         box = sweep.direct_set[0]
         low, high = box.low, box.high
         extent = high if abs(high) >= abs(low) else low
@@ -67,14 +71,28 @@ def direct_axis(sweep) -> DirectAxis:
                      f"direct effect in [x, {k}]")
             label = f"x: {words} of {z}"
         share = rf_end if math.isfinite(rf_end) else None
+        label += _unit_suffix(sweep.outcome, column)
         return DirectAxis(extent, label, share, f"x as a share of |reduced form| of {z}",
                           range_text)
     rf_ends = [max(abs(i.low), abs(i.high)) for i in rf]
     share = max(rf_ends) if all(math.isfinite(e) for e in rf_ends) else None
-    range_text = ", ".join(f"{z} in [{format_number(b.low)}, {format_number(b.high)}]"
+    range_text = ", ".join(f"{labels.name(z)} in [{format_number(b.low)}, "
+                           f"{format_number(b.high)}]"
                            for z, b in zip(sweep.instruments, sweep.direct_set))
     return DirectAxis(1.0, "scale t of the stated direct-effect set (t = 1: the set)", share,
                       "largest direct effect as a share of its reduced form", range_text)
+
+
+def _unit_suffix(outcome: str, instrument: str) -> str:
+    """`` (t/ha)`` when the outcome's label states a unit (a direct effect is in it; `` (t/ha
+    per metre)`` when the instrument's states one too)."""
+    unit = labels.direct_unit(outcome, instrument)
+    return f" ({unit})" if unit else ""
+
+
+def _in_units(outcome: str) -> str:
+    """``"(outcome units) "`` unless the outcome's label already names its unit."""
+    return "" if labels.unit(outcome) else "(outcome units) "
 
 
 def thin_x_ticks(ax) -> None:
@@ -128,6 +146,7 @@ class DirectView:
     # Layout fixes: fewer x ticks (labels such as "−0.25" can touch), no region label on a
     # frontier lobe of zero width, a ground under "conclusion fails".
     tidy_layout: bool = True
+    outcome: str = published_covariance.OUTCOME   # column (or role) whose label names it
 
 
 def direct_view(result) -> DirectView:
@@ -153,7 +172,7 @@ def direct_view(result) -> DirectView:
                           sweep_caption(result),
                           "this sweep result has no breakdown frontier (it was built without "
                           "sensiv.sensitivity.bounds.analyse); recompute it with "
-                          "sensiv.sensitivity.bounds.sweep")
+                          "sensiv.sensitivity.bounds.sweep", outcome=result.outcome)
     raise InputError(f"the direct-effect figures draw a sweep or a published stress test, not a "
                      f"{type(result).__name__}; give a sensiv.sensitivity.bounds.SweepResult or a "
                      "sensiv.sensitivity.published.PublishedResult")
@@ -163,19 +182,23 @@ def direct_view(result) -> DirectView:
 def sweep_caption(sweep) -> str:
     """The assumption of a sweep from data, for the figure caption."""
     level = pct(sweep.confidence_level)
-    fixed = (f"Apart from it the instrument is valid; β is the effect of {sweep.focus} on "
-             f"{sweep.outcome}; union of {level} intervals with {sweep.se_type} covariance, "
+    fixed = (f"Apart from it the instrument is valid; β is the "
+             f"{labels.effect_words(sweep.focus, sweep.outcome)}; union of {level} intervals "
+             f"with {sweep.se_type} covariance, "
              f"n = {sweep.n}.")
     if len(sweep.instruments) == 1 and not sweep.polytope:
         b = sweep.direct_set[0]
-        return (f"Assumption: the direct effect of {sweep.instruments[0]} on {sweep.outcome} "
-                f"(outcome units) lies in the range on the x-axis; stated range "
+        return (f"Assumption: the direct effect of {labels.name(sweep.instruments[0])} on "
+                f"{labels.name(sweep.outcome)} "
+                f"{_in_units(sweep.outcome)}lies in the range on the x-axis; stated range "
                 f"[{minus(format_number(b.low))}, {minus(format_number(b.high))}]. {fixed}")
     shape = "polytope with bounding box" if sweep.polytope else "set"
-    ranges = ", ".join(f"{z} in [{minus(format_number(b.low))}, "
+    ranges = ", ".join(f"{labels.name(z)} in [{minus(format_number(b.low))}, "
                        f"{minus(format_number(b.high))}]"
                        for z, b in zip(sweep.instruments, sweep.direct_set))
-    return (f"Assumption: the direct effects on {sweep.outcome} (outcome units) lie in t times "
+    return (f"Assumption: the direct effects on {labels.name(sweep.outcome)} "
+            f"{_in_units(sweep.outcome)}"
+            f"lie in t times "
             f"the stated {shape} ({ranges}). {fixed}")
 
 
@@ -190,11 +213,17 @@ def covariance_words(method: str) -> str:
                              "case over the admissible correlations"}[method]
 
 
+def _printed(role: str) -> str:
+    """A role of a stress test of printed numbers: its label, else "the instrument"."""
+    return labels.active().get(role) or f"the {role}"
+
+
 def published_caption(res) -> str:
     """The assumption of a stress test of published numbers, for the figure caption."""
     b = res.direct_set
     n = res.reported.n
-    return (f"Assumption: the direct effect of the instrument on the outcome (outcome units) "
+    return (f"Assumption: the direct effect of {_printed('instrument')} on "
+            f"{_printed('outcome')} {_in_units(published_covariance.OUTCOME)}"
             f"lies in the range on the x-axis; stated range [{minus(format_number(b.low))}, "
             f"{minus(format_number(b.high))}] ({minus(res.range_text)}). Apart from it the "
             f"instrument is valid. From printed numbers only: union of "

@@ -3,6 +3,7 @@ of the instrument, with the threshold, the breakdown budget and the analysed bud
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.present.figures.marks import X_PAD, draw_breakdown_point, hatch_no_fit, interval_at
 from sensiv.present.figures.style import (BLUE, GREY, LIGHT_BLUE, ends, finish, limits,
@@ -52,12 +53,16 @@ def discrete_curve(discrete_result, ax=None, *, note: str | None = None):
             f"the bounds do not contain {format_number(r.threshold)} for any budget up to 1")
         c = r.focus
         ax.set_xlabel("budget ε: share with a direct effect")
-        ax.set_ylabel(f"effect of {t.treatment}")
-        mono = (f"; {t.treatment} monotone in {t.instrument} (defier share ≤ "
+        ax.set_ylabel(labels.axis_label("", t.treatment, t.outcome))
+        mono = (f"; {labels.name(t.treatment)} monotone in {labels.name(t.instrument)} "
+                f"(defier share ≤ "
                 f"{format_number(r.defier_budget)})" if r.monotone else "")
-        caption = [f"Assumption: {t.instrument} is randomised and changes {t.outcome} "
-                   f"directly for at most a share ε of units{mono}. Effect of {t.treatment} = "
-                   f"{format_number(c.level)} vs {format_number(c.base)} on {t.outcome}, "
+        caption = [f"Assumption: {labels.name(t.instrument)} is randomised and changes "
+                   f"{labels.name(t.outcome)} "
+                   f"directly for at most a share ε of units{mono}. Effect of "
+                   f"{labels.name(t.treatment)} = "
+                   f"{format_number(c.level)} vs {format_number(c.base)} on "
+                   f"{labels.name(t.outcome)}, "
                    f"n = {t.n}."
                    + (f" {level} interval: bootstrap (Imbens & Manski) at the analysed budget."
                       if ci is not None else ""),

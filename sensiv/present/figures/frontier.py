@@ -8,7 +8,9 @@ import math
 from sensiv.core.errors import InputError
 from sensiv.core.results import format_number
 from sensiv.present.figures.direct import direct_axis, direct_view, share_axis, thin_x_ticks
-from sensiv.present.figures.style import (BLUE, GREY, ORANGE, PALE_BLUE, PALE_ORANGE, SMALL_PT,
+from sensiv.present.figures.frontier_labels import (Frame, axes_inches, label_regions,
+                                                    preferred_height)
+from sensiv.present.figures.style import (BLUE, GREY, ORANGE, PALE_BLUE, PALE_ORANGE,
                                           finish, make_canvas, style_context)
 from sensiv.sensitivity.bounds import SCALE_MAX
 
@@ -76,7 +78,8 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
         ax.set_ylim(y.min(), y.max())
         if sweep.tidy_layout:
             thin_x_ticks(ax)
-        _label_frontier_regions(ax, y, x, side, x_end, theta0, sweep.tidy_layout)
+        frame = Frame(y, x, side, x_end, theta0, *axes_inches(canvas))
+        missing = label_regions(ax, frame, preferred_height(frame))
         ax.set_xlabel(axis.label)
         ax.set_ylabel("threshold θ")
         top = share_axis(ax, axis, x_end)
@@ -86,37 +89,8 @@ def breakdown_frontier(sweep, ax=None, *, note: str | None = None):
                 f"axis (or beyond {format_number(SCALE_MAX)} times the stated set).")
         caption = [sweep.caption,
                    "Frontier: for each threshold θ, the smallest direct effect at which the "
-                   "union interval reaches θ.", *([words] if words else [])]
+                   "union interval reaches θ.", *([words] if words else []),
+                   *([f"Blue: a conclusion holds (β > θ below the interval, β < θ above it); "
+                      f"orange: it fails."] if missing else [])]
         return finish(canvas, caption, note=note, top_axis=top)
 
-
-def _label_frontier_regions(ax, y, x, side, x_end, theta0, tidy: bool = False) -> None:
-    """Name the regions where a conclusion holds, at the widest part of each lobe (with
-    ``tidy``, not a lobe of zero width, where the conclusion holds at no direct effect)."""
-    import numpy as np
-
-    for s, words in ((1, "β > θ holds"), (-1, "β < θ holds")):
-        rows = np.flatnonzero(side == s)
-        if rows.size < 3 or (tidy and not np.any(x[rows] != 0.0)):
-            continue
-        span = y.max() - y.min()
-        # the widest part of the lobe, off the axes' edges and the examined threshold
-        ok = rows[(np.minimum(y[rows] - y.min(), y.max() - y[rows]) > 0.06 * span)
-                  & (np.abs(y[rows] - theta0) > 0.06 * span)]
-        pick = ok if ok.size else rows
-        row = int(pick[np.argmax(np.abs(x[pick]))])
-        ax.text(0.5 * x[row], y[row], words, ha="center", va="center", fontsize=SMALL_PT,
-                color=BLUE, zorder=4,
-                bbox={"boxstyle": "round,pad=0.15", "facecolor": PALE_BLUE,
-                      "edgecolor": "none"})
-    inside = np.flatnonzero(side == 0)
-    y_mid = float(y[inside[len(inside) // 2]]) if inside.size else float(np.median(y))
-    # the right-hand region is widest near the ordinary interval; keep off the examined line
-    room = np.flatnonzero((np.abs(x) < 0.5 * abs(x_end))
-                          & (np.abs(y - theta0) > 0.1 * (y.max() - y.min())))
-    if room.size:
-        y_mid = float(y[room[np.argmin(np.abs(y[room] - y_mid))]])
-    ax.text(0.97 * x_end, y_mid, "conclusion fails:\ninterval reaches θ",
-            ha="right", va="center", fontsize=SMALL_PT, color=ORANGE,
-            zorder=4, **({"bbox": {"boxstyle": "round,pad=0.15", "facecolor": PALE_ORANGE,
-                                   "edgecolor": "none"}} if tidy else {}))

@@ -8,7 +8,9 @@ from sensiv.core.results import format_number
 from sensiv.present.figures.style import GREY, INK, MID_GREY, ORANGE, SMALL_PT, WHITE, text_box
 
 X_PAD = 0.04              # room right of a bound curve for the interval drawn at its end
+LABEL_ROOM = 0.35         # share of the y-axis a two-line label above a point needs
 ROW_LABEL_PT, ROW_ASSUMPTION_PT = 13.0, 4.0   # row label and assumption, points above the bar
+ROW_LINE_PT = 8.4         # one more line of a wrapped assumption (7 pt type, 1.2 spacing)
 
 
 def draw_breakdown_point(ax, value, theta, x_end, what: str, never: str) -> str | None:
@@ -40,11 +42,21 @@ def draw_breakdown_point(ax, value, theta, x_end, what: str, never: str) -> str 
                 f"{format_number(theta)} under the exclusion restriction.")
     ax.axvline(value, color=ORANGE, linestyle=(0, (1, 1.5)), linewidth=0.9, zorder=4)
     right_half = value > 0.55 * x_end
+    below = label_below(ax, theta)
     ax.annotate(f"breakdown at\n{what} = {format_number(value, 3)}", xy=(value, theta),
-                xytext=(-6 if right_half else 6, 8), textcoords="offset points",
-                ha="right" if right_half else "left", va="bottom", fontsize=SMALL_PT,
-                color=ORANGE, bbox=text_box(), zorder=6)
+                xytext=(-6 if right_half else 6, -8 if below else 8),
+                textcoords="offset points", ha="right" if right_half else "left",
+                va="top" if below else "bottom", fontsize=SMALL_PT, color=ORANGE,
+                bbox=text_box(), zorder=6)
     return None
+
+
+def label_below(ax, y: float) -> bool:
+    """Whether a two-line label at height ``y`` goes under it: when ``y`` lies in the upper
+    :data:`LABEL_ROOM` of the y-axis, above it the label would run out of the axes (and the
+    figure)."""
+    low, high = sorted(ax.get_ylim())
+    return high > low and (y - low) / (high - low) > 1.0 - LABEL_ROOM
 
 
 def hatch_no_fit(ax, x, empty, label: str) -> None:
@@ -60,24 +72,45 @@ def hatch_no_fit(ax, x, empty, label: str) -> None:
     region.set_gid("empty")
 
 
-def interval_at(ax, x, interval, label: str, gid: str) -> None:
-    """A vertical interval with caps at ``x`` (nothing when ``interval`` is None)."""
+def interval_at(ax, x, interval, label: str, gid: str, window=None) -> None:
+    """A vertical interval with caps at ``x`` (nothing when ``interval`` is None).
+
+    With ``window`` (the y-range ``(low, high)`` shown) an end that is unbounded or beyond it
+    is drawn at its edge with an arrow instead of a cap, so a one-sided interval stays a
+    visible bar rather than a lone cap.
+    """
     if interval is None:
         return
-    (line,) = ax.plot([x, x], [interval.low, interval.high], color=INK, linewidth=1.2,
-                      marker="_", markersize=6, zorder=5, clip_on=False, label=label)
+    low, high = interval.low, interval.high
+    if window is None:
+        (line,) = ax.plot([x, x], [low, high], color=INK, linewidth=1.2, marker="_",
+                          markersize=6, zorder=5, clip_on=False, label=label)
+        line.set_gid(gid)
+        return
+    bottom, top = window
+    shown_low, shown_high = max(low, bottom), min(high, top)
+    (line,) = ax.plot([x, x], [shown_low, shown_high], color=INK, linewidth=1.2, zorder=5,
+                      clip_on=False, label=label)
     line.set_gid(gid)
+    for end, edge, marker in ((low, bottom, "v"), (high, top, "^")):
+        open_end = end < bottom if marker == "v" else end > top
+        (mark,) = ax.plot([x], [edge if open_end else end], marker=marker if open_end else "_",
+                          markersize=4 if open_end else 6, color=INK, linestyle="none",
+                          zorder=5, clip_on=False)
+        mark.set_gid(f"{gid}-end")
 
 
 def row_texts(ax, y: float, xlo: float, xhi: float, label: str, numbers: str,
               assumption: str | None) -> None:
     """Above a row: the label on the left, the numbers on the right, and the assumption
-    (grey) under them."""
+    (grey) under them; an assumption of several lines (``\n``) lifts the label by
+    :data:`ROW_LINE_PT` per extra line."""
     box = {"boxstyle": "square,pad=0.15", "facecolor": WHITE, "edgecolor": "none"}
-    texts = [(xlo, label, "left", INK, ROW_LABEL_PT), (xhi, numbers, "right", INK, ROW_LABEL_PT)]
+    lift = ROW_LABEL_PT + (assumption.count("\n") * ROW_LINE_PT if assumption else 0.0)
+    texts = [(xlo, label, "left", INK, lift), (xhi, numbers, "right", INK, lift)]
     if assumption is not None:
         texts.append((xlo, assumption, "left", GREY, ROW_ASSUMPTION_PT))
     for x, text, ha, colour_text, offset in texts:
         ax.annotate(text, xy=(x, y), xytext=(0.0, offset), textcoords="offset points",
                     ha=ha, va="bottom", fontsize=SMALL_PT, color=colour_text, zorder=4,
-                    bbox=box, annotation_clip=False)
+                    bbox=box, annotation_clip=False, linespacing=1.2)

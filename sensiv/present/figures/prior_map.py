@@ -4,6 +4,7 @@ the boundary and the analysed prior."""
 
 from __future__ import annotations
 
+from sensiv.core import labels
 from sensiv.core.errors import InputError
 from sensiv.core.results import format_number
 from sensiv.present.figures.style import (BLUE, MID_GREY, MID_ORANGE, ORANGE, PALE_BLUE,
@@ -29,18 +30,13 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
         ax = canvas.ax
         level = pct(prior_result.confidence_level)
         names = draw_regions(ax, pm, level)
-        if pm.axis == "direct effect":
-            z = prior_result.instruments[0]
-            ax.set_xlabel(f"prior mean of the direct effect of {z}")
-            ax.set_ylabel("prior SD of the direct effect")
-        else:
-            ax.set_xlabel(f"prior mean of the bias a′γ of the {prior_result.focus} estimate")
-            ax.set_ylabel("prior SD of the bias a′γ")
-        laws = "; ".join(f"{z} ~ {p}" for z, p in zip(prior_result.instruments,
-                                                      prior_result.priors))
+        _axis_labels(ax, pm.axis, prior_result)
+        laws = "; ".join(f"{labels.name(z)} ~ {p}"
+                         for z, p in zip(prior_result.instruments, prior_result.priors))
         caption = [f"Assumption: the direct effect is normal with the mean and SD on the axes, "
                    f"independent of the sampling error of 2SLS; closed-form {level} interval "
-                   f"for the effect of {prior_result.focus}, {prior_result.se_type} covariance, "
+                   f"for the effect of {labels.name(prior_result.focus)}, "
+                   f"{prior_result.se_type} covariance, "
                    f"n = {prior_result.n}.",
                    f"Marked: the analysed prior ({laws})"
                    + ("" if prior_result.method == "closed-form" else
@@ -48,7 +44,8 @@ def prior_map(prior_result, ax=None, *, note: str | None = None):
         if pm.axis != "direct effect":
             caption.insert(1, f"With several instruments the interval depends on the prior "
                            f"only through the bias a′γ of 2SLS (a: how much the estimate of "
-                           f"{prior_result.focus} moves per unit direct effect of each "
+                           f"{labels.name(prior_result.focus)} moves per unit direct effect of "
+                           "each "
                            "instrument; γ: the direct effects), so the axes are its prior mean "
                            "and SD.")
         return finish(canvas, caption, note=note,
@@ -97,6 +94,18 @@ def draw_regions(ax, pm, level: str) -> dict[int, str]:
     ax.set_xlim(pm.mean[0], pm.mean[-1])
     ax.set_ylim(pm.sd[0], pm.sd[-1])
     return names
+
+
+def _axis_labels(ax, axis: str, prior_result) -> None:
+    """The prior's mean and SD: of the direct effect (one instrument) or of the bias a′γ."""
+    if axis == "direct effect":
+        z = labels.name(prior_result.instruments[0])
+        ax.set_xlabel(f"prior mean of the direct effect of {z}")
+        ax.set_ylabel("prior SD of the direct effect")
+    else:
+        ax.set_xlabel(f"prior mean of the bias a′γ of the {labels.stem(prior_result.focus)} "
+                      "estimate")
+        ax.set_ylabel("prior SD of the bias a′γ")
 
 
 def region_names(level: str, theta: str, side: str) -> dict[int, str]:

@@ -50,6 +50,8 @@ Y_PAD = 0.08              # share of the data range added above and below
 SUMMARY_ROW_IN = 0.50     # height of one row of the row figures (summary, calibration)
 SUMMARY_LEFT_IN = 0.16    # no y-axis labels in the row figures
 NBSP = "\u00a0"           # keeps "n = 212" on one caption line
+LABEL_LINE_IN = 0.13      # one more line of a wrapped axis label (7.5 pt type)
+LABEL_MARGIN_IN = 0.06    # kept clear at each side of a wrapped axis label
 
 STYLE = {
     "font.family": "DejaVu Sans",
@@ -208,13 +210,23 @@ def finish(canvas: Canvas, caption: Sequence[str], *, note: str | None = None,
                     color=GREY, annotation_clip=False)
         return fig
     lines = wrap(texts)
+    # long axis labels (a column's label with its unit) wrap instead of running off the figure
+    # (a label is centred on the axes, so its room is twice the nearer figure edge's distance)
+    centre = left_in + (WIDTH_IN - left_in - RIGHT_IN) / 2
+    room = 2 * (min(centre, WIDTH_IN - centre) - LABEL_MARGIN_IN)
+    x_extra = fit_label(fig, ax.xaxis.label, room)
+    y_extra = fit_label(fig, ax.yaxis.label, axes_in + TOP_IN)
+    top_extra = sum(fit_label(fig, child.xaxis.label, room)
+                    for child in getattr(ax, "child_axes", ()))
+    left_in += y_extra * LABEL_LINE_IN
     rows = math.ceil(len(handles) / LEGEND_COLUMNS) if (legend and handles) else 0
     legend_in = rows * LEGEND_ROW_IN + (LEGEND_PAD_IN if rows else 0.0)
     caption_in = len(lines) * CAPTION_LINE_IN + CAPTION_PAD_IN
-    top_in = TOP_IN + (TOP_AXIS_IN if top_axis else 0.0)
-    height = top_in + axes_in + XLABEL_IN + legend_in + caption_in
+    top_in = TOP_IN + (TOP_AXIS_IN if top_axis else 0.0) + top_extra * LABEL_LINE_IN
+    xlabel_in = XLABEL_IN + x_extra * LABEL_LINE_IN
+    height = top_in + axes_in + xlabel_in + legend_in + caption_in
     fig.set_size_inches(WIDTH_IN, height)
-    bottom = XLABEL_IN + legend_in + caption_in
+    bottom = xlabel_in + legend_in + caption_in
     ax.set_position((left_in / WIDTH_IN, bottom / height,
                      (WIDTH_IN - left_in - RIGHT_IN) / WIDTH_IN, axes_in / height))
     x0 = 0.06 / WIDTH_IN
@@ -226,6 +238,21 @@ def finish(canvas: Canvas, caption: Sequence[str], *, note: str | None = None,
     fig.text(x0, (caption_in - CAPTION_PAD_IN / 2) / height, "\n".join(lines), va="top",
              ha="left", fontsize=CAPTION_PT, color=GREY, linespacing=1.25)
     return fig
+
+
+def fit_label(fig, label, room_in: float) -> int:
+    """Wrap the axis label ``label`` onto more lines when it is longer than ``room_in``
+    inches; return the number of lines added."""
+    text = label.get_text()
+    if not text or "\n" in text:
+        return 0
+    width_in = label.get_window_extent(fig.canvas.get_renderer()).width / fig.dpi
+    if width_in <= room_in:
+        return 0
+    lines = textwrap.wrap(text, max(10, int(0.9 * len(text) * room_in / width_in)),
+                          break_on_hyphens=False)
+    label.set_text("\n".join(lines))
+    return len(lines) - 1
 
 
 # ----------------------------------------------------------------------------- ranges and words

@@ -11,15 +11,22 @@ rows, and in what order, is decided by the caller (see
 from __future__ import annotations
 
 import math
+import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from sensiv.core import labels
 from sensiv.core.errors import InputError
 from sensiv.core.results import Interval, format_number
-from sensiv.present.figures.marks import row_texts
-from sensiv.present.figures.style import (BLUE, GREY, INK, ORANGE, SMALL_PT, SUMMARY_LEFT_IN,
-                                          SUMMARY_ROW_IN, WHITE, ends, finish, limits,
-                                          make_canvas, minus, pct, style_context)
+from sensiv.present.figures.marks import ROW_LINE_PT, row_texts
+from sensiv.present.figures.style import (BLUE, CAPTION_CHARS, GREY, INK, ORANGE, RIGHT_IN,
+                                          SMALL_PT, SUMMARY_LEFT_IN, SUMMARY_ROW_IN, WHITE,
+                                          WIDTH_IN, ends, finish, limits, make_canvas, minus,
+                                          pct, style_context)
+
+
+TOP_ROOM_IN = 0.325       # above the top row's bar: room for its label and assumption
+CAPTION_MARGIN_IN = 0.12  # the caption's margins, where CAPTION_CHARS characters fit
 
 
 @dataclass(frozen=True, slots=True)
@@ -117,9 +124,11 @@ def sweep_items(sweep) -> list[SummaryItem]:
     """Identified set, union interval and weak-IV-robust set of a
     :class:`~sensiv.sensitivity.bounds.SweepResult` (its fit's rows not included)."""
     level = pct(sweep.confidence_level)
-    ranges = ", ".join(f"{z} in [{format_number(b.low)}, {format_number(b.high)}]"
+    # minus signs in the numbers only: a label keeps its hyphens ("4-year")
+    ranges = ", ".join(f"{labels.name(z)} in [{minus(format_number(b.low))}, "
+                       f"{minus(format_number(b.high))}]"
                        for z, b in zip(sweep.instruments, sweep.direct_set))
-    words = minus(f"direct effect {ranges}")
+    words = f"direct effect {ranges}"
     out = [SummaryItem("identified set", (sweep.identified_set,), words, "direct effect",
                        "set"),
            SummaryItem(f"union of {level} intervals", (sweep.union_ci,), words,
@@ -150,7 +159,7 @@ def prior_items(prior) -> list[SummaryItem]:
     """The prior interval of a :class:`~sensiv.sensitivity.prior.PriorResult` (its fit's rows
     not included)."""
     level = pct(prior.confidence_level)
-    laws = "; ".join(f"{z} ~ {p}" for z, p in zip(prior.instruments, prior.priors))
+    laws = "; ".join(f"{labels.name(z)} ~ {p}" for z, p in zip(prior.instruments, prior.priors))
     return [SummaryItem(f"{level} prior interval", (prior.interval,), f"direct effect {laws}",
                         "direct effect", "interval", prior.center)]
 
@@ -195,7 +204,7 @@ def discrete_items(bounds) -> list[SummaryItem]:
     """The bounds (empty when the model does not fit) and, when bootstrapped, their interval
     from discrete bounds (:class:`~sensiv.partial_id.discrete_results.DiscreteBounds`)."""
     level = pct(bounds.confidence_level)
-    words = (f"{bounds.table.instrument} acts directly on at most "
+    words = (f"{labels.name(bounds.table.instrument)} acts directly on at most "
              f"{format_number(bounds.budget)} of units"
              + ("; monotone" if bounds.monotone else ""))
     pieces = (bounds.bounds,) if bounds.bounds is not None else ()
@@ -248,15 +257,21 @@ def summary_intervals(items: Sequence[SummaryItem], ax=None, *, threshold: float
             span = xhi - xlo
             xlo, xhi = xlo - 0.06 * span, xhi + 0.06 * span
         n = len(rows)
+        chars = _assumption_chars(canvas)
+        wrapped = {row: "\n".join(textwrap.wrap(row.assumption, chars, break_on_hyphens=False))
+                   for row in rows if row.assumption}
+        extra = max((text.count("\n") for text in wrapped.values()), default=0)
+        row_in = SUMMARY_ROW_IN + extra * ROW_LINE_PT / 72.0
         for i, row in enumerate(rows):
             y = n - 1 - i
             colour = FAMILY_COLOURS.get(row.family, INK)
-            _summary_row(ax, row, y, colour, xlo, xhi)
+            _summary_row(ax, row, y, colour, xlo, xhi, wrapped.get(row))
         if threshold is not None:
             ax.axvline(threshold, color=GREY, linestyle=(0, (4, 2)), linewidth=0.8, zorder=0,
                        label=f"threshold {format_number(threshold)}")
         ax.set_xlim(xlo, xhi)
-        ax.set_ylim(-0.4, n - 1 + 0.65)
+        ax.set_ylim(-0.4 * SUMMARY_ROW_IN / row_in,
+                    n - 1 + (TOP_ROOM_IN + extra * ROW_LINE_PT / 72.0) / row_in)
         ax.set_yticks([])
         ax.spines["left"].set_visible(False)
         ax.set_xlabel("effect" if xlabel is None else xlabel)
@@ -265,14 +280,22 @@ def summary_intervals(items: Sequence[SummaryItem], ax=None, *, threshold: float
                 ax.plot([], [], color=colour, linewidth=2.0, label=FAMILY_WORDS[family])
         caption = ["Each row holds only under its own assumption (grey text); a bound that "
                    "excludes the threshold does not prove the instrument valid."]
-        return finish(canvas, caption, note=note, axes_in=SUMMARY_ROW_IN * n,
+        return finish(canvas, caption, note=note, axes_in=row_in * n,
                       left_in=SUMMARY_LEFT_IN)
 
 
-def _summary_row(ax, row: SummaryItem, y: float, colour: str, xlo: float, xhi: float) -> None:
-    """One row: the label and the numbers, the assumption under them, then the bar."""
+def _assumption_chars(canvas) -> int:
+    """Characters of an assumption line that fit the axes' width (own figure: the column)."""
+    width_in = (WIDTH_IN - SUMMARY_LEFT_IN - RIGHT_IN if canvas.owned else
+                canvas.ax.get_position().width * canvas.fig.get_size_inches()[0])
+    return max(20, int(width_in * CAPTION_CHARS / (WIDTH_IN - CAPTION_MARGIN_IN)))
+
+
+def _summary_row(ax, row: SummaryItem, y: float, colour: str, xlo: float, xhi: float,
+                 assumption: str | None = None) -> None:
+    """One row: the label and the numbers, the assumption (wrapped) under them, then the bar."""
     numbers = " ∪ ".join(str(p) for p in row.pieces) if row.pieces else "empty"
-    row_texts(ax, y, xlo, xhi, row.label, minus(numbers), row.assumption)
+    row_texts(ax, y, xlo, xhi, row.label, minus(numbers), assumption or row.assumption)
     width = 3.2 if row.kind == "set" else 1.2
     if not row.pieces:
         ax.text(0.5 * (xlo + xhi), y, "empty: the model does not fit the data", ha="center",

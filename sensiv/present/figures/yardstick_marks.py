@@ -11,6 +11,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from sensiv.core import labels
 from sensiv.core.results import format_number
 from sensiv.present.figures.style import GREY, SMALL_PT, minus
 
@@ -39,7 +40,8 @@ def marks_for(comparison, axis_extent: float, radius: Sequence[float]) -> list[Y
             x = item.implied / radius[k]
         else:
             continue
-        name = item.yardstick if single else f"{item.yardstick} ({item.instrument})"
+        name = (labels.name(item.yardstick) if single else
+                f"{labels.name(item.yardstick)} ({labels.name(item.instrument)})")
         marks.append(YardstickMark(name, x, item.implied))
     return marks
 
