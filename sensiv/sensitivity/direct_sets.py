@@ -46,33 +46,37 @@ class RangeSpec:
 _RANGE = re.compile(r"^\s*([^:]+):([^:]*?[0-9.])\s*([a-zA-Z]*)\s*$")
 
 
-def parse_range(text: str) -> RangeSpec:
-    """Parse ``LOW:HIGH`` with an optional unit suffix ``rf`` or ``sd``.
+RANGE_EXAMPLES = "--direct=-0.01:0.01 (outcome units), -0.2:0.2rf or -0.1:0.1sd"
+UNIT_CHOICES = ("none (outcome units), 'rf' (share of the reduced-form coefficient) or 'sd' "
+                "(outcome SDs per instrument SD)")
+
+
+def parse_range(text: str, option: str = "--direct", units: Sequence[str] = UNITS,
+                examples: str = RANGE_EXAMPLES, choices: str = UNIT_CHOICES) -> RangeSpec:
+    """Parse ``LOW:HIGH`` with an optional unit suffix among ``units`` (``rf`` or ``sd`` for
+    ``--direct``); ``option``, ``examples`` and ``choices`` word the messages.
 
     Examples
     --------
     >>> parse_range("-0.2:0.2rf")
     RangeSpec(low=-0.2, high=0.2, unit='rf')
     """
-    match = _RANGE.match(text)
+    match = _RANGE.match(str(text))
     if not match:
-        raise InputError(f"--direct '{text}' is not a range; write LOW:HIGH, e.g. "
-                         "--direct=-0.01:0.01 (outcome units), -0.2:0.2rf or -0.1:0.1sd")
+        raise InputError(f"{option} '{text}' is not a range; write LOW:HIGH, e.g. {examples}")
     low_text, high_text, unit = match.groups()
-    if unit not in UNITS:
-        raise InputError(f"--direct '{text}' has unknown unit suffix '{unit}'; use none "
-                         "(outcome units), 'rf' (share of the reduced-form coefficient) or "
-                         "'sd' (outcome SDs per instrument SD)")
+    if unit not in units:
+        raise InputError(f"{option} '{text}' has unknown unit suffix '{unit}'; use {choices}")
     try:
         low, high = float(low_text), float(high_text)
     except ValueError as exc:
-        raise InputError(f"--direct '{text}': LOW and HIGH must be numbers") from exc
+        raise InputError(f"{option} '{text}': LOW and HIGH must be numbers") from exc
     if not (math.isfinite(low) and math.isfinite(high)):
-        raise InputError(f"--direct '{text}': the range must be finite")
-    check_magnitude(low, f"--direct '{text}': LOW")
-    check_magnitude(high, f"--direct '{text}': HIGH")
+        raise InputError(f"{option} '{text}': the range must be finite")
+    check_magnitude(low, f"{option} '{text}': LOW")
+    check_magnitude(high, f"{option} '{text}': HIGH")
     if low > high:
-        raise InputError(f"--direct '{text}': LOW {low:g} exceeds HIGH {high:g}; write "
+        raise InputError(f"{option} '{text}': LOW {low:g} exceeds HIGH {high:g}; write "
                          f"{high:g}:{low:g}")
     return RangeSpec(low, high, unit)
 

@@ -21,21 +21,18 @@ Scaling ``tΓ`` is about zero, as in the sweep.
 from __future__ import annotations
 
 import math
-import re
 from dataclasses import dataclass
 
 import numpy as np
 
 from sensiv.core.errors import InputError
-from sensiv.core.limits import check_magnitude
 from sensiv.core.results import json_number
 from sensiv.sensitivity.associations import Associations
-from sensiv.sensitivity.direct_sets import RangeSpec, polytope_rows
+from sensiv.sensitivity.direct_sets import RangeSpec, parse_range, polytope_rows
 
 UNITS = ("", "se", "rf")
 UNIT_WORDS = {"": "outcome units", "se": "multiples of each instrument's reduced-form SE",
               "rf": "shares of each instrument's reduced form"}
-_RANGE = re.compile(r"^\s*([^:]+):([^:]*?[0-9.])\s*([a-zA-Z]*)\s*$")
 
 
 def parse_allowance(text: str, option: str = "--direct") -> RangeSpec:
@@ -47,28 +44,12 @@ def parse_allowance(text: str, option: str = "--direct") -> RangeSpec:
     >>> parse_allowance("-2:2se")
     RangeSpec(low=-2.0, high=2.0, unit='se')
     """
-    match = _RANGE.match(str(text))
-    if not match:
-        raise InputError(f"{option} '{text}' is not a range; write LOW:HIGH, e.g. "
-                         f"{option}=-0.01:0.01 (outcome units), -2:2se (multiples of each "
-                         "instrument's reduced-form SE) or -0.2:0.2rf (share of its reduced form)")
-    low_text, high_text, unit = match.groups()
-    if unit not in UNITS:
-        raise InputError(f"{option} '{text}' has unknown unit suffix '{unit}'; with a "
-                         "per-instrument table use none (outcome units), 'se' (multiples of "
-                         "each instrument's reduced-form SE) or 'rf' (share of its reduced form)")
-    try:
-        low, high = float(low_text), float(high_text)
-    except ValueError as exc:
-        raise InputError(f"{option} '{text}': LOW and HIGH must be numbers") from exc
-    if not (math.isfinite(low) and math.isfinite(high)):
-        raise InputError(f"{option} '{text}': the range must be finite")
-    check_magnitude(low, f"{option} '{text}': LOW")
-    check_magnitude(high, f"{option} '{text}': HIGH")
-    if low > high:
-        raise InputError(f"{option} '{text}': LOW {low:g} exceeds HIGH {high:g}; write "
-                         f"{high:g}:{low:g}")
-    return RangeSpec(low, high, unit)
+    return parse_range(
+        text, option, UNITS,
+        f"{option}=-0.01:0.01 (outcome units), -2:2se (multiples of each instrument's "
+        "reduced-form SE) or -0.2:0.2rf (share of its reduced form)",
+        "none (outcome units), 'se' (multiples of each instrument's reduced-form SE) or "
+        "'rf' (share of its reduced form) with a per-instrument table")
 
 
 @dataclass(frozen=True, slots=True)
