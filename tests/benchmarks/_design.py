@@ -86,3 +86,15 @@ def relative_difference(actual, expected) -> float:
 
 def verdict(ok: bool) -> str:
     return "PASS" if ok else "MISS"
+
+
+def best_of(work, repeats: int) -> float:
+    """The shortest wall time of ``repeats`` calls of ``work()``, in seconds."""
+    import time
+
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        work()
+        times.append(time.perf_counter() - start)
+    return min(times)

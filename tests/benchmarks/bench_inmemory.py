@@ -69,16 +69,9 @@ def child(n: int, controls: int, repeats: int) -> dict:
 
     block = np.asfortranarray(np.column_stack([np.ones(n), frame[["y", "x", "z", *names]]]))
 
-    def best(work) -> float:
-        times = []
-        for _ in range(repeats):
-            start = time.perf_counter()
-            work()
-            times.append(time.perf_counter() - start)
-        return min(times)
-
-    floor = best(lambda: (block.T @ block, block.T @ block))
-    fit = min(first, best(lambda: iv.fit(from_frame(frame, spec), se="robust")))
+    floor = _design.best_of(lambda: (block.T @ block, block.T @ block), repeats)
+    fit = min(first, _design.best_of(lambda: iv.fit(from_frame(frame, spec), se="robust"),
+                                     repeats))
     return {"controls": controls, "used_mb": used_mb, "frame_mb": before,
             "above_mb": after - before, "fit_s": fit, "floor_s": floor}
 

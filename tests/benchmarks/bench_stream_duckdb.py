@@ -22,7 +22,6 @@ import argparse
 import itertools
 import sys
 import tempfile
-import time
 import warnings
 from pathlib import Path
 
@@ -45,15 +44,6 @@ def write(path: Path, n: int) -> None:
         writer = writer or pq.ParquetWriter(path, table.schema)
         writer.write_table(table)
     writer.close()
-
-
-def best(work, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        work()
-        times.append(time.perf_counter() - start)
-    return min(times)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -87,7 +77,7 @@ def main(argv: list[str] | None = None) -> int:
 
         fit(paths[args.n])          # warm-up: imports, caches, page cache
         query(paths[args.n])
-        times = {(kind, size): best(lambda: work(paths[size]), args.repeats)
+        times = {(kind, size): _design.best_of(lambda: work(paths[size]), args.repeats)
                  for kind, work in (("sensiv", fit), ("duckdb", query))
                  for size in paths}
     per_million = {kind: (times[(kind, 2 * args.n)] - times[(kind, args.n)]) / args.n * 1e6
