@@ -12,8 +12,8 @@ instant::
     pri = sensiv.prior(frame, outcome="y", treatment="x", instruments="z",
                        prior="normal:0:0.005")
 
-``fit``, ``sweep``, ``prior``, ``corrbound``, ``discrete``, ``published``, ``calibrate`` and
-``run_recipe`` are the analyses of the command line, with the CLI's option names and value
+``fit``, ``sweep``, ``prior``, ``corrbound``, ``discrete``, ``published``,
+``per_instrument``, ``calibrate`` and ``run_recipe`` are the analyses of the command line, with the CLI's option names and value
 syntax as keywords (:mod:`sensiv.api`); ``sensiv.data`` reads the data
 (``Spec``, ``from_file``, ``from_frame``).  The layers, lowest first: ``core``, ``data``,
 ``estimation``, ``partial_id``, ``sensitivity``, ``present``, ``analyses``, ``api``, ``recipes``, ``cli``.
@@ -33,6 +33,7 @@ _PUBLIC = {
     "corrbound": ("sensiv.api.functions", "corrbound"),
     "discrete": ("sensiv.partial_id.discrete", "discrete_bounds"),
     "published": ("sensiv.sensitivity.published", "published_analysis"),
+    "per_instrument": ("sensiv.api.per_instrument", "per_instrument"),
     "calibrate": ("sensiv.api.functions", "calibrate"),
     "run_recipe": ("sensiv.recipes.run", "run_recipe"),
 }

@@ -15,8 +15,8 @@ from sensiv.sensitivity.associations import check_associations
 
 OPTIONS = {"per_instrument": str, "first_stage": str, "first_stage_se": str,
            "reduced_form": str, "reduced_form_se": str, "name": str, "weights": str,
-           "reps": int, "phi": float, "direct": list, "prior": list, "threshold": float,
-           "points": int}
+           "reps": int, "phi": float, "direct": list, "polytope": str, "prior": list,
+           "threshold": float, "points": int}
 RECIPE_LABELS = {**{r: r for r in ROLES}, "name": "name"}
 
 
@@ -46,6 +46,7 @@ def run(context, options) -> published_table.PublishedTableResult:
                    confidence_level=context.common["confidence_level"],
                    reps=o.get("reps", robust_estimators.DEFAULT_REPS), seed=context.seed,
                    phi=o.get("phi", robust_estimators.DEFAULT_PHI), direct=o.get("direct"),
+                   polytope=o.get("polytope"),
                    prior=o.get("prior"), threshold=o.get("threshold", 0.0),
                    points=o.get("points", published_table.DEFAULT_POINTS))
 

@@ -63,21 +63,25 @@ def refuse_table_only(given: dict) -> None:
 def run_table(table: Path, columns: dict, name: Optional[str], *, weights: Optional[str],
               reps: Optional[int], seed: Optional[int], level: float, direct, prior,
               threshold: float, points: int, as_json: bool, out: Optional[Path],
-              formats: tuple[str, ...]) -> None:
+              formats: tuple[str, ...], polytope: Optional[Path] = None,
+              mode_bandwidth: Optional[float] = None) -> None:
     """Run the per-instrument analysis and print or write it."""
     from sensiv.analyses import per_instrument
     from sensiv.present.text_published_table import per_instrument_markdown
     from sensiv.present.writer import to_json
+    from sensiv.sensitivity.kernel_mode import check_bandwidth
     from sensiv.sensitivity.robust_estimators import DEFAULT_REPS
 
     lacking = [f"--{r.replace('_', '-')}" for r, c in columns.items() if c is None]
     if lacking:
         raise InputError(f"--per-instrument needs the column of each role; name "
                          f"{', '.join(lacking)} (column names of the table)")
+    phi = check_bandwidth(mode_bandwidth, "--mode-bandwidth")
     result = per_instrument.analyse(
         table, columns, name, weights=weights or "first", confidence_level=level,
         reps=DEFAULT_REPS if reps is None else reps, seed=seed, require_egger=True,
-        direct=direct, prior=prior, threshold=threshold, points=points)
+        direct=direct, prior=prior, threshold=threshold, points=points, phi=phi,
+        polytope=None if polytope is None else str(polytope))
     document = result.to_dict()
     if out is not None:
         write_outputs(out, result, {"per_instrument.json": to_json(document),

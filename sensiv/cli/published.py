@@ -55,6 +55,8 @@ def published(
         help="Prior of the direct effect: normal:MEAN:SD, uniform:LOW:HIGH or "
              "triangular:LOW:MODE:HIGH. With --per-instrument: normal:MEAN:SD for every "
              "instrument's direct effect, independently (suffix 'se' or 'rf' allowed)."),
+    direct_polytope: Optional[Path] = typer.Option(None, "--direct-polytope", metavar="FILE", help="With --per-instrument, instead of --direct: CSV with one column per instrument (named as in --name) and 'bound', rows a'alpha <= bound in outcome units."),
+    mode_bandwidth: Optional[float] = typer.Option(None, "--mode-bandwidth", metavar="PHI", help="With --per-instrument: bandwidth parameter phi > 0 of the mode-based estimate, a multiple of the rule-of-thumb bandwidth [default: 1]."),
     threshold: float = THRESHOLD,
     points: int = typer.Option(101, "--points", metavar="INTEGER", help=f"Curve points over scalings 0..1 of the range (2 to {MAX_POINTS:,})."),
     level: float = LEVEL,
@@ -76,6 +78,7 @@ def published(
                    "reduced_form": reduced_form, "reduced_form_se": reduced_form_se}
         run_table(per_instrument, columns, name, weights=weights, reps=reps, seed=seed,
                   level=level, direct=direct, prior=prior_law, threshold=threshold,
+                  polytope=direct_polytope, mode_bandwidth=mode_bandwidth,
                   points=points, as_json=as_json, out=out, formats=chosen)
         return
     for option, value in (("--estimate", estimate), ("--se", se), ("--first-stage", first_stage)):
@@ -87,7 +90,8 @@ def published(
         ("first_stage_se", first_stage_se, "--first-stage-se"),
         ("reduced_form", reduced_form, "--reduced-form"),
         ("reduced_form_se", reduced_form_se, "--reduced-form-se"))}
-    refuse_table_only({"--name": name, "--weights": weights, "--reps": reps, "--seed": seed})
+    refuse_table_only({"--name": name, "--weights": weights, "--reps": reps, "--seed": seed,
+                       "--direct-polytope": direct_polytope, "--mode-bandwidth": mode_bandwidth})
     from sensiv.present.text_published import published_markdown
     from sensiv.present.writer import to_json
     from sensiv.sensitivity.published import published_analysis

@@ -9,6 +9,8 @@ import math
 
 import numpy as np
 
+from sensiv.core.errors import InputError
+
 DEFAULT_PHI = 1.0
 """Bandwidth parameter φ of the mode-based estimate (the paper's default)."""
 
@@ -17,6 +19,19 @@ GRID_POINTS = 512
 
 MAD_SCALE = 1.4826
 """Scale that makes the median absolute deviation consistent for a normal SD."""
+
+
+def check_bandwidth(phi, option: str = "--mode-bandwidth") -> float:
+    """``phi`` as a float (``None``: :data:`DEFAULT_PHI`); refuse anything but a finite
+    number > 0, naming ``option``."""
+    if phi is None:
+        return DEFAULT_PHI
+    if isinstance(phi, bool) or not isinstance(phi, (int, float)) or not (
+            math.isfinite(phi) and phi > 0):
+        raise InputError(f"{option} {phi!r} is not a bandwidth parameter; give a finite number "
+                         "> 0 (a multiple of the mode-based estimate's rule-of-thumb bandwidth), "
+                         "e.g. 1 (the paper's default) or 0.5")
+    return float(phi)
 
 
 def mode_bandwidth(theta: np.ndarray, phi: float = DEFAULT_PHI) -> float:

@@ -77,12 +77,13 @@ class Allowance:
 
     @property
     def text(self) -> str:
-        """The set in words: ``"-2:2se"`` or ``"polytope (m rows)"``."""
+        """The set in words: ``"-2:2se"`` or ``"polytope (m rows)"`` (the unit in
+        :data:`UNIT_WORDS`, outcome units for a polytope)."""
         if self.spec is not None:
             return self.spec.text()
         if self.is_box:
-            return "per-instrument ranges (outcome units)"
-        return f"polytope ({self.constraints.shape[0]} rows, outcome units)"
+            return "per-instrument ranges"
+        return f"polytope ({self.constraints.shape[0]} rows)"
 
     @property
     def radius(self) -> np.ndarray:
@@ -183,10 +184,37 @@ def polytope_allowance(assoc: Associations, constraints, rhs) -> Allowance:
     return Allowance(assoc.names, lows, highs, "", None, np.ones(assoc.count), a, b)
 
 
-def read_polytope_allowance(path, assoc: Associations) -> Allowance:
+def read_polytope_allowance(path, assoc: Associations, *, bounded: bool = False) -> Allowance:
     """Γ from a polytope CSV file (format of :func:`~sensiv.sensitivity.direct_sets.
-    read_polytope`, columns named as the instruments of the table)."""
-    return polytope_allowance(assoc, *polytope_rows(path, assoc.names))
+    read_polytope`, columns named as the instruments of the table); a column naming no
+    instrument of the table is refused, and with ``bounded`` so is a polytope unbounded in
+    any instrument's direct effect."""
+    rows = polytope_rows(path, assoc.names)
+    check_polytope_columns(path, assoc.names)
+    allowance = polytope_allowance(assoc, *rows)
+    if bounded:
+        free = [n for n, lo, hi in zip(assoc.names, allowance.lows, allowance.highs)
+                if not (math.isfinite(lo) and math.isfinite(hi))]
+        if free:
+            shown = ", ".join(free[:5]) + (f" and {len(free) - 5} more" if len(free) > 5 else "")
+            raise InputError(f"the direct-effect polytope in '{path}' leaves the direct effect "
+                             f"of {shown} unbounded, so no bound holds for it; add rows that "
+                             "bound every instrument's direct effect (e.g. a'α ≤ bound and "
+                             "-a'α ≤ bound)")
+    return allowance
+
+
+def check_polytope_columns(path, instruments) -> None:
+    """Refuse a polytope file whose columns name instruments the table does not have."""
+    import pandas as pd
+
+    header = [str(c) for c in pd.read_csv(path, nrows=0).columns]
+    unknown = [c for c in header if c not in (*instruments, "bound")]
+    if unknown:
+        raise InputError(f"polytope file '{path}' has column(s) {', '.join(unknown)}, which "
+                         f"name no instrument of the table; its columns must be the "
+                         f"instruments ({', '.join(instruments[:5])}"
+                         f"{', ...' if len(instruments) > 5 else ''}) and 'bound'")
 
 
 def allowance_range(allowance: Allowance, slope: np.ndarray) -> tuple[float, float]:

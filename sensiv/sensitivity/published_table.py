@@ -18,6 +18,7 @@ from sensiv.sensitivity.bounds import DEFAULT_POINTS
 from sensiv.sensitivity.invalid_count import InvalidCount, invalid_count
 from sensiv.sensitivity.per_instrument import DirectEffects, direct_effects
 from sensiv.sensitivity.per_instrument_prior import PriorEffects, prior_effects
+from sensiv.sensitivity.per_instrument_sets import read_polytope_allowance
 
 KIND = "per_instrument"
 FOCUS = "exposure"
@@ -122,10 +123,12 @@ def published_table(assoc: Associations, *, table: str = "the table", weights: s
                     seed: int | None = None, phi: float = robust.DEFAULT_PHI,
                     require_egger: bool = False, direct=None, prior=None,
                     threshold: float = 0.0, points: int = DEFAULT_POINTS,
-                    count_invalid: bool = True) -> PublishedTableResult:
+                    count_invalid: bool = True, polytope=None) -> PublishedTableResult:
     """IVW (both weight orders), the yardsticks, the invalid-count breakdown and, when given,
     the direct-effect bounds (``direct``: one range such as ``"-2:2se"``) and the prior
-    interval (``prior``: ``"normal:MEAN:SD"``); ``require_egger`` refuses J < 3."""
+    interval (``prior``: ``"normal:MEAN:SD"``); ``polytope`` instead of ``direct``: the path of
+    a polytope CSV file (:func:`~.per_instrument_sets.read_polytope_allowance`);
+    ``require_egger`` refuses J < 3."""
     if weights not in WEIGHT_ORDERS:
         raise InputError(f"--weights {weights!r} is not one of {', '.join(WEIGHT_ORDERS)}; "
                          "give first (the reduced-form SE only) or second (also the "
@@ -133,6 +136,12 @@ def published_table(assoc: Associations, *, table: str = "the table", weights: s
     if require_egger and assoc.count < robust.MIN_INSTRUMENTS:
         robust.egger(assoc, confidence_level)
     direct, prior = one_text(direct, "--direct"), one_text(prior, "--prior")
+    if direct is not None and polytope is not None:
+        raise InputError("--direct and --direct-polytope both state the direct-effect set; "
+                         "give one range for every instrument (--direct) or a polytope file "
+                         "(--direct-polytope), not both")
+    if polytope is not None:
+        direct = read_polytope_allowance(polytope, assoc, bounded=True)
     first = ivw(assoc, "first", confidence_level)
     second = ivw(assoc, "second", confidence_level)
     yard = robust.yardsticks(assoc, weights, confidence_level, reps, seed, phi)
