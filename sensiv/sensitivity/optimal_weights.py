@@ -163,11 +163,12 @@ def centre_covariance(m: WeightPieces, centre: np.ndarray) -> np.ndarray:
 
 
 def trade_off_path(m: WeightPieces, dset: DirectSet, centre: Centre,
-                   j: int) -> list[tuple[float, np.ndarray]]:
-    """``(λ, w)`` along the variance-bias trade-off (the failed solves left out)."""
+                   j: int, scale: float = 1.0) -> list[tuple[float, np.ndarray]]:
+    """``(λ, w)`` along the variance-bias trade-off over ``scale·Γ`` (the failed solves left
+    out; the scaled set has centre ``scale·γ_c`` and ``scale`` times the bias)."""
     import cvxpy as cp
 
-    omega = centre_covariance(m, centre.point)
+    omega = centre_covariance(m, scale * centre.point)
     vals, vecs = np.linalg.eigh(0.5 * (omega + omega.T))
     root = vecs * np.sqrt(np.clip(vals, 0.0, None))
     w = cp.Variable(m.s.shape[0])
@@ -175,9 +176,9 @@ def trade_off_path(m: WeightPieces, dset: DirectSet, centre: Centre,
     lam = cp.Parameter(nonneg=True)
     slope = m.d.T @ w
     if centre.half_widths is not None:
-        bias = centre.half_widths @ cp.abs(slope)
+        bias = (scale * centre.half_widths) @ cp.abs(slope)
     else:
-        bias = cp.max(cp.abs((np.asarray(dset.vertices) - centre.point) @ slope))
+        bias = cp.max(cp.abs(scale * (np.asarray(dset.vertices) - centre.point) @ slope))
     problem = cp.Problem(cp.Minimize(cp.sum_squares(root.T @ w) + lam * cp.square(t)),
                          [bias <= t, m.g.T @ w == np.eye(m.g.shape[1])[:, j]])
     out = []
@@ -206,14 +207,15 @@ def trade_off_path(m: WeightPieces, dset: DirectSet, centre: Centre,
 
 def optimal_bias_aware(m: WeightPieces, template: Core, dset: DirectSet, j: int,
                        confidence_level: float, reference: BiasAware, *,
-                       unbounded: bool = False) -> OptimalBiasAware:
-    """The shortest bias-aware interval over the traced weights and the 2SLS weights."""
+                       unbounded: bool = False, scale: float = 1.0) -> OptimalBiasAware:
+    """The shortest bias-aware interval over ``scale·Γ`` among the weights traced for that
+    set and the 2SLS weights (``reference``: the 2SLS-centred interval over the same set)."""
     centre = set_centre(dset)
     w_2sls = tsls_weights(m, j)
     best = (reference.ci.width if reference.ci.bounded else math.inf, None, w_2sls, reference)
-    for lam, w in trade_off_path(m, dset, centre, j):
+    for lam, w in trade_off_path(m, dset, centre, j, scale):
         ba = bias_aware([weighted_core(m, w, template)], dset, confidence_level,
-                        centre=centre)
+                        centre=centre, scale=scale)
         if ba.ci.bounded and ba.ci.width < best[0]:
             best = (ba.ci.width, lam, w, ba)
     width, lam, w, ba = best
