@@ -161,13 +161,12 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
 def accumulate(chunks: Iterable, columns: Sequence[str]) -> Moments:
     """Pass 1: moments of every chunk (objects with ``values``, ``weights``, ``n_dropped``), summed."""
     total = empty_moments(columns)
-    scratch: dict[tuple[int, ...], np.ndarray] = {}
+    scratch = None
     for chunk in chunks:
-        shape = chunk.values.shape
-        if shape not in scratch:
-            scratch = {shape: np.empty(shape, order="F")}   # one size at a time
+        if scratch is None or scratch.shape != chunk.values.shape:
+            scratch = np.empty(chunk.values.shape, order="F")
         total = total + chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped,
-                                      getattr(chunk, "n_filtered", 0), scratch[shape])
+                                      getattr(chunk, "n_filtered", 0), scratch)
     return total
 
 
@@ -261,7 +260,6 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
     ScoreSums
         ``Σ gᵢgᵢ'`` or ``Σ_g s_g s_g'`` per block.
     """
-    meats = {b.name: np.zeros((b.size, b.size)) for b in blocks}
     rows = ScoreRows(blocks, mean)
     if not cluster:
         outer = [np.zeros((w, w)) for w in rows.widths]
@@ -284,7 +282,7 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
             for u, h in enumerate(unit_rows):
                 acc[u] = _add_by_code(acc[u], codes, n_groups, h)
     if not sums:  # no chunk at all
-        return ScoreSums(meats, 0)
+        return ScoreSums({b.name: np.zeros((b.size, b.size)) for b in blocks}, 0)
     outer = [rows.meats([s.T @ s for s in acc]) for acc in sums]
     if len(outer) == 1:
         return ScoreSums(outer[0], len(indices[0]))
