@@ -267,8 +267,6 @@ def bias_aware_scale(cores: Sequence[Core], dset: DirectSet, threshold: float,
     extended geometrically to ``SCALE_MAX`` for the first sign change and refine it by Brent's
     method to ``1e-12``.
     """
-    from scipy.optimize import brentq
-
     centre = set_centre(dset)
     at_zero = bias_aware(cores, dset, confidence_level, scale=0.0, centre=centre).ci
     if at_zero.contains(threshold):
@@ -279,11 +277,22 @@ def bias_aware_scale(cores: Sequence[Core], dset: DirectSet, threshold: float,
         ci = bias_aware(cores, dset, confidence_level, scale=t, centre=centre).ci
         return side * ((ci.low if side > 0 else ci.high) - threshold)
 
-    far = np.geomspace(1.0, SCALE_MAX, 121)
+    return first_crossing(gap, grid, FAR_POINTS)
+
+
+FAR_POINTS = 121            # geometric scales from 1 to SCALE_MAX beyond the curve's grid
+
+
+def first_crossing(gap, grid, far_points: int) -> float | None:
+    """The first scale ``t > 0`` at which ``gap(t)`` (positive at 0) reaches zero: scanned on
+    ``grid`` and ``far_points`` geometric scales from 1 to ``SCALE_MAX``, the first sign change
+    refined by Brent's method to :data:`SCALE_TOL`; ``None`` when none up to ``SCALE_MAX``."""
+    from scipy.optimize import brentq
+
+    far = np.geomspace(1.0, SCALE_MAX, far_points)
     ts = np.unique(np.concatenate([np.asarray(grid, float), far]))
-    ts = ts[(ts >= 0.0) & (ts <= SCALE_MAX)]
     previous = 0.0
-    for t in ts[ts > 0.0]:
+    for t in ts[(ts > 0.0) & (ts <= SCALE_MAX)]:
         value = gap(float(t))
         if value <= 0.0:
             if value == 0.0:

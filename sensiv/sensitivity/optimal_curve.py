@@ -23,11 +23,10 @@ import math
 
 import numpy as np
 
-from sensiv.sensitivity.bias_aware import SCALE_TOL, bias_aware, set_centre
+from sensiv.sensitivity.bias_aware import bias_aware, first_crossing, set_centre
 from sensiv.sensitivity.direct_sets import DirectSet
 from sensiv.sensitivity.linear_core import Core
 from sensiv.sensitivity.optimal_weights import WeightPieces, optimal_bias_aware
-from sensiv.sensitivity.union import SCALE_MAX
 
 FAR_POINTS = 41
 
@@ -58,7 +57,6 @@ def optimal_scale(m: WeightPieces, core: Core, dset: DirectSet, j: int, threshol
                   level: float, grid: np.ndarray) -> float | None:
     """First ``t ≥ 0`` at which the optimal interval over ``tΓ`` reaches ``threshold``
     (``None``: not up to ``SCALE_MAX``); method in the module docstring."""
-    from scipy.optimize import brentq
 
     at_zero = optimal_at(m, core, dset, j, level, 0.0).interval.ci
     if at_zero.contains(threshold):
@@ -70,15 +68,4 @@ def optimal_scale(m: WeightPieces, core: Core, dset: DirectSet, j: int, threshol
         end = ci.low if side > 0 else ci.high
         return side * (end - threshold) if math.isfinite(end) else -1.0
 
-    far = np.geomspace(1.0, SCALE_MAX, FAR_POINTS)
-    ts = np.unique(np.concatenate([np.asarray(grid, float), far]))
-    previous = 0.0
-    for t in ts[(ts > 0.0) & (ts <= SCALE_MAX)]:
-        value = gap(float(t))
-        if value <= 0.0:
-            if value == 0.0:
-                return float(t)
-            return float(brentq(gap, previous, float(t), xtol=SCALE_TOL, rtol=SCALE_TOL,
-                                maxiter=200))
-        previous = float(t)
-    return None
+    return first_crossing(gap, grid, FAR_POINTS)
