@@ -48,10 +48,17 @@ def text(name: str) -> str:
     return f"CAST({quoted(name)} AS VARCHAR)"
 
 
+def not_a_number(value: str) -> str:
+    """True where ``value`` is NaN.  Written as "not finite and not infinite", not as
+    ``isnan``: DuckDB 2.0 folds ``isnan`` to false from Parquet statistics, which pyarrow
+    writes without the NaNs (seen on a file with NaN stored as NaN; common practice is NULL)."""
+    return f"(NOT isfinite({value}) AND NOT isinf({value}))"
+
+
 def missing(name: str, numeric: bool) -> str:
     """True where the column is missing as the numpy path counts it."""
     if numeric:
-        return f"({quoted(name)} IS NULL OR isnan({number(name)}))"
+        return f"({quoted(name)} IS NULL OR {not_a_number(number(name))})"
     return f"({quoted(name)} IS NULL OR {text(name)} = '')"
 
 
@@ -67,7 +74,7 @@ def indicator(name: str, level: str, numeric_level: bool, query: Query) -> str:
 def _leaf(leaf, kinds: dict[str, str], query: Query) -> str:
     numeric = kinds[leaf.column] == "numeric"
     value = number(leaf.column) if numeric else text(leaf.column)
-    absent = (f"({value} IS NULL OR isnan({value}))" if numeric
+    absent = (f"({value} IS NULL OR {not_a_number(value)})" if numeric
               else f"({value} IS NULL OR {value} = '')")
     if isinstance(leaf, Missing):
         return f"(NOT {absent})" if leaf.negated else absent
