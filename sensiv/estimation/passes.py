@@ -4,7 +4,9 @@ carries (``source.engine``: ``numpy``, ``duckdb`` or ``dask``) and returns the s
 so everything downstream is the same whichever engine read the rows.
 
 * ``numpy`` (default): :func:`~sensiv.estimation.moments.accumulate` and
-  :func:`~sensiv.estimation.moments.score_sums` over ``source.chunks()`` in this process.
+  :func:`~sensiv.estimation.moments.score_sums` over ``source.chunks()`` in this process;
+  with one-way clusters pass 1 also gathers each cluster's moment matrix and pass 2 maps
+  those (:mod:`sensiv.estimation.cluster_moments`) instead of reading the rows again.
 * ``duckdb``: both passes as SQL aggregates inside DuckDB over the files
   (:mod:`sensiv.estimation.engines.duckdb_engine`).
 * ``dask``: the same chunk kernels per partition on a Dask cluster, merged in a tree
@@ -19,6 +21,8 @@ import numpy as np
 
 from sensiv.estimation.engines import dask_engine, duckdb_engine
 from sensiv.estimation.absorb_view import GroupStats
+from sensiv.estimation.cluster_moments import Gatherer, gathering, recall, remember, scores_from
+from sensiv.estimation.cluster_ways import combine_ways
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums, accumulate, score_sums
 
 
@@ -34,7 +38,10 @@ def moments_of(source, columns: Sequence[str]) -> Moments:
         return duckdb_engine.moments(source, columns)
     if engine == "dask":
         return dask_engine.moments(source, columns)
-    return accumulate(source.chunks(), columns)
+    gatherer = Gatherer(len(columns))
+    moments = accumulate(gathering(source.chunks(), gatherer), columns)
+    remember(source, gatherer.result())
+    return moments
 
 
 def scores_of(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
@@ -45,6 +52,9 @@ def scores_of(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: b
         return duckdb_engine.score_sums(source, mean, blocks, cluster)
     if engine == "dask":
         return dask_engine.score_sums(source, mean, blocks, cluster)
+    gathered = recall(source, len(mean)) if cluster else None
+    if gathered is not None:
+        return combine_ways([scores_from(gathered, mean, blocks)])
     return score_sums(source.chunks(), mean, blocks, cluster)
 
 

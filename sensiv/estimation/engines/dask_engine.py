@@ -5,7 +5,10 @@ results are merged by the additive rules in a tree reduction.
   with the data layer's rules and reduced to :class:`~sensiv.estimation.moments.Moments` plus
   its row counts; partitions merge by ``Moments.__add__`` (Chan, Golub & LeVeque), the counts
   by addition, and the whole-data checks run once on the merged counts.
-* Pass 2: robust sums of score products add across partitions; cluster sums are per-cluster
+* One-way clusters: pass 1 also gathers each cluster's moment matrix per partition
+  (:mod:`sensiv.estimation.cluster_moments`), merged by label in the same tree; pass 2's
+  cluster sums are maps of those matrices, with no second round of tasks.
+* Otherwise pass 2: robust sums of score products add across partitions; cluster sums are per-cluster
   score sums per partition, merged by a group-by sum over the labels, then ``Σ_g s_g s_g'``;
   two-way clusters the same for ``A``, ``B`` and the pairs ``A∩B``, combined as numpy does.
 * One absorbed fixed effect: a pass 0 of per-level sums per partition (a groupby-sum, merged
@@ -32,8 +35,10 @@ from sensiv.core.progress import Progress
 from sensiv.data.convert import Tally
 from sensiv.data.datasets import missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
-from sensiv.data.spec import read_columns
+from sensiv.data.spec import cluster_columns, read_columns
 from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats, demean_chunks
+from sensiv.estimation.cluster_moments import (ClusterMoments, Gatherer, gathering, merged,
+                                               recall, remember, scores_from)
 from sensiv.estimation.cluster_ways import combine_ways, pair_labels
 from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
                                        cluster_label_columns, cluster_score_sums,
@@ -132,16 +137,24 @@ def _counts(tally: Tally) -> tuple[int, int, int, dict[str, int]]:
 
 
 def part_moments(part: Any, frames: Callable | None, spec, description: str,
-                 columns: Sequence[str], absorbed: tuple | None = None) -> tuple[Moments, tuple]:
-    """Task: the moments and row counts of one partition."""
+                 columns: Sequence[str], absorbed: tuple | None = None,
+                 gather: bool = False) -> tuple[Moments, tuple, ClusterMoments | None]:
+    """Task: the moments and row counts of one partition, and with ``gather`` its clusters'
+    moment matrices (:mod:`sensiv.estimation.cluster_moments`)."""
     tally = Tally(spec, description)
-    return accumulate(_chunks(part, frames, tally, absorbed), columns), _counts(tally)
+    gatherer = Gatherer(len(columns)) if gather else None
+    moments = accumulate(_chunks(part, frames, tally, absorbed) if gatherer is None else
+                         gathering(_chunks(part, frames, tally, absorbed), gatherer), columns)
+    clusters = gatherer.result() if gatherer is not None and moments.n else None
+    return moments, _counts(tally), (clusters, gather and not moments.n)
 
 
 def merge_moments(left: tuple, right: tuple) -> tuple:
-    (m1, c1), (m2, c2) = left, right
+    (m1, c1, g1), (m2, c2, g2) = left, right
     missing = {k: c1[3].get(k, 0) + c2[3].get(k, 0) for k in {*c1[3], *c2[3]}}
-    return m1 + m2, (c1[0] + c2[0], c1[1] + c2[1], c1[2] + c2[2], missing)
+    # a partition without rows gathers nothing and leaves the other's matrices as they are
+    clusters = g2 if g1[1] else g1 if g2[1] else (merged(g1[0], g2[0]), False)
+    return m1 + m2, (c1[0] + c2[0], c1[1] + c2[1], c1[2] + c2[2], missing), clusters
 
 
 def _tree(client: Any, leaves: list, merge: Callable) -> Any:
@@ -165,12 +178,16 @@ def moments(source, columns: Sequence[str]) -> Moments:
     client = client_of(source.scheduler)
     base, stream, effect = _split(source, client)
     absorbed = None if stream is None else (stream, effect, source.description)
+    gather = stream is None and len(cluster_columns(base.spec)) == 1
     leaves = [client.submit(part_moments, part, frames, base.spec, source.description,
-                            tuple(columns), absorbed, pure=False)
+                            tuple(columns), absorbed, gather, pure=False)
               for part, frames in _parts(base, client)]
+    remember(source, None)
     if not leaves:
         return empty_moments(columns)
-    total, (rows, kept, filtered, missing) = _tree(client, leaves, merge_moments)
+    total, (rows, kept, filtered, missing), (clusters, _) = _tree(client, leaves,
+                                                                  merge_moments)
+    remember(source, clusters)
     tally = Tally(source.spec, source.description)
     if base.origin is not None and base.origin.kind != "duckdb":  # files, Dask frames
         tally.add(rows, kept, missing, filtered)
@@ -226,6 +243,9 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
                ) -> ScoreSums:
     """Pass 2 on Dask; the same :class:`ScoreSums` as the numpy stream (robust, one- or
     two-way cluster sums)."""
+    gathered = recall(source, len(mean)) if cluster else None
+    if gathered is not None:
+        return combine_ways([scores_from(gathered, mean, blocks)])
     client = client_of(source.scheduler)
     base, stream, effect = _split(source, client)
     absorbed = None if stream is None else (stream, effect, source.description)

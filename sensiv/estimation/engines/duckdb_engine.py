@@ -30,6 +30,8 @@ import numpy as np
 from sensiv.data.datasets import quoted
 from sensiv.data.spec import cluster_columns
 from sensiv.estimation.absorb_view import GroupStats
+from sensiv.estimation.cluster_moments import (ClusterMoments, cluster_scores, recall, remember,
+                                               scores_from, symmetric)
 from sensiv.estimation.cluster_ways import combine_ways
 from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, quick_parts,
                                                    quick_verdict)
@@ -38,11 +40,6 @@ from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums
 
 SAMPLE_ROWS = 65_536
 """Rows of the first rows read for a centring shift when pass 1 is one grouped scan."""
-
-_GROUPED: dict[int, tuple[object, np.ndarray, np.ndarray]] = {}
-"""Pass 1's per-cluster moment matrices of the last one-way clustered source (``id(source)``
-→ (source, shift, ``(G, 1+p, 1+p)`` matrices about the shift)), which pass 2 turns into the
-cluster score sums without reading the data again."""
 
 def _sample_shift(plan: Plan) -> np.ndarray | None:
     """Each value column's mean over the first :data:`SAMPLE_ROWS` kept rows (finite values
@@ -99,7 +96,7 @@ def _combined(column, how: str):
 
 def _one_scan_pass(plan: Plan, source, columns: Sequence[str]) -> Moments | None:
     """Pass 1 as one scan: checks and moments, grouped by the cluster for one-way clusters,
-    whose per-cluster moment matrices are kept for pass 2 (:data:`_GROUPED`); ``None`` where
+    whose per-cluster moment matrices are kept for pass 2 (:func:`~sensiv.estimation.cluster_moments.remember`); ``None`` where
     the quick checks cannot decide (a NaN, an infinite value, a text column in a numeric
     role...): the two-query route then runs the full checks."""
     quick = quick_parts(plan)
@@ -118,14 +115,10 @@ def _one_scan_pass(plan: Plan, source, columns: Sequence[str]) -> Moments | None
     n_filtered, n_dropped = verdict
     p = len(plan.values)
     met = np.asarray(table["k1"]) > 0             # clusters with a clean row
-    upper = np.zeros((int(met.sum()), p + 1, p + 1))
-    rows, cols = np.triu_indices(p + 1)
-    upper[:, rows, cols] = np.column_stack(
-        [np.asarray(table[f"m{k}"], dtype=np.float64)[met] for k in range(len(rows))])
-    per_cluster = upper + np.triu(upper, 1).transpose(0, 2, 1)
-    _GROUPED.clear()
-    if cluster is not None:
-        _GROUPED[id(source)] = (source, shift, per_cluster)
+    entries = (p + 1) * (p + 2) // 2
+    per_cluster = symmetric(np.column_stack(
+        [np.asarray(table[f"m{k}"], dtype=np.float64)[met] for k in range(entries)]), p + 1)
+    remember(source, ClusterMoments([], shift, per_cluster) if cluster is not None else None)
     whole = per_cluster.sum(axis=0)
     return _centred_moments(columns, row[1], n_dropped, n_filtered, shift, whole[0, 0],
                             whole[0, 1:], whole[1:, 1:])
@@ -223,10 +216,7 @@ def _grouped_moments(plan: Plan, centred: str, p: int, params: list, ways: int
     table = plan.run(sql, params).fetchnumpy()
     flat = np.column_stack([np.asarray(table[f"m{k}"], dtype=np.float64)
                             for k in range(len(pairs))])
-    upper = np.zeros((len(flat), p + 1, p + 1))
-    rows, cols = zip(*pairs)
-    upper[:, rows, cols] = flat
-    full = upper + np.triu(upper, 1).transpose(0, 2, 1)
+    full = symmetric(flat, p + 1)
     if ways == 1:
         return [full]
     # grouping(c0, c1): 1 when only c0 groups (way A), 2 when only c1 (B), 0 for both (A∩B)
@@ -241,33 +231,13 @@ def _moment_route(blocks: Sequence[ScoreBlock], p: int) -> bool:
     return (p + 1) * (p + 2) // 2 <= maps
 
 
-def _scores_from_moments(moments: np.ndarray, blocks: Sequence[ScoreBlock]
-                         ) -> dict[str, np.ndarray]:
-    """Per-cluster score sums ``vec(L' M_g R)`` (``a`` varying slowest), for every block: the
-    scores are bilinear in the augmented row, so their cluster sums are maps of ``M_g``."""
-    return {b.name: np.einsum("ak,gab,bl->gkl", b.left, moments, b.right,
-                              optimize=True).reshape(len(moments), -1) for b in blocks}
-
-
-def _recentred(blocks: Sequence[ScoreBlock], delta: np.ndarray) -> list[ScoreBlock]:
-    """The blocks' maps for rows centred at ``shift`` instead of the mean (``delta = mean −
-    shift``): ``[1, d − δ] = T [1, d]``, so each map becomes ``T' @ map``."""
-    out = []
-    for block in blocks:
-        left, right = (np.vstack([m[:1] - delta @ m[1:], m[1:]]) for m in (block.left,
-                                                                         block.right))
-        out.append(ScoreBlock(block.name, left, right))
-    return out
-
-
 def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: bool
                ) -> ScoreSums:
     """Pass 2 in DuckDB; the same :class:`ScoreSums` as the numpy stream (robust, one- or
     two-way cluster sums)."""
-    cached = _GROUPED.get(id(source))
-    if cluster and cached is not None and cached[0] is source:
-        return combine_ways([_scores_from_moments(cached[2], _recentred(blocks,
-                                                                         mean - cached[1]))])
+    gathered = recall(source, len(mean)) if cluster else None
+    if gathered is not None:
+        return combine_ways([scores_from(gathered, mean, blocks)])
     plan = Plan(source)
     clusters = cluster_columns(source.spec) if cluster else ()
     try:
@@ -281,7 +251,7 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
             centred_rows = f"SELECT w, {centred}{keep} FROM ({rows}) AS clean"
             per_way = _grouped_moments(plan, centred_rows, len(mean), inner.params + params,
                                        len(clusters))
-            return combine_ways([_scores_from_moments(m, blocks) for m in per_way])
+            return combine_ways([cluster_scores(m, blocks) for m in per_way])
         maps, exprs, index = _score_columns(blocks, mean, query)
         params = inner.params + params
         scores = (f"SELECT {', '.join(exprs)}{keep} FROM (SELECT w, {', '.join(maps)}{keep} "

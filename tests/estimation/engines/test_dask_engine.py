@@ -17,6 +17,7 @@ from typer.testing import CliRunner
 from sensiv.cli.app import app
 from sensiv.data import Spec, from_file, with_engine
 from sensiv.estimation import iv
+from sensiv.estimation import cluster_moments
 from sensiv.estimation.engines import dask_engine
 
 from conftest import assert_same_document, card_frame
@@ -141,3 +142,12 @@ def test_a_dask_dataframe_is_accepted_directly(scheduler):
     assert (got.n, got.n_dropped) == (want.n, want.n_dropped)
     np.testing.assert_allclose(got.tsls.estimate, want.tsls.estimate, rtol=1e-10)
     np.testing.assert_allclose(got.tsls.covariance, want.tsls.covariance, rtol=1e-10)
+
+
+def test_one_way_clusters_skip_the_second_round_of_tasks(card_folder, scheduler):
+    """Pass 1 gathers the clusters' moment matrices; pass 2 maps them (no tasks) and gives the
+    numpy engine's numbers."""
+    cluster_moments._LAST.clear()
+    numpy_doc, dask_doc = both("fit", card_folder, CARD + DESIGNS["cluster"], scheduler)
+    assert cluster_moments._LAST, "the gathered route was not taken"
+    assert_same_document(dask_doc, numpy_doc)

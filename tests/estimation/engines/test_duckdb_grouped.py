@@ -15,6 +15,7 @@ import pytest
 from typer.testing import CliRunner
 
 from sensiv.cli.app import app
+from sensiv.estimation import cluster_moments
 from sensiv.estimation.engines import duckdb_engine
 
 from conftest import assert_same_document, random_frame
@@ -66,13 +67,13 @@ def test_one_scan_route_equals_the_two_query_route_and_numpy(sorted_folder, monk
                                                              command):
     extra = ["--direct=-0.1:0.1", "--direct=-0.05:0.05"] if command == "sweep" else []
     numpy_doc = run(command, sorted_folder, *MODEL, *extra, "--json")
-    duckdb_engine._GROUPED.clear()
+    cluster_moments._LAST.clear()
     grouped = run(command, sorted_folder, *MODEL, *extra, "--json", "--engine", "duckdb")
-    assert duckdb_engine._GROUPED, "the one-scan route was not taken"
+    assert cluster_moments._LAST, "the one-scan route was not taken"
     monkeypatch.setattr(duckdb_engine, "_sample_shift", lambda plan: None)
-    duckdb_engine._GROUPED.clear()
+    cluster_moments._LAST.clear()
     two_query = run(command, sorted_folder, *MODEL, *extra, "--json", "--engine", "duckdb")
-    assert not duckdb_engine._GROUPED
+    assert not cluster_moments._LAST
     assert_same(grouped, two_query)
     assert_same(grouped, numpy_doc)
 
@@ -101,8 +102,8 @@ def test_nan_stored_as_nan_takes_the_full_checks(tmp_path, monkeypatch):
     assert table.column("z2").null_count == 0
     path = tmp_path / "nan.parquet"
     pq.write_table(table, path)
-    duckdb_engine._GROUPED.clear()
+    cluster_moments._LAST.clear()
     got = run("fit", path, *MODEL, "--json", "--engine", "duckdb")
-    assert not duckdb_engine._GROUPED          # the quick route declined
+    assert not cluster_moments._LAST          # the quick route declined
     assert_same(got, run("fit", path, *MODEL, "--json"))
     assert json.loads(got)["n_dropped"] == 7
