@@ -33,6 +33,9 @@ from sensiv.data.spec import Spec, roles, used_columns
 _UPPER = 0.25 * MAX_MAGNITUDE ** 2
 _LOWER = 4.0 / MAX_MAGNITUDE ** 2
 # Margins of 4 on both sides cover the rounding of the sum of squares.
+DOT_ROWS = 8192
+"""Values per dot product in :func:`plainly_finite`: OpenBLAS runs a longer one on several
+threads, which on a busy machine costs far more than the sum itself (measured: 80×)."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -63,8 +66,11 @@ def plainly_finite(column: np.ndarray) -> bool:
     that :func:`sensiv.data.convert.check_scale` refuses: its sum of squares ``s`` is finite,
     ``s ≤ MAX²/4`` (so every ``|x| ≤ MAX``) and ``s ≥ 4 n / MAX²`` (so the largest ``|x|``,
     at least ``√(s/n)``, is not below ``1/MAX``).  ``False`` says only "look closer"."""
+    s = 0.0
     with np.errstate(all="ignore"):  # an overflow or a NaN is the answer "look closer"
-        s = float(np.dot(column, column))
+        for start in range(0, column.size, DOT_ROWS):
+            piece = column[start:start + DOT_ROWS]
+            s += float(np.dot(piece, piece))
     return _LOWER * column.size <= s <= _UPPER
 
 

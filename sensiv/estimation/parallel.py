@@ -5,7 +5,8 @@ GIL, so the chunks of a pass can be worked on by :data:`WORKERS` threads at once
 keeps its own scratch state (``make_state``), results come back in the order of the chunks and
 are combined by the caller in that order, so the answer does not depend on the number of
 threads or on their timing.  At most ``2 × WORKERS`` chunks are in flight, so a streamed pass
-still holds a bounded number of chunks.
+still holds a bounded number of chunks.  While a pass runs, OpenBLAS uses one thread
+(:mod:`sensiv.estimation.blas_threads`), so the threads are this module's, not BLAS's.
 """
 
 from __future__ import annotations
@@ -16,6 +17,8 @@ from collections import deque
 from collections.abc import Callable, Iterable, Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
 from typing import Any, TypeVar
+
+from sensiv.estimation.blas_threads import one_blas_thread
 
 Item = TypeVar("Item")
 Result = TypeVar("Result")
@@ -31,6 +34,12 @@ def ordered_map(work: Callable[[Any, Item], Result], items: Iterable[Item],
     """``work(state, item)`` for every item, in the items' order; each thread has its own
     ``state = make_state()``.  One worker (or ``workers=1``) runs in the caller's thread."""
     workers = WORKERS if workers is None else workers
+    with one_blas_thread():
+        yield from _mapped(work, items, make_state, workers)
+
+
+def _mapped(work: Callable[[Any, Item], Result], items: Iterable[Item],
+            make_state: Callable[[], Any], workers: int) -> Iterator[Result]:
     if workers <= 1:
         state = make_state()
         for item in items:
