@@ -27,6 +27,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.data.columnar import arrow_array, arrow_kind, fast_columns, numpy_kind
 from sensiv.data.datasets import Origin, from_dask, from_dataset, is_dask_frame, is_dataset
 from sensiv.data.source import Source, build_source
 from sensiv.data.spec import Spec, cluster_columns, read_columns
@@ -107,7 +108,26 @@ def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None
         return frames
 
     return build_source(spec, description, list(frame.columns), lambda: [frame], make_frames,
-                  eager=True)
+                        eager=True, columns=_frame_columns(frame, spec, rows))
+
+
+def _frame_columns(frame: pd.DataFrame, spec: Any, rows: int
+                   ) -> Callable[[], Iterator[list[np.ndarray]]] | None:
+    """The fast path's chunks of a frame whose used columns are numpy numbers: slices of
+    each column's array (no frame copy), or ``None`` for the general path."""
+    if not isinstance(spec, Spec) or len(frame) == 0 or not frame.columns.is_unique:
+        return None
+    kinds = {name: numpy_kind(frame[name].dtype) for name in read_columns(spec)
+             if name in frame.columns}
+    names = fast_columns(spec, kinds)
+    if names is None:
+        return None
+
+    def batches() -> Iterator[list[np.ndarray]]:
+        arrays = [frame[name].to_numpy() for name in names]
+        for start in range(0, len(frame), rows):
+            yield [array[start:start + rows] for array in arrays]
+    return batches
 
 
 def from_chunks(frames: Sequence[pd.DataFrame], spec: Spec) -> Source:
@@ -321,10 +341,33 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
         labels = [*text, *cluster_columns(spec)]
         return _reader(resolved, fmt, used, rows, labels)
 
+    columns = _parquet_columns(resolved, spec, rows) if fmt == "parquet" else None
     source = build_source(spec, resolved.name, available, samples, make_frames, eager=False,
-                          chunk_rows=rows)
+                          chunk_rows=rows, columns=columns, ahead=columns is not None)
     origin = Origin(fmt, (str(resolved),)) if fmt in ("csv", "parquet") else None
     return dataclasses.replace(source, origin=origin, chunk_rows=rows)
+
+
+def _parquet_columns(path: Path, spec: Any, rows: int
+                     ) -> Callable[[], Iterator[list[np.ndarray]]] | None:
+    """The fast path's chunks of a Parquet file whose used columns are Arrow numbers: each
+    record batch's columns as numpy arrays (no pandas), or ``None`` for the general path."""
+    import pyarrow.parquet as pq
+
+    if not isinstance(spec, Spec):
+        return None
+    schema = pq.read_schema(path)
+    kinds = {name: arrow_kind(schema.field(name).type) for name in read_columns(spec)
+             if schema.get_field_index(name) >= 0}
+    names = fast_columns(spec, kinds)
+    if names is None:
+        return None
+
+    def batches() -> Iterator[list[np.ndarray]]:
+        with pq.ParquetFile(path, pre_buffer=False, buffer_size=PARQUET_BUFFER_BYTES) as handle:
+            for batch in handle.iter_batches(batch_size=rows, columns=names, use_threads=False):
+                yield [arrow_array(batch.column(name)) for name in names]
+    return lambda: _guarded(path, "parquet", batches)
 
 
 def load(path_or_frame: Any, spec: Spec, *, chunk_rows: int | None = None) -> Source:

@@ -40,6 +40,7 @@ from sensiv.core.errors import IdentifierWarning, InputError
 from sensiv.data.convert import (as_float, check_scale, data_row, dtype_kind, extremes,
                                  identifier_notes, level_index, level_strings, missing_mask,
                                  scan_levels, Tally, text_controls)
+from sensiv.data.columnar import cleaned
 from sensiv.data.dense_size import check_dense_size
 from sensiv.data.spec import check_columns, cluster_columns, roles, row_filter, Spec
 from sensiv.data.where import check_kinds, filter_columns, keep_mask, Node
@@ -121,6 +122,11 @@ class Source:
     """Address of a running Dask scheduler (``engine="dask"``); ``None`` starts a local one."""
     chunk_rows: int | None = None
     """Rows per chunk when streaming from files."""
+    # The fast path (sensiv.data.columnar): a factory of per-chunk arrays of the used
+    # columns, and whether the next chunk is read on a worker thread.
+    _columns: Callable[[], Iterator[Sequence[np.ndarray]]] | None = field(
+        default=None, repr=False, compare=False)
+    _ahead: bool = field(default=False, repr=False, compare=False)
 
     @property
     def frames(self) -> Callable[[], Iterator[pd.DataFrame]]:
@@ -140,7 +146,8 @@ class Source:
     def stripped(self) -> Source:
         """A copy without its rows or readers (only what cleaning a frame needs), to send to
         the workers of a cluster together with the frames of one partition."""
-        return dataclasses.replace(self, _frames=_no_frames, _cache=None, origin=None)
+        return dataclasses.replace(self, _frames=_no_frames, _cache=None, origin=None,
+                                   _columns=None)
 
     @property
     def in_memory(self) -> bool:
@@ -166,7 +173,13 @@ class Source:
             yield from self._cache
             return
         tally = Tally(self.spec, self.description)
-        yield from clean_chunks(self, self._frames(), tally)
+        if self._columns is not None:
+            for item in cleaned(self._columns(), self.spec, self.description,
+                                ahead=self._ahead):
+                tally.add(item.rows, item.kept, item.missing)
+                yield Chunk(item.values, item.weights, None, item.rows - item.kept)
+        else:
+            yield from clean_chunks(self, self._frames(), tally)
         tally.finish()
 
 
@@ -309,7 +322,9 @@ def _filter_kinds(spec: Spec, samples: Sequence[pd.DataFrame], text: list[str],
 def build_source(spec: Spec, description: str, available: Sequence[Any],
                  samples: Callable[[], Sequence[pd.DataFrame]],
                  make_frames: Callable[[list[str]], Callable[[], Iterator[pd.DataFrame]]],
-                 *, eager: bool, chunk_rows: int | None = None) -> Source:
+                 *, eager: bool, chunk_rows: int | None = None,
+                 columns: Callable[[], Iterator[Sequence[np.ndarray]]] | None = None,
+                 ahead: bool = False) -> Source:
     """The steps every reader shares: column names, kinds, levels and layout.
 
     Parameters
@@ -328,6 +343,11 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
         Convert and validate every row now and keep the chunks (in-memory data).
     chunk_rows : int, optional
         Rows per streamed chunk, for the check that one chunk's design fits in memory.
+    columns : callable, optional
+        The fast path (:mod:`sensiv.data.columnar`): a factory of per-chunk arrays of the
+        used columns, read instead of the frames when no text control turned up.
+    ahead : bool
+        Read the fast path's next chunk on a worker thread.
     """
     if not isinstance(spec, Spec):
         raise InputError(f"spec must be a sensiv.data.Spec; got {type(spec).__name__}")
@@ -363,7 +383,7 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
         check_dense_size(len(layout.columns) + 1, rows, levels, description,
                          streamed=not eager)
     source = Source(spec, layout, description, frames, levels, None, row_filter_kinds,
-                    tuple(notes))
+                    tuple(notes), _columns=None if text else columns, _ahead=ahead)
     if eager:
         return dataclasses.replace(source, _cache=tuple(source.chunks()))
     return source

@@ -34,6 +34,7 @@ from sensiv.estimation import distributions as dist
 from sensiv.estimation import linalg
 from sensiv.estimation.absorb import Absorption, absorb_assumptions, absorb_keys
 from sensiv.estimation.absorbed_source import absorb_source
+from sensiv.estimation.blas_threads import on_one_blas_thread
 from sensiv.estimation.covariance import (check_clusters, coefficient_covariance,
                                           combine_two_way, few_clusters_notes,
                                           normalise_weights, psd_fix_note, score_blocks,
@@ -326,6 +327,7 @@ def fit_from_moments(pieces: Pieces, sums: ScoreSums | None, layout, *, se: str,
         absorption=absorption, absorbed_parameters=k_fe)
 
 
+@on_one_blas_thread
 def fit_with_pieces(source, *, se: str, confidence_level: float, small: bool,
                     extra_blocks=None) -> tuple[IVFit, Pieces, ScoreSums | None]:
     """Two passes over ``source``: the fit plus the pass-1 pieces and pass-2 sums.

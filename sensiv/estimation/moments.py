@@ -17,12 +17,13 @@ keeps columns with a large mean (a calendar year, incomes in cents) well conditi
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.estimation.parallel import ordered_map
 from sensiv.estimation.score_rows import ScoreRows
 
 
@@ -160,13 +161,16 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
 
 def accumulate(chunks: Iterable, columns: Sequence[str]) -> Moments:
     """Pass 1: moments of every chunk (objects with ``values``, ``weights``, ``n_dropped``), summed."""
+    def one(scratch: dict, chunk) -> Moments:
+        if scratch.get("shape") != chunk.values.shape:  # one scratch array per thread
+            scratch["shape"], scratch["array"] = (chunk.values.shape,
+                                                  np.empty(chunk.values.shape, order="F"))
+        return chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped,
+                             getattr(chunk, "n_filtered", 0), scratch["array"])
+
     total = empty_moments(columns)
-    scratch = None
-    for chunk in chunks:
-        if scratch is None or scratch.shape != chunk.values.shape:
-            scratch = np.empty(chunk.values.shape, order="F")
-        total = total + chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped,
-                                      getattr(chunk, "n_filtered", 0), scratch)
+    for part in ordered_map(one, chunks, dict):
+        total = total + part
     return total
 
 
@@ -262,10 +266,17 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
     """
     rows = ScoreRows(blocks, mean)
     if not cluster:
+        def one(local: ScoreRows, chunk) -> list[np.ndarray]:
+            part = [np.zeros((w, w)) for w in local.widths]
+            for values, weights in cache_blocks(chunk.values, chunk.weights):
+                for acc, h in zip(part, local.rows(values, weights)):
+                    acc += h.T @ h
+            return part
+
         outer = [np.zeros((w, w)) for w in rows.widths]
-        for chunk in chunks:
-            for acc, h in zip(outer, rows.rows(chunk.values, chunk.weights)):
-                acc += h.T @ h
+        for part in ordered_map(one, chunks, lambda: ScoreRows(blocks, mean)):
+            for acc, add in zip(outer, part):
+                acc += add
         return ScoreSums(rows.meats(outer), None)
 
     indices: list[LabelCodes] = []
@@ -290,6 +301,24 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
     combined = {b.name: outer[0][b.name] + outer[1][b.name] - outer[2][b.name] for b in blocks}
     parts = tuple(zip((1, 1, -1), outer, counts))
     return ScoreSums(combined, min(counts[:2]), counts, parts)
+
+
+CACHE_ROWS = 4096
+"""Rows of a chunk that pass 2 turns into score rows at a time: the score rows of a block
+this size stay in the processor's cache between being formed and being multiplied."""
+
+
+def cache_blocks(values: np.ndarray, weights: np.ndarray | None
+                 ) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
+    """``values`` and ``weights`` in consecutive blocks of at most :data:`CACHE_ROWS` rows
+    (views; the whole chunk when it is no longer)."""
+    n = values.shape[0]
+    if n <= CACHE_ROWS:
+        yield values, weights
+        return
+    for start in range(0, n, CACHE_ROWS):
+        stop = start + CACHE_ROWS
+        yield values[start:stop], None if weights is None else weights[start:stop]
 
 
 def _add_by_code(acc: np.ndarray, codes: np.ndarray, n_groups: int, g: np.ndarray) -> np.ndarray:

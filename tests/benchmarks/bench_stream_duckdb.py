@@ -82,11 +82,15 @@ def main(argv: list[str] | None = None) -> int:
                  for size in paths}
     per_million = {kind: (times[(kind, 2 * args.n)] - times[(kind, args.n)]) / args.n * 1e6
                    for kind in ("sensiv", "duckdb")}
-    ratio = per_million["sensiv"] / per_million["duckdb"]
+    noisy = min(per_million.values()) <= 0  # t(2n) <= t(n): the machine's load, not a cost
+    ratio = per_million["sensiv"] / per_million["duckdb"] if not noisy else float("nan")
     print(f"bench_stream_duckdb: n = {args.n:,} and {2 * args.n:,} rows, best of {args.repeats}")
     for kind in ("sensiv", "duckdb"):
         print(f"  {kind:7s} {times[(kind, args.n)]:6.2f} s at n, {times[(kind, 2 * args.n)]:6.2f} s "
               f"at 2n: {per_million[kind]:.3f} s per million rows")
+    if noisy:
+        print("  a time at 2n was not above the time at n: too noisy to judge, run again")
+        return 0
     print(f"  ratio sensiv / duckdb per million rows {ratio:.2f}x   target <= {TARGET:g}x   "
           f"{_design.verdict(ratio <= TARGET)}")
     return 0
