@@ -182,11 +182,16 @@ class ScoreBlock:
     name : str
     left : ndarray, shape (1+p, k_a)
     right : ndarray, shape (1+p, k_e)
+    basis : (V, A, B) or None
+        The same maps in a smaller basis, ``d̃V A = d̃ left`` and ``d̃V B = d̃ right`` over
+        the rows (built and checked by :func:`sensiv.estimation.score_basis.in_basis`): the
+        numpy kernels then sum the distinct products of ``v = d̃V`` instead of the scores.
     """
 
     name: str
     left: np.ndarray
     right: np.ndarray
+    basis: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
     @property
     def size(self) -> int:
