@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.core.errors import InputError
-from sensiv.estimation.score_rows import ScoreRows
+from sensiv.estimation.score_rows import ScoreRows, row_slices
 
 
 @dataclass(frozen=True, slots=True)
@@ -269,8 +269,9 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
     if not cluster:
         outer = [np.zeros((w, w)) for w in rows.widths]
         for chunk in chunks:
-            for acc, h in zip(outer, rows.rows(chunk.values, chunk.weights)):
-                acc += h.T @ h
+            for values, weights, _ in row_slices(chunk):
+                for acc, h in zip(outer, rows.rows(values, weights)):
+                    acc += h.T @ h
         return ScoreSums(rows.meats(outer), None)
 
     indices: list[LabelCodes] = []
@@ -282,10 +283,11 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
             ways = 3 if np.ndim(chunk.clusters) == 2 else 1
             indices = [LabelCodes() for _ in range(ways)]
             sums = [[np.zeros((0, w)) for w in rows.widths] for _ in range(ways)]
-        unit_rows = rows.rows(chunk.values, chunk.weights)
-        for (codes, n_groups), acc in zip(_encode_ways(indices, chunk.clusters), sums):
-            for u, h in enumerate(unit_rows):
-                acc[u] = _add_by_code(acc[u], codes, n_groups, h)
+        for values, weights, labels in row_slices(chunk):
+            unit_rows = rows.rows(values, weights)
+            for (codes, n_groups), acc in zip(_encode_ways(indices, labels), sums):
+                for u, h in enumerate(unit_rows):
+                    acc[u] = _add_by_code(acc[u], codes, n_groups, h)
     if not sums:  # no chunk at all
         return ScoreSums({b.name: np.zeros((b.size, b.size)) for b in blocks}, 0)
     outer = [rows.meats([s.T @ s for s in acc]) for acc in sums]
@@ -327,9 +329,10 @@ def cluster_score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[Scor
     for chunk in chunks:
         if chunk.clusters is None:
             raise ValueError("cluster sums requested but the chunks carry no cluster labels")
-        codes, n_groups = index.encode(chunk.clusters)
-        for u, h in enumerate(rows.rows(chunk.values, chunk.weights)):
-            sums[u] = _add_by_code(sums[u], codes, n_groups, h)
+        for values, weights, labels in row_slices(chunk):
+            codes, n_groups = index.encode(labels)
+            for u, h in enumerate(rows.rows(values, weights)):
+                sums[u] = _add_by_code(sums[u], codes, n_groups, h)
     if not len(index):
         return [], {b.name: np.zeros((0, b.size)) for b in blocks}
     return index.labels(), rows.sums(sums)

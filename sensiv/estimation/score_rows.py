@@ -37,6 +37,24 @@ NARROW_SHARE = 4
 own scores, unless another block already forms the residual-weighted rows of its residual."""
 
 
+PASS2_ROWS = 16_384
+"""Rows of a chunk turned into score rows at a time in pass 2: the score rows are several
+times wider than the data (e.g. 280 numbers per row with 50 instruments), so whole chunks of
+them cost more memory than the chunk itself."""
+
+
+def row_slices(chunk):
+    """``(values, weights, clusters)`` of a chunk in slices of :data:`PASS2_ROWS` rows."""
+    n = chunk.values.shape[0]
+    if n <= PASS2_ROWS:
+        yield chunk.values, chunk.weights, chunk.clusters
+        return
+    for start in range(0, n, PASS2_ROWS):
+        part = slice(start, start + PASS2_ROWS)
+        yield (chunk.values[part], None if chunk.weights is None else chunk.weights[part],
+               None if chunk.clusters is None else chunk.clusters[part])
+
+
 def _block_scores(left: np.ndarray, right: np.ndarray, size: int,
                   weights: np.ndarray | None, out: np.ndarray) -> np.ndarray:
     if right.shape[1] == 1:
