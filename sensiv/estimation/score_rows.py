@@ -17,7 +17,8 @@ forming ``aᵢ`` for every block by a product whose result has a row per data ro
 the slowest operation of the pass (it writes ``rows × maps`` numbers and, on a busy
 multi-core machine, OpenBLAS threads wait on each other over it).  A block with several
 residual columns (the first stages), or whose ``L`` is much narrower than the row, keeps its
-own per-row scores.
+own per-row scores — unless it carries a smaller basis of both its maps, whose distinct
+products then stand in for the scores (:mod:`sensiv.estimation.symmetric_rows`).
 """
 
 from __future__ import annotations
@@ -26,12 +27,32 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from sensiv.estimation.symmetric_rows import distinct_count, fold, products
+
 MAX_BUFFERS = 16
 """Scratch arrays kept between chunks (a few per chunk size; the last chunk is shorter)."""
 
 NARROW_SHARE = 4
 """A one-residual block whose ``L`` has fewer than ``(1+p)/NARROW_SHARE`` columns keeps its
 own scores, unless another block already forms the residual-weighted rows of its residual."""
+
+
+PASS2_ROWS = 16_384
+"""Rows of a chunk turned into score rows at a time in pass 2: the score rows are several
+times wider than the data (e.g. 280 numbers per row with 50 instruments), so whole chunks of
+them cost more memory than the chunk itself."""
+
+
+def row_slices(chunk):
+    """``(values, weights, clusters)`` of a chunk in slices of :data:`PASS2_ROWS` rows."""
+    n = chunk.values.shape[0]
+    if n <= PASS2_ROWS:
+        yield chunk.values, chunk.weights, chunk.clusters
+        return
+    for start in range(0, n, PASS2_ROWS):
+        part = slice(start, start + PASS2_ROWS)
+        yield (chunk.values[part], None if chunk.weights is None else chunk.weights[part],
+               None if chunk.clusters is None else chunk.clusters[part])
 
 
 def _block_scores(left: np.ndarray, right: np.ndarray, size: int,
@@ -81,14 +102,17 @@ class ScoreRows:
                 unit = _residual_unit(residuals, b.right[:, 0], add=False)
                 if unit is not None:
                     routes[b.name] = (unit, b.left)
+        bases = self._product_routes(blocks, routes, len(residuals))
         self._direct = [b for b in blocks if b.name not in routes]
         for j, b in enumerate(self._direct):
-            routes[b.name] = (len(residuals) + j, None)
+            routes[b.name] = (len(residuals) + len(bases) + j, None)
         self._routes = [(b.name, *routes[b.name]) for b in blocks]
         self._residual_map = (np.column_stack(residuals) if residuals
                               else np.zeros((width, 0)))
         self._direct_maps = _DirectMaps(self._direct, mean) if self._direct else None
-        self.widths = [width] * len(residuals) + [b.size for b in self._direct]
+        self._bases = [(v[1:], v[0] - mean @ v[1:]) for v in bases]
+        self.widths = ([width] * len(residuals) + [distinct_count(v.shape[1]) for v in bases]
+                       + [b.size for b in self._direct])
         self._buffers: dict[tuple, np.ndarray] = {}
 
     def rows(self, values: np.ndarray, weights: np.ndarray | None) -> list[np.ndarray]:
@@ -112,6 +136,12 @@ class ScoreRows:
                 np.subtract(values, self._mean, out=h[:, 1:])
                 h[:, 1:] *= e[:, j:j + 1]
                 out.append(h)
+        for j, (v_map, v_offset) in enumerate(self._bases):
+            v = np.matmul(values, v_map, out=self._scratch(("v", j), n, v_map.shape[1]))
+            v += v_offset
+            scaled = self._scratch(("vw", j), n, v_map.shape[1])
+            out.append(products(v, weights, scaled,
+                                self._scratch(("u", j), n, distinct_count(v_map.shape[1]))))
         if self._direct_maps is not None:
             mapped = self._direct_maps.apply(values, self._scratch("mapped", n,
                                                                    self._direct_maps.width))
@@ -119,6 +149,23 @@ class ScoreRows:
                 g = self._scratch(("g", j), n, b.size)
                 out.append(_block_scores(a, e, b.size, weights, g))
         return out
+
+    @staticmethod
+    def _product_routes(blocks: Sequence, routes: dict, first: int) -> list[np.ndarray]:
+        """Route each block with a worthwhile basis to the distinct products of its basis
+        (blocks with the same basis share them); the distinct bases, in unit order."""
+        bases: list[np.ndarray] = []
+        for b in blocks:
+            basis = getattr(b, "basis", None)
+            if b.name in routes or basis is None or distinct_count(basis[0].shape[1]) >= b.size:
+                continue
+            unit = next((j for j, known in enumerate(bases) if np.array_equal(known, basis[0])),
+                        None)
+            if unit is None:
+                bases.append(basis[0])
+                unit = len(bases) - 1
+            routes[b.name] = (first + unit, fold(basis[1], basis[2]))
+        return bases
 
     def _scratch(self, tag, rows: int, columns: int) -> np.ndarray:
         key = (tag, rows, columns)

@@ -49,7 +49,7 @@ from sensiv.sensitivity.optimal_weights import OptimalBiasAware, moment_block, o
 from sensiv.sensitivity.robust_set import (MATERIAL_SHARE, differs_materially,  # noqa: F401
                                            reduced_form, robust_set)
 from sensiv.sensitivity.union import SCALE_MAX, direct_breakdown, identified_set_lp
-from sensiv.sensitivity.union_sets import (UnionMethod, breakdown_scale_set,
+from sensiv.sensitivity.union_sets import (UnionMethod, breakdown_scale_set, remembering_se,
                                            identified_curve_set, union_curve_set)
 
 DEFAULT_POINTS = 101
@@ -281,6 +281,7 @@ def sweep(data, spec=None, *, direct: Sequence[RangeSpec | str] | None = None,
                        threshold=threshold, points=points, adaptive=adaptive, at=grid)
 
 
+@remembering_se()
 def analyse(result: iv.IVFit, pieces: iv.Pieces, sums: ScoreSums | None, j: int, *,
             ranges: Sequence[RangeSpec] = (), dset: DirectSet | None = None,
             threshold: float = 0.0, points: int = DEFAULT_POINTS,

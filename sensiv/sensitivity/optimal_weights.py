@@ -51,9 +51,10 @@ import numpy as np
 
 from sensiv.core.errors import SolverError
 from sensiv.core.results import json_number
-from sensiv.estimation import iv
+from sensiv.estimation import iv, linalg
 from sensiv.estimation.covariance import small_factor
 from sensiv.estimation.moments import ScoreBlock, ScoreSums
+from sensiv.estimation.score_basis import in_basis
 from sensiv.partial_id.solver import solve
 from sensiv.sensitivity.bias_aware import BiasAware, Centre, bias_aware, set_centre
 from sensiv.sensitivity.direct_sets import DirectSet
@@ -104,7 +105,24 @@ def moment_block(pieces: iv.Pieces, se: str) -> list[ScoreBlock]:
     """The pass-2 request (scores ``Z̃ ⊗ [û, M]``), empty when not :func:`wanted` or classic."""
     if se == "classic" or not wanted(pieces, se):
         return []
-    return [ScoreBlock(BLOCK, pieces.z_partialled, residual_maps(pieces))]
+    maps = residual_maps(pieces)
+    return [in_basis(ScoreBlock(BLOCK, pieces.z_partialled, maps), moment_span(pieces, maps),
+                     pieces.gram)]
+
+
+def moment_span(pieces: iv.Pieces, maps: np.ndarray) -> np.ndarray:
+    """``[Z̃, X̃, û]``, whose span over the rows holds both maps of :func:`moment_block`.
+
+    The controls ``W`` are among the instruments and the regressors, so ``W'u(γ) = 0`` for
+    every 2SLS residual ``u(γ) = û − Mγ`` (the normal equations), hence
+    ``u(γ) = ỹ − X̃β(γ) − Z̃γ`` row by row (``~``: controls partialled out) and ``ỹ = û + X̃β̂``.
+    The pass-2 kernels then sum ``(k_z + k_x + 1)(k_z + k_x + 2)/2`` distinct products per row
+    instead of ``k_z (1 + k_z)`` scores (:mod:`sensiv.estimation.symmetric_rows`)."""
+    d, gram = pieces.design, pieces.gram
+    x = d.x
+    if d.w.shape[1]:
+        x = x - d.w @ linalg.scaled_cholesky(d.w.T @ gram @ d.w).solve(d.w.T @ gram @ d.x)
+    return np.column_stack([pieces.z_partialled, x, maps[:, :1]])
 
 
 @dataclass(frozen=True, slots=True)

@@ -21,6 +21,8 @@ direct-effect set Γ — without enumerating the ``2^k`` corners of a box.
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -39,6 +41,7 @@ BISECTION_TOL = 1e-12       # relative tolerance of a bisected breakdown scale
 # every other curve point and bisection step (their ends are then outer bounds, flagged in
 # ``curve_exact``), so a hard design costs seconds per point, not minutes.
 SIDE_NODES = 100
+SE_CACHE = 512      # largest standard errors remembered (one float and its key each)
 CORNERS = "corners"
 BRANCH_AND_BOUND = "branch_and_bound"
 
@@ -191,6 +194,36 @@ def largest_se_set(cores: Sequence[Core], dset: DirectSet, scale: float = 1.0, *
         return max(math.sqrt(float(np.max(core.variance(points)))) for core in cores)
     lows, highs = box_limits(dset)
     zero = np.zeros(len(lows))
-    return max(maximise(Objective.of(zero, 1.0, core.quad), scale * lows, scale * highs,
-                        gap=gap, corner_limit=corner_limit, max_nodes=max_nodes).value
-               for core in cores)
+    memo = _SE_MEMO.get()
+    found = []
+    for core in cores:
+        key = (core.quad.tobytes(), (scale * lows).tobytes(), (scale * highs).tobytes(), gap,
+               corner_limit, max_nodes)
+        value = memo.get(key) if memo is not None else None
+        if value is None:
+            value = maximise(Objective.of(zero, 1.0, core.quad), scale * lows, scale * highs,
+                             gap=gap, corner_limit=corner_limit, max_nodes=max_nodes).value
+            if memo is not None:
+                memo[key] = value
+        found.append(value)
+    return max(found)
+
+
+_SE_MEMO: contextvars.ContextVar[dict | None] = contextvars.ContextVar("largest_se_memo",
+                                                                       default=None)
+
+
+@contextlib.contextmanager
+def remembering_se():
+    """Within it (also as a decorator), :func:`largest_se_set` remembers each box maximum by
+    the exact bytes of its inputs: one sweep asks for the same scaled box several times (the
+    bias-aware curve, the scan of its breakdown scale over the same grid, the interval at
+    scale 1), and a deterministic maximisation of the same numbers gives the same number.
+    The memory is dropped on leaving the outermost block (timings of repeated sweeps stay
+    honest)."""
+    token = _SE_MEMO.set({}) if _SE_MEMO.get() is None else None
+    try:
+        yield
+    finally:
+        if token is not None:
+            _SE_MEMO.reset(token)
