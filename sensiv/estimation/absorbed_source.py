@@ -47,13 +47,35 @@ class AbsorbedSource:
 
     def chunks(self) -> Iterator[Chunk]:
         if self._cache is not None:
-            yield from self._cache
+            for chunk in self._cache:
+                yield from _pieces(chunk)
             return
         yield from demean_chunks(self._source.chunks(), self._stream,
                                  self.absorption.effects[0], self.description)
 
 
 # ----------------------------------------------------------------------------- in memory
+PIECE_ROWS = 65_536
+"""Rows per chunk handed to the passes from the demeaned rows held in memory (views, no copy):
+the kernels run several times faster on blocks that stay in cache than on one block of every
+row (measured: pass 2 at 1e6 rows, ``tests/benchmarks/bench_absorb.py``)."""
+
+
+def _pieces(chunk: Chunk) -> Iterator[Chunk]:
+    """``chunk`` as views of at most :data:`PIECE_ROWS` rows (the counts on the first)."""
+    n = chunk.values.shape[0]
+    if n <= PIECE_ROWS:
+        yield chunk
+        return
+    for start in range(0, n, PIECE_ROWS):
+        rows = slice(start, start + PIECE_ROWS)
+        first = start == 0
+        yield Chunk(chunk.values[rows],
+                    None if chunk.weights is None else chunk.weights[rows],
+                    None if chunk.clusters is None else chunk.clusters[rows],
+                    chunk.n_dropped if first else 0, chunk.n_filtered if first else 0, None)
+
+
 def _gather(chunks: list[Chunk], n_effects: int, description: str):
     """Rows of every chunk stacked: values (float64, column-major), weights, clusters, labels."""
     chunks = [c for c in chunks if c.values.shape[0]]
@@ -140,66 +162,83 @@ def _grow(array: np.ndarray | None, rows: int, fill: float, width: int | None = 
     return block if array is None else np.concatenate([array, block])
 
 
+def _with_new_levels(reference: np.ndarray | None, codes: np.ndarray, old: int, n: int,
+                     block: np.ndarray) -> np.ndarray:
+    """``reference`` (levels × columns, column-major) grown by one row of ``block`` per level
+    first met in this chunk (codes ``old`` … ``n − 1``; which of the level's rows is taken does
+    not matter: a column is constant within a level exactly when every row equals any one)."""
+    if reference is not None and n == old:
+        return reference
+    fresh = np.empty((n - old, block.shape[1]), dtype=block.dtype)
+    new_rows = codes >= old
+    fresh[codes[new_rows] - old] = block[new_rows]
+    grown = fresh if reference is None else np.concatenate([reference, fresh])
+    return np.asfortranarray(grown)
+
+
+def _varies(reference: np.ndarray, codes: np.ndarray, block: np.ndarray) -> np.ndarray:
+    """Per column of ``block``: whether some row differs from its level's reference row."""
+    return np.array([bool(np.any(block[:, j] != reference[:, j][codes]))
+                     for j in range(block.shape[1])], dtype=bool)
+
+
 def _first_pass(source) -> tuple:
-    """Per-level counts, weight sums, weighted sums, minima and maxima of every column, and
-    the smallest and largest cluster code met in each level (equal when nested)."""
+    """Per-level counts, weight sums and weighted sums of every (shifted) column; per column
+    whether it varies within some level, and per cluster variable whether every level lies in
+    one of its clusters (both from one reference row per level, no per-row minima/maxima)."""
     import pandas as pd
 
     levels, cluster_codes_of = LabelCodes(), None
-    counts = totals = sums = lows = highs = None
-    c_low = c_high = None
+    counts = totals = sums = reference = c_reference = varies = c_varies = None
     shift = None
-    n_dropped = n_filtered = 0
     for chunk in source.chunks():
         if chunk.values.shape[0] == 0:
             continue
         if shift is None:
             shift = chunk.values[0].copy()
+        old = 0 if counts is None else counts.size
         codes, n = levels.encode(chunk.groups[0])
         p = chunk.values.shape[1]
         if counts is None or counts.size < n:
-            grow = n - (0 if counts is None else counts.size)
-            counts, totals = _grow(counts, grow, 0), _grow(totals, grow, 0.0)
-            sums, lows = _grow(sums, grow, 0.0, p), _grow(lows, grow, np.inf, p)
-            highs = _grow(highs, grow, -np.inf, p)
-            k = 1 if chunk.clusters is None else len(cluster_label_columns(chunk.clusters))
-            c_low, c_high = _grow(c_low, grow, np.inf, k), _grow(c_high, grow, -np.inf, k)
+            counts, totals = _grow(counts, n - old, 0), _grow(totals, n - old, 0.0)
+            sums = _grow(sums, n - old, 0.0, p)
+        reference = _with_new_levels(reference, codes, old, n, chunk.values)
+        step = _varies(reference, codes, chunk.values)
+        varies = step if varies is None else varies | step
         if chunk.clusters is not None:
             columns = cluster_label_columns(chunk.clusters)
             cluster_codes_of = cluster_codes_of or [LabelCodes() for _ in columns]
-            for j, column in enumerate(columns):
-                cluster_codes, _ = cluster_codes_of[j].encode(column)
-                np.minimum.at(c_low[:, j], codes, cluster_codes)
-                np.maximum.at(c_high[:, j], codes, cluster_codes)
+            block = np.column_stack([cluster_codes_of[j].encode(column)[0]
+                                     for j, column in enumerate(columns)])
+            c_reference = _with_new_levels(c_reference, codes, old, n, block)
+            step = _varies(c_reference, codes, block)
+            c_varies = step if c_varies is None else c_varies | step
         counts += np.bincount(codes, minlength=n)
         totals += fe.group_weights(codes, n, chunk.weights)
         for j in range(p):
             column = chunk.values[:, j] - shift[j]
             w_col = column if chunk.weights is None else column * chunk.weights
             sums[:, j] += np.bincount(codes, weights=w_col, minlength=n)
-            np.minimum.at(lows[:, j], codes, column)
-            np.maximum.at(highs[:, j], codes, column)
-    # levels × cluster variables: whether the level meets a single cluster of that variable.
-    nested = None if c_low is None or not cluster_codes_of else c_low == c_high
-    return pd.Index(levels.labels()), counts, totals, sums, lows, highs, shift, nested
+    # per cluster variable: whether no level meets two of its clusters.
+    nested = None if c_varies is None else ~c_varies
+    return pd.Index(levels.labels()), counts, totals, sums, varies, shift, nested
 
 
 def _streamed(source) -> AbsorbedSource:
     spec, layout = source.spec, source.layout
-    labels, counts, totals, sums, lows, highs, shift, nested_levels = _first_pass(source)
+    labels, counts, totals, sums, varies, shift, nested_ways = _first_pass(source)
     kept = counts > 1
     n_singletons = int(counts[~kept].sum())
     if not kept.any():
         raise InputError(f"every row of {source.description} is alone in its level of the "
                          f"fixed effect '{spec.absorb[0]}'; nothing is left to fit")
-    flat = np.all(highs[kept] - lows[kept] == 0.0, axis=0)
-    absorbed = [j for j in range(flat.size) if flat[j]]
+    # A singleton level never varies, so 'varies within some level' is over the kept ones.
+    absorbed = [j for j in range(varies.size) if not varies[j]]
     keep_cols, new_layout, dropped, notes = apply_drops(absorbed, layout, spec.absorb)
     offset = np.asfortranarray((sums / np.where(totals > 0, totals, 1.0)[:, None])[:, keep_cols])
     levels = int(kept.sum())
     # Nested when every kept level lies within one cluster of the same cluster variable.
-    nested = (nested_levels is not None
-              and bool(np.any(np.all(nested_levels[kept], axis=0))),)
+    nested = (nested_ways is not None and bool(np.any(nested_ways)),)
     counted = (levels - int(layout.constant),)  # the constant, if any, takes one level
     absorption = fe.Absorption(spec.absorb, (levels,), counted, nested, n_singletons, 1,
                                0.0, fe.DEFAULT_TOLERANCE, dropped, streamed=True)
