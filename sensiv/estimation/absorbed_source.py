@@ -25,9 +25,10 @@ import numpy as np
 from sensiv.core.errors import AbsorbConvergenceWarning, InputError
 from sensiv.data.source import Chunk, Layout
 from sensiv.estimation import absorb as fe
-from sensiv.estimation.absorb_view import (GroupAbsorbed, Stream, apply_drops, demean_chunks,
-                                           group_absorbed, model_roles, refusal)
-from sensiv.estimation.moments import LabelCodes, cluster_label_columns
+from sensiv.estimation.absorb_view import (GroupAbsorbed, LevelCodes, Stream, apply_drops,
+                                           demean_chunks, group_absorbed, model_roles, refusal)
+from sensiv.estimation.moments import (LabelCodes, Moments, chunk_moments, cluster_label_columns,
+                                      empty_moments)
 from sensiv.estimation.passes import engine_of, group_stats_of
 
 
@@ -44,6 +45,8 @@ class AbsorbedSource:
     _cache: tuple[Chunk, ...] | None = field(default=None, repr=False)
     _source: object = field(default=None, repr=False)
     _stream: Stream | None = field(default=None, repr=False)
+    moments: Moments | None = field(default=None, repr=False)
+    """Pass 1's moments when pass 0 already gave them (streamed one-way absorption)."""
 
     def chunks(self) -> Iterator[Chunk]:
         if self._cache is not None:
@@ -156,6 +159,11 @@ def _nested(codes, levels, clusters) -> tuple[bool, ...]:
 
 
 # ----------------------------------------------------------------------------- streamed
+WITHIN_SHARE = 1e-3
+"""Smallest share of a column's spread left within the levels for which pass 1's moments are
+taken from pass 0's sums (see :func:`_within_moments`)."""
+
+
 def _grow(array: np.ndarray | None, rows: int, fill: float, width: int | None = None):
     shape = (rows,) if width is None else (rows, width)
     block = np.full(shape, fill, dtype=np.int64 if isinstance(fill, int) else np.float64)
@@ -176,22 +184,29 @@ def _with_new_levels(reference: np.ndarray | None, codes: np.ndarray, old: int, 
     return np.asfortranarray(grown)
 
 
-def _varies(reference: np.ndarray, codes: np.ndarray, block: np.ndarray) -> np.ndarray:
-    """Per column of ``block``: whether some row differs from its level's reference row."""
-    return np.array([bool(np.any(block[:, j] != reference[:, j][codes]))
-                     for j in range(block.shape[1])], dtype=bool)
+def _varies(reference: np.ndarray, codes: np.ndarray, block: np.ndarray,
+            known: np.ndarray | None) -> np.ndarray:
+    """Per column of ``block``: whether some row differs from its level's reference row (or
+    an earlier chunk's did: ``known``; those columns are not looked at again)."""
+    seen = np.zeros(block.shape[1], dtype=bool) if known is None else known.copy()
+    for j in np.flatnonzero(~seen):
+        seen[j] = bool(np.any(block[:, j] != reference[:, j][codes]))
+    return seen
 
 
 def _first_pass(source) -> tuple:
     """Per-level counts, weight sums and weighted sums of every (shifted) column; per column
     whether it varies within some level, and per cluster variable whether every level lies in
     one of its clusters (both from one reference row per level, no per-row minima/maxima)."""
-    import pandas as pd
-
-    levels, cluster_codes_of = LabelCodes(), None
+    levels, cluster_codes_of = LevelCodes(), None
     counts = totals = sums = reference = c_reference = varies = c_varies = None
-    shift = None
+    shift = scratch = None
+    raw = empty_moments(source.layout.columns)
     for chunk in source.chunks():
+        if scratch is None or scratch.shape != chunk.values.shape:
+            scratch = np.empty(chunk.values.shape, order="F")
+        raw = raw + chunk_moments(raw.columns, chunk.values, chunk.weights, chunk.n_dropped,
+                                  chunk.n_filtered, scratch)
         if chunk.values.shape[0] == 0:
             continue
         if shift is None:
@@ -203,16 +218,14 @@ def _first_pass(source) -> tuple:
             counts, totals = _grow(counts, n - old, 0), _grow(totals, n - old, 0.0)
             sums = _grow(sums, n - old, 0.0, p)
         reference = _with_new_levels(reference, codes, old, n, chunk.values)
-        step = _varies(reference, codes, chunk.values)
-        varies = step if varies is None else varies | step
+        varies = _varies(reference, codes, chunk.values, varies)
         if chunk.clusters is not None:
             columns = cluster_label_columns(chunk.clusters)
             cluster_codes_of = cluster_codes_of or [LabelCodes() for _ in columns]
             block = np.column_stack([cluster_codes_of[j].encode(column)[0]
                                      for j, column in enumerate(columns)])
             c_reference = _with_new_levels(c_reference, codes, old, n, block)
-            step = _varies(c_reference, codes, block)
-            c_varies = step if c_varies is None else c_varies | step
+            c_varies = _varies(c_reference, codes, block, c_varies)
         counts += np.bincount(codes, minlength=n)
         totals += fe.group_weights(codes, n, chunk.weights)
         for j in range(p):
@@ -221,12 +234,30 @@ def _first_pass(source) -> tuple:
             sums[:, j] += np.bincount(codes, weights=w_col, minlength=n)
     # per cluster variable: whether no level meets two of its clusters.
     nested = None if c_varies is None else ~c_varies
-    return pd.Index(levels.labels()), counts, totals, sums, varies, shift, nested
+    return levels.labels(), counts, totals, sums, varies, shift, nested, raw
+
+
+def _within_moments(raw: Moments, totals: np.ndarray, sums: np.ndarray, shift: np.ndarray,
+                    kept: np.ndarray, counts: np.ndarray, keep_cols: np.ndarray,
+                    columns: tuple[str, ...]) -> Moments | None:
+    """Pass 1's moments of the demeaned columns from pass 0's, without another pass:
+    ``C_within = C − Σ_g t_g (m_g − μ)(m_g − μ)'`` over every level (a singleton row deviates
+    by nothing from its own level's mean), with mean 0.  ``None`` when some column keeps less
+    than :data:`WITHIN_SHARE` of its spread within the levels: the subtraction would then lose
+    more than three digits, and the rows are demeaned first instead (pass 1 proper)."""
+    centre = raw.mean - shift
+    deviations = sums / np.where(totals > 0, totals, 1.0)[:, None] - centre
+    between = (deviations * totals[:, None]).T @ deviations
+    within = (raw.comoment - between)[np.ix_(keep_cols, keep_cols)]
+    if np.any(np.diag(within) < WITHIN_SHARE * np.diag(raw.comoment)[keep_cols]):
+        return None
+    return Moments(columns, int(counts[kept].sum()), raw.n_dropped, float(totals[kept].sum()),
+                   np.zeros(keep_cols.size), 0.5 * (within + within.T), raw.n_filtered)
 
 
 def _streamed(source) -> AbsorbedSource:
     spec, layout = source.spec, source.layout
-    labels, counts, totals, sums, varies, shift, nested_ways = _first_pass(source)
+    labels, counts, totals, sums, varies, shift, nested_ways, raw = _first_pass(source)
     kept = counts > 1
     n_singletons = int(counts[~kept].sum())
     if not kept.any():
@@ -243,8 +274,11 @@ def _streamed(source) -> AbsorbedSource:
     absorption = fe.Absorption(spec.absorb, (levels,), counted, nested, n_singletons, 1,
                                0.0, fe.DEFAULT_TOLERANCE, dropped, streamed=True)
     stream = Stream(labels, counts, offset, shift[keep_cols], keep_cols)
+    moments = _within_moments(raw, totals, sums, shift, kept, counts, keep_cols,
+                              tuple(new_layout.columns))
     return AbsorbedSource(spec, new_layout, source.description, absorption,
-                          tuple(getattr(source, "notes", ())) + notes, None, source, stream)
+                          tuple(getattr(source, "notes", ())) + notes, None, source, stream,
+                          moments)
 
 
 def absorb_source(source, *, tolerance: float | None = None,

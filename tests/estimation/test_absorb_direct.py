@@ -187,3 +187,38 @@ def test_streamed_nestedness_matches_memory(tmp_path):
     streamed, memory = streamed_and_memory(tmp_path, frame, nested, small=True)
     assert streamed.absorbed_parameters == memory.absorbed_parameters == 59
     assert streamed.tsls.std_error("x") == pytest.approx(memory.tsls.std_error("x"), rel=1e-12)
+
+
+# ----------------------------------------------------------------------------- pass 1 from pass 0
+def test_streamed_moments_from_pass_0_equal_the_demeaned_rows(tmp_path):
+    # The one-pass within formula against the moments of the demeaned rows themselves (the
+    # two-pass formula, moments.accumulate): plain formula, no source.
+    from sensiv.estimation.moments import accumulate
+
+    frame = frame_of(n=1_500)
+    frame["w1"] += 1e4  # a column far from zero
+    frame["wt"] = np.random.default_rng(2).uniform(0.5, 2.0, len(frame))
+    frame.loc[[0, 1], "f1"] = [1000, 1001]  # two singleton levels
+    path = tmp_path / "d.parquet"
+    frame.to_parquet(path)
+    for weight in (None, "wt"):
+        spec = Spec("y", ["x"], ["z"], controls=["w1"], absorb=["f1"], weight=weight)
+        source = absorb_source(from_file(path, spec, chunk_rows=97))
+        assert source.moments is not None and source.absorption.n_singletons == 2
+        rows = accumulate(source.chunks(), source.layout.columns)
+        assert source.moments.n == rows.n == len(frame) - 2
+        assert source.moments.relative_difference(rows) < 1e-12
+
+
+def test_a_fixed_effect_explaining_nearly_everything_demeans_the_rows_first(tmp_path):
+    frame = frame_of(n=1_200)
+    level_effect = np.random.default_rng(5).normal(size=60)[frame["f1"]] * 1e3
+    frame["y"] += level_effect
+    spec = Spec("y", ["x"], ["z"], controls=["w1"], absorb=["f1"])
+    path = tmp_path / "d.parquet"
+    frame.to_parquet(path)
+    source = absorb_source(from_file(path, spec, chunk_rows=101))
+    assert source.moments is None  # within share of y below WITHIN_SHARE: pass 1 proper
+    streamed, memory = streamed_and_memory(tmp_path, frame, spec)
+    assert streamed.tsls.value("x") == pytest.approx(memory.tsls.value("x"), rel=1e-12)
+    assert streamed.tsls.std_error("x") == pytest.approx(memory.tsls.std_error("x"), rel=1e-12)
