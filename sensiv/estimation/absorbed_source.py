@@ -80,10 +80,16 @@ def _pieces(chunk: Chunk) -> Iterator[Chunk]:
 
 
 def _gather(chunks: list[Chunk], n_effects: int, description: str):
-    """Rows of every chunk stacked: values (float64, column-major), weights, clusters, labels."""
-    chunks = [c for c in chunks if c.values.shape[0]]
+    """Rows of every chunk stacked: values (float64, column-major), weights, clusters, labels.
+
+    Each chunk's values are released as soon as they are copied (``chunks`` is emptied), so
+    the peak is one copy of the used columns and one chunk, not two copies."""
+    chunks[:] = [c for c in chunks if c.values.shape[0]]
+    if not chunks:
+        raise InputError(f"{description} has no rows left to absorb fixed effects from")
     try:
-        values = np.asfortranarray(np.vstack([c.values for c in chunks]))
+        values = np.empty((sum(c.values.shape[0] for c in chunks), chunks[0].values.shape[1]),
+                          order="F")
     except MemoryError as exc:
         raise InputError(f"{description} is too large to hold its used columns in memory for "
                          "several absorbed fixed effects; absorb one fixed effect, or filter "
@@ -92,7 +98,21 @@ def _gather(chunks: list[Chunk], n_effects: int, description: str):
     clusters = (np.concatenate([c.clusters for c in chunks])
                 if chunks[0].clusters is not None else None)
     groups = [np.concatenate([c.groups[j] for c in chunks]) for j in range(n_effects)]
+    start = 0
+    for i, chunk in enumerate(chunks):
+        rows = chunk.values.shape[0]
+        values[start:start + rows] = chunk.values
+        start += rows
+        chunks[i] = chunk = None
+    chunks.clear()
     return values, weights, clusters, groups
+
+
+def _core_columns(source, keep: np.ndarray, n_core: int) -> np.ndarray:
+    """The outcome, treatment and instrument columns of the rows kept, read again (only to
+    name the fixed effect that absorbs one of them, on the way to an error)."""
+    values = _gather(list(source.chunks()), len(source.spec.absorb), source.description)[0]
+    return values[keep][:, :n_core]
 
 
 def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
@@ -115,10 +135,9 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
                          f"effect ({', '.join(spec.absorb)}); nothing is left to fit")
     codes, levels = zip(*(fe.recode(c) for c in codes))
     total = [fe.spread(values[:, j], weights) for j in range(values.shape[1])]
-    # Only the outcome, treatments and instruments are kept undemeaned (to name the fixed
-    # effect that absorbs one of them); controls are dropped whichever absorbs them.
+    # An absorbed outcome, treatment or instrument is an error naming the fixed effect that
+    # absorbs it (its raw column read again then); controls are dropped whichever absorbs them.
     n_core = 1 + len(layout.treatments) + len(layout.instruments)
-    original = values[:, :n_core].copy() if len(codes) > 1 else None
     values, steps, achieved = fe.demean_columns(values, codes, levels, weights, tolerance,
                                                 max_iterations)
     if len(codes) > 1 and achieved > tolerance:
@@ -129,11 +148,11 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     absorbed = [j for j in range(values.shape[1])
                 if not fe.spread(values[:, j], weights) > fe.ABSORBED_SHARE * total[j]]
     for j in absorbed:
-        if model_roles(layout)[j][0] != "control" and original is not None:
+        if model_roles(layout)[j][0] != "control" and len(codes) > 1:
+            original = _core_columns(source, keep, n_core)
             alone = fe.absorbed_by(original[:, j], codes, levels, weights)
             raise refusal(model_roles(layout)[j][0], model_roles(layout)[j][1],
                           [spec.absorb[k] for k in alone] or list(spec.absorb))
-    del original
     keep_cols, new_layout, dropped, notes = apply_drops(absorbed, layout, spec.absorb)
     if absorbed:
         values = np.asfortranarray(values[:, keep_cols])
