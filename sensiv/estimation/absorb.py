@@ -31,6 +31,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.data.spec import DEFAULT_ABSORB_TOLERANCE
+from sensiv.estimation import absorb_direct
+from sensiv.estimation.absorb_direct import DirectPlan, direct_plan, direct_residual
 
 DEFAULT_TOLERANCE = DEFAULT_ABSORB_TOLERANCE
 """Relative change of a demeaned column below which alternating projections stop (the
@@ -38,6 +40,10 @@ default of ``Spec.absorb_tolerance``)."""
 
 MAX_ITERATIONS = 10_000
 """Accelerated steps (two sweeps each) after which alternating projections give up and warn."""
+
+PAIR_TABLE = 20_000_000
+"""Largest product of two fixed effects' levels whose pairs are tabulated densely (8 bytes
+each) before counting connected components."""
 
 ABSORBED_SHARE = 1e-7
 """A column whose within-group spread is below this share of its total spread is absorbed."""
@@ -165,19 +171,36 @@ def _sweep(column, groups, weights):
 
 def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndarray]],
                   weights: np.ndarray | None, tolerance: float,
-                  max_iterations: int) -> tuple[np.ndarray, int, float]:
+                  max_iterations: int, plan: DirectPlan | None = None
+                  ) -> tuple[np.ndarray, int, float]:
     """One column residualised on several fixed effects by accelerated alternating projections.
 
     ``groups`` pairs each fixed effect's codes with its level totals.  Returns the demeaned
     column, the steps taken and the achieved relative change (change of the column in the last
-    step over the norm of the column demeaned by the first fixed effect).
+    step over the norm of the column demeaned by the first fixed effect, or by the largest one
+    with a ``plan``).  With a ``plan`` (:mod:`sensiv.estimation.absorb_direct`) the projections
+    start from the direct solution: its first step is one plain sweep, and the solution stands
+    when that sweep changes it by no more than the tolerance (else the accelerated steps go on
+    from there, counted from 2).
     """
-    x = _sweep(column - column[0], groups, weights)
-    scale = np.sqrt(_dot(x, x))
-    if scale == 0.0:
-        return x, 1, 0.0
-    change = np.inf
-    for step in range(1, max_iterations + 1):
+    shifted = column - column[0]
+    if plan is not None:
+        start, scale = direct_residual(plan, shifted, weights)
+        if scale == 0.0:
+            return start * 0.0, 1, 0.0
+        x = _sweep(start, groups, weights)
+        difference = x - start
+        change = np.sqrt(_dot(difference, difference)) / scale
+        if change <= tolerance or max_iterations <= 1:
+            return x, 1, change
+        first, max_iterations = 2, max_iterations - 1
+    else:
+        x = _sweep(shifted, groups, weights)
+        scale = np.sqrt(_dot(x, x))
+        if scale == 0.0:
+            return x, 1, 0.0
+        first, change = 1, np.inf
+    for step in range(first, first + max_iterations):
         fx = _sweep(x, groups, weights)
         ffx = _sweep(fx, groups, weights)
         d1 = ffx - fx
@@ -190,18 +213,25 @@ def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndar
         x = new
         if change <= tolerance:
             return x, step, change
-    return x, max_iterations, change
+    return x, first + max_iterations - 1, change
 
 
 def demean_columns(values: np.ndarray, codes: Sequence[np.ndarray], levels: Sequence[int],
                    weights: np.ndarray | None, tolerance: float = DEFAULT_TOLERANCE,
-                   max_iterations: int = MAX_ITERATIONS) -> tuple[np.ndarray, int, float]:
+                   max_iterations: int = MAX_ITERATIONS,
+                   direct_levels: int | None = None) -> tuple[np.ndarray, int, float]:
     """Every column of ``values`` (rows × columns) residualised on the fixed effects, in place.
 
     Returns the array, the largest number of steps over the columns and the largest achieved
-    relative change (1 and 0.0 for one fixed effect, which is exact).
+    relative change (1 and 0.0 for one fixed effect, which is exact).  Several fixed effects
+    whose all but the largest have at most ``direct_levels`` levels together (default
+    :data:`sensiv.estimation.absorb_direct.DIRECT_LEVELS`, read at the call) start from the
+    direct solve of that module (``direct_levels=0``: plain alternating projections).
     """
+    if direct_levels is None:
+        direct_levels = absorb_direct.DIRECT_LEVELS
     groups = [(c, group_weights(c, n, weights)) for c, n in zip(codes, levels)]
+    plan = direct_plan(codes, levels, weights, direct_levels) if len(groups) > 1 else None
     steps, achieved = 1, 0.0
     for j in range(values.shape[1]):
         column = values[:, j]
@@ -209,7 +239,7 @@ def demean_columns(values: np.ndarray, codes: Sequence[np.ndarray], levels: Sequ
             values[:, j] = demean_once(column - column[0], *groups[0], weights)
             continue
         values[:, j], used, reached = demean_column(column, groups, weights, tolerance,
-                                                    max_iterations)
+                                                    max_iterations, plan)
         steps, achieved = max(steps, used), max(achieved, reached)
     return values, steps, achieved
 
@@ -240,6 +270,9 @@ def components(codes_a: np.ndarray, n_a: int, codes_b: np.ndarray, n_b: int) -> 
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import connected_components
 
+    if n_a * n_b <= PAIR_TABLE:  # the distinct pairs of levels, not one edge per row
+        codes_a, codes_b = np.nonzero(np.bincount(codes_a * n_b + codes_b,
+                                                  minlength=n_a * n_b).reshape(n_a, n_b))
     graph = coo_matrix((np.ones(codes_a.size), (codes_a, n_a + codes_b)),
                        shape=(n_a + n_b, n_a + n_b))
     count, _ = connected_components(graph, directed=False)

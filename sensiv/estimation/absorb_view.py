@@ -113,6 +113,37 @@ def demean_chunks(chunks: Iterable[Chunk], stream: Stream, effect: str, descript
                     else chunk.clusters[keep], chunk.n_dropped, chunk.n_filtered, None)
 
 
+class LevelCodes:
+    """Codes of a fixed effect's levels met in successive chunks, consecutive in the order of
+    first appearance (as :class:`sensiv.estimation.moments.LabelCodes`), found by one hash
+    look-up of each chunk's distinct labels among the known ones: no Python loop over the
+    levels, which a fixed effect of 100,000 levels met in every chunk would cost."""
+
+    def __init__(self) -> None:
+        self._known = None  # pandas.Index of the labels, in the order of their codes
+
+    def encode(self, labels: np.ndarray) -> tuple[np.ndarray, int]:
+        import pandas as pd
+
+        local, uniques = pd.factorize(labels, sort=False)
+        uniques = pd.Index(uniques)
+        if self._known is None:
+            self._known = uniques
+            return local.astype(np.int64, copy=False), len(uniques)
+        mapping = np.asarray(self._known.get_indexer(uniques), dtype=np.int64)
+        new = mapping < 0
+        if new.any():
+            mapping[new] = len(self._known) + np.arange(int(new.sum()))
+            self._known = self._known.append(uniques[new])
+        return mapping[local], len(self._known)
+
+    def labels(self):
+        """The labels met so far (a pandas Index), in the order of their codes."""
+        import pandas as pd
+
+        return pd.Index([]) if self._known is None else self._known
+
+
 # ----------------------------------------------------------------------------- checks
 def model_roles(layout: Layout) -> list[tuple[str, str]]:
     """``(role, column)`` of every model column of ``layout``, in the order of its columns."""

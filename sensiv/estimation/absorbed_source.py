@@ -25,9 +25,10 @@ import numpy as np
 from sensiv.core.errors import AbsorbConvergenceWarning, InputError
 from sensiv.data.source import Chunk, Layout
 from sensiv.estimation import absorb as fe
-from sensiv.estimation.absorb_view import (GroupAbsorbed, Stream, apply_drops, demean_chunks,
-                                           group_absorbed, model_roles, refusal)
-from sensiv.estimation.moments import LabelCodes, cluster_label_columns
+from sensiv.estimation.absorb_view import (GroupAbsorbed, LevelCodes, Stream, apply_drops,
+                                           demean_chunks, group_absorbed, model_roles, refusal)
+from sensiv.estimation.moments import (LabelCodes, Moments, chunk_moments, cluster_label_columns,
+                                      empty_moments)
 from sensiv.estimation.passes import engine_of, group_stats_of
 
 
@@ -44,21 +45,51 @@ class AbsorbedSource:
     _cache: tuple[Chunk, ...] | None = field(default=None, repr=False)
     _source: object = field(default=None, repr=False)
     _stream: Stream | None = field(default=None, repr=False)
+    moments: Moments | None = field(default=None, repr=False)
+    """Pass 1's moments when pass 0 already gave them (streamed one-way absorption)."""
 
     def chunks(self) -> Iterator[Chunk]:
         if self._cache is not None:
-            yield from self._cache
+            for chunk in self._cache:
+                yield from _pieces(chunk)
             return
         yield from demean_chunks(self._source.chunks(), self._stream,
                                  self.absorption.effects[0], self.description)
 
 
 # ----------------------------------------------------------------------------- in memory
+PIECE_ROWS = 65_536
+"""Rows per chunk handed to the passes from the demeaned rows held in memory (views, no copy):
+the kernels run several times faster on blocks that stay in cache than on one block of every
+row (measured: pass 2 at 1e6 rows, ``tests/benchmarks/bench_absorb.py``)."""
+
+
+def _pieces(chunk: Chunk) -> Iterator[Chunk]:
+    """``chunk`` as views of at most :data:`PIECE_ROWS` rows (the counts on the first)."""
+    n = chunk.values.shape[0]
+    if n <= PIECE_ROWS:
+        yield chunk
+        return
+    for start in range(0, n, PIECE_ROWS):
+        rows = slice(start, start + PIECE_ROWS)
+        first = start == 0
+        yield Chunk(chunk.values[rows],
+                    None if chunk.weights is None else chunk.weights[rows],
+                    None if chunk.clusters is None else chunk.clusters[rows],
+                    chunk.n_dropped if first else 0, chunk.n_filtered if first else 0, None)
+
+
 def _gather(chunks: list[Chunk], n_effects: int, description: str):
-    """Rows of every chunk stacked: values (float64, column-major), weights, clusters, labels."""
-    chunks = [c for c in chunks if c.values.shape[0]]
+    """Rows of every chunk stacked: values (float64, column-major), weights, clusters, labels.
+
+    Each chunk's values are released as soon as they are copied (``chunks`` is emptied), so
+    the peak is one copy of the used columns and one chunk, not two copies."""
+    chunks[:] = [c for c in chunks if c.values.shape[0]]
+    if not chunks:
+        raise InputError(f"{description} has no rows left to absorb fixed effects from")
     try:
-        values = np.asfortranarray(np.vstack([c.values for c in chunks]))
+        values = np.empty((sum(c.values.shape[0] for c in chunks), chunks[0].values.shape[1]),
+                          order="F")
     except MemoryError as exc:
         raise InputError(f"{description} is too large to hold its used columns in memory for "
                          "several absorbed fixed effects; absorb one fixed effect, or filter "
@@ -67,7 +98,21 @@ def _gather(chunks: list[Chunk], n_effects: int, description: str):
     clusters = (np.concatenate([c.clusters for c in chunks])
                 if chunks[0].clusters is not None else None)
     groups = [np.concatenate([c.groups[j] for c in chunks]) for j in range(n_effects)]
+    start = 0
+    for i, chunk in enumerate(chunks):
+        rows = chunk.values.shape[0]
+        values[start:start + rows] = chunk.values
+        start += rows
+        chunks[i] = chunk = None
+    chunks.clear()
     return values, weights, clusters, groups
+
+
+def _core_columns(source, keep: np.ndarray, n_core: int) -> np.ndarray:
+    """The outcome, treatment and instrument columns of the rows kept, read again (only to
+    name the fixed effect that absorbs one of them, on the way to an error)."""
+    values = _gather(list(source.chunks()), len(source.spec.absorb), source.description)[0]
+    return values[keep][:, :n_core]
 
 
 def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
@@ -90,10 +135,9 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
                          f"effect ({', '.join(spec.absorb)}); nothing is left to fit")
     codes, levels = zip(*(fe.recode(c) for c in codes))
     total = [fe.spread(values[:, j], weights) for j in range(values.shape[1])]
-    # Only the outcome, treatments and instruments are kept undemeaned (to name the fixed
-    # effect that absorbs one of them); controls are dropped whichever absorbs them.
+    # An absorbed outcome, treatment or instrument is an error naming the fixed effect that
+    # absorbs it (its raw column read again then); controls are dropped whichever absorbs them.
     n_core = 1 + len(layout.treatments) + len(layout.instruments)
-    original = values[:, :n_core].copy() if len(codes) > 1 else None
     values, steps, achieved = fe.demean_columns(values, codes, levels, weights, tolerance,
                                                 max_iterations)
     if len(codes) > 1 and achieved > tolerance:
@@ -104,11 +148,11 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     absorbed = [j for j in range(values.shape[1])
                 if not fe.spread(values[:, j], weights) > fe.ABSORBED_SHARE * total[j]]
     for j in absorbed:
-        if model_roles(layout)[j][0] != "control" and original is not None:
+        if model_roles(layout)[j][0] != "control" and len(codes) > 1:
+            original = _core_columns(source, keep, n_core)
             alone = fe.absorbed_by(original[:, j], codes, levels, weights)
             raise refusal(model_roles(layout)[j][0], model_roles(layout)[j][1],
                           [spec.absorb[k] for k in alone] or list(spec.absorb))
-    del original
     keep_cols, new_layout, dropped, notes = apply_drops(absorbed, layout, spec.absorb)
     if absorbed:
         values = np.asfortranarray(values[:, keep_cols])
@@ -134,78 +178,126 @@ def _nested(codes, levels, clusters) -> tuple[bool, ...]:
 
 
 # ----------------------------------------------------------------------------- streamed
+WITHIN_SHARE = 1e-3
+"""Smallest share of a column's spread left within the levels for which pass 1's moments are
+taken from pass 0's sums (see :func:`_within_moments`)."""
+
+
 def _grow(array: np.ndarray | None, rows: int, fill: float, width: int | None = None):
     shape = (rows,) if width is None else (rows, width)
     block = np.full(shape, fill, dtype=np.int64 if isinstance(fill, int) else np.float64)
     return block if array is None else np.concatenate([array, block])
 
 
-def _first_pass(source) -> tuple:
-    """Per-level counts, weight sums, weighted sums, minima and maxima of every column, and
-    the smallest and largest cluster code met in each level (equal when nested)."""
-    import pandas as pd
+def _with_new_levels(reference: np.ndarray | None, codes: np.ndarray, old: int, n: int,
+                     block: np.ndarray) -> np.ndarray:
+    """``reference`` (levels × columns, column-major) grown by one row of ``block`` per level
+    first met in this chunk (codes ``old`` … ``n − 1``; which of the level's rows is taken does
+    not matter: a column is constant within a level exactly when every row equals any one)."""
+    if reference is not None and n == old:
+        return reference
+    fresh = np.empty((n - old, block.shape[1]), dtype=block.dtype)
+    new_rows = codes >= old
+    fresh[codes[new_rows] - old] = block[new_rows]
+    grown = fresh if reference is None else np.concatenate([reference, fresh])
+    return np.asfortranarray(grown)
 
-    levels, cluster_codes_of = LabelCodes(), None
-    counts = totals = sums = lows = highs = None
-    c_low = c_high = None
-    shift = None
-    n_dropped = n_filtered = 0
+
+def _varies(reference: np.ndarray, codes: np.ndarray, block: np.ndarray,
+            known: np.ndarray | None) -> np.ndarray:
+    """Per column of ``block``: whether some row differs from its level's reference row (or
+    an earlier chunk's did: ``known``; those columns are not looked at again)."""
+    seen = np.zeros(block.shape[1], dtype=bool) if known is None else known.copy()
+    for j in np.flatnonzero(~seen):
+        seen[j] = bool(np.any(block[:, j] != reference[:, j][codes]))
+    return seen
+
+
+def _first_pass(source) -> tuple:
+    """Per-level counts, weight sums and weighted sums of every (shifted) column; per column
+    whether it varies within some level, and per cluster variable whether every level lies in
+    one of its clusters (both from one reference row per level, no per-row minima/maxima)."""
+    levels, cluster_codes_of = LevelCodes(), None
+    counts = totals = sums = reference = c_reference = varies = c_varies = None
+    shift = scratch = None
+    raw = empty_moments(source.layout.columns)
     for chunk in source.chunks():
+        if scratch is None or scratch.shape != chunk.values.shape:
+            scratch = np.empty(chunk.values.shape, order="F")
+        raw = raw + chunk_moments(raw.columns, chunk.values, chunk.weights, chunk.n_dropped,
+                                  chunk.n_filtered, scratch)
         if chunk.values.shape[0] == 0:
             continue
         if shift is None:
             shift = chunk.values[0].copy()
+        old = 0 if counts is None else counts.size
         codes, n = levels.encode(chunk.groups[0])
         p = chunk.values.shape[1]
         if counts is None or counts.size < n:
-            grow = n - (0 if counts is None else counts.size)
-            counts, totals = _grow(counts, grow, 0), _grow(totals, grow, 0.0)
-            sums, lows = _grow(sums, grow, 0.0, p), _grow(lows, grow, np.inf, p)
-            highs = _grow(highs, grow, -np.inf, p)
-            k = 1 if chunk.clusters is None else len(cluster_label_columns(chunk.clusters))
-            c_low, c_high = _grow(c_low, grow, np.inf, k), _grow(c_high, grow, -np.inf, k)
+            counts, totals = _grow(counts, n - old, 0), _grow(totals, n - old, 0.0)
+            sums = _grow(sums, n - old, 0.0, p)
+        reference = _with_new_levels(reference, codes, old, n, chunk.values)
+        varies = _varies(reference, codes, chunk.values, varies)
         if chunk.clusters is not None:
             columns = cluster_label_columns(chunk.clusters)
             cluster_codes_of = cluster_codes_of or [LabelCodes() for _ in columns]
-            for j, column in enumerate(columns):
-                cluster_codes, _ = cluster_codes_of[j].encode(column)
-                np.minimum.at(c_low[:, j], codes, cluster_codes)
-                np.maximum.at(c_high[:, j], codes, cluster_codes)
+            block = np.column_stack([cluster_codes_of[j].encode(column)[0]
+                                     for j, column in enumerate(columns)])
+            c_reference = _with_new_levels(c_reference, codes, old, n, block)
+            c_varies = _varies(c_reference, codes, block, c_varies)
         counts += np.bincount(codes, minlength=n)
         totals += fe.group_weights(codes, n, chunk.weights)
         for j in range(p):
             column = chunk.values[:, j] - shift[j]
             w_col = column if chunk.weights is None else column * chunk.weights
             sums[:, j] += np.bincount(codes, weights=w_col, minlength=n)
-            np.minimum.at(lows[:, j], codes, column)
-            np.maximum.at(highs[:, j], codes, column)
-    # levels × cluster variables: whether the level meets a single cluster of that variable.
-    nested = None if c_low is None or not cluster_codes_of else c_low == c_high
-    return pd.Index(levels.labels()), counts, totals, sums, lows, highs, shift, nested
+    # per cluster variable: whether no level meets two of its clusters.
+    nested = None if c_varies is None else ~c_varies
+    return levels.labels(), counts, totals, sums, varies, shift, nested, raw
+
+
+def _within_moments(raw: Moments, totals: np.ndarray, sums: np.ndarray, shift: np.ndarray,
+                    kept: np.ndarray, counts: np.ndarray, keep_cols: np.ndarray,
+                    columns: tuple[str, ...]) -> Moments | None:
+    """Pass 1's moments of the demeaned columns from pass 0's, without another pass:
+    ``C_within = C − Σ_g t_g (m_g − μ)(m_g − μ)'`` over every level (a singleton row deviates
+    by nothing from its own level's mean), with mean 0.  ``None`` when some column keeps less
+    than :data:`WITHIN_SHARE` of its spread within the levels: the subtraction would then lose
+    more than three digits, and the rows are demeaned first instead (pass 1 proper)."""
+    centre = raw.mean - shift
+    deviations = sums / np.where(totals > 0, totals, 1.0)[:, None] - centre
+    between = (deviations * totals[:, None]).T @ deviations
+    within = (raw.comoment - between)[np.ix_(keep_cols, keep_cols)]
+    if np.any(np.diag(within) < WITHIN_SHARE * np.diag(raw.comoment)[keep_cols]):
+        return None
+    return Moments(columns, int(counts[kept].sum()), raw.n_dropped, float(totals[kept].sum()),
+                   np.zeros(keep_cols.size), 0.5 * (within + within.T), raw.n_filtered)
 
 
 def _streamed(source) -> AbsorbedSource:
     spec, layout = source.spec, source.layout
-    labels, counts, totals, sums, lows, highs, shift, nested_levels = _first_pass(source)
+    labels, counts, totals, sums, varies, shift, nested_ways, raw = _first_pass(source)
     kept = counts > 1
     n_singletons = int(counts[~kept].sum())
     if not kept.any():
         raise InputError(f"every row of {source.description} is alone in its level of the "
                          f"fixed effect '{spec.absorb[0]}'; nothing is left to fit")
-    flat = np.all(highs[kept] - lows[kept] == 0.0, axis=0)
-    absorbed = [j for j in range(flat.size) if flat[j]]
+    # A singleton level never varies, so 'varies within some level' is over the kept ones.
+    absorbed = [j for j in range(varies.size) if not varies[j]]
     keep_cols, new_layout, dropped, notes = apply_drops(absorbed, layout, spec.absorb)
     offset = np.asfortranarray((sums / np.where(totals > 0, totals, 1.0)[:, None])[:, keep_cols])
     levels = int(kept.sum())
     # Nested when every kept level lies within one cluster of the same cluster variable.
-    nested = (nested_levels is not None
-              and bool(np.any(np.all(nested_levels[kept], axis=0))),)
+    nested = (nested_ways is not None and bool(np.any(nested_ways)),)
     counted = (levels - int(layout.constant),)  # the constant, if any, takes one level
     absorption = fe.Absorption(spec.absorb, (levels,), counted, nested, n_singletons, 1,
                                0.0, fe.DEFAULT_TOLERANCE, dropped, streamed=True)
     stream = Stream(labels, counts, offset, shift[keep_cols], keep_cols)
+    moments = _within_moments(raw, totals, sums, shift, kept, counts, keep_cols,
+                              tuple(new_layout.columns))
     return AbsorbedSource(spec, new_layout, source.description, absorption,
-                          tuple(getattr(source, "notes", ())) + notes, None, source, stream)
+                          tuple(getattr(source, "notes", ())) + notes, None, source, stream,
+                          moments)
 
 
 def absorb_source(source, *, tolerance: float | None = None,

@@ -32,7 +32,11 @@ def engine_of(source) -> str:
 
 
 def moments_of(source, columns: Sequence[str]) -> Moments:
-    """Pass 1 over ``source``: weighted means and centred co-moments of ``columns``."""
+    """Pass 1 over ``source``: weighted means and centred co-moments of ``columns`` (those a
+    source already carries, e.g. a streamed one-way absorption's from its pass 0)."""
+    known = getattr(source, "moments", None)
+    if known is not None and known.columns == tuple(columns):
+        return known
     engine = engine_of(source)
     if engine == "duckdb":
         return duckdb_engine.moments(source, columns)

@@ -1,7 +1,9 @@
 """``--absorb-tolerance`` on every data command, its checks (exit 2), and the statement of
 corrbound's bootstrap with absorbed fixed effects.  The CLI is checked against the library
-call with the same tolerance (one path, two spellings: common practice, no source); the
-alternating projections themselves against linearmodels / pyfixest in
+call with the same tolerance (one path, two spellings: common practice, no source); where the
+number of steps shows the tolerance at work, the direct solve of a small fixed effect
+(estimation/absorb_direct.py, one step whatever the tolerance) is switched off so that the
+plain alternating projections run; the alternating projections themselves against linearmodels / pyfixest in
 tests/estimation/test_absorb.py.
 """
 
@@ -46,7 +48,16 @@ def data(tmp_path_factory):
     return path
 
 
-def test_a_looser_tolerance_stops_sooner_and_matches_the_library(data):
+@pytest.fixture
+def projections_only(monkeypatch):
+    """Plain alternating projections (no direct solve of the small fixed effect), the path on
+    which a looser tolerance means fewer steps."""
+    from sensiv.estimation import absorb_direct
+
+    monkeypatch.setattr(absorb_direct, "DIRECT_LEVELS", 0)
+
+
+def test_a_looser_tolerance_stops_sooner_and_matches_the_library(data, projections_only):
     loose = json.loads(invoke("fit", data, *BASE, *TWO, "--absorb-tolerance", "1e-4",
                               "--json").stdout)
     tight = json.loads(invoke("fit", data, *BASE, *TWO, "--json").stdout)
@@ -60,13 +71,32 @@ def test_a_looser_tolerance_stops_sooner_and_matches_the_library(data):
     assert loose["coef"] == pytest.approx(direct.to_dict()["coef"], rel=1e-12)
 
 
+def test_the_direct_solve_meets_both_tolerances_in_one_step(data, monkeypatch):
+    # 'year' (12 levels) is solved directly beside 'firm': one step whatever the tolerance,
+    # and the same coefficients as the plain projections to the tight tolerance.
+    loose = json.loads(invoke("fit", data, *BASE, *TWO, "--absorb-tolerance", "1e-4",
+                              "--json").stdout)
+    tight = json.loads(invoke("fit", data, *BASE, *TWO, "--json").stdout)
+    assert loose["absorb_iterations"] == tight["absorb_iterations"] == 1
+    assert loose["absorb_tolerance"] <= 1e-4 and tight["absorb_tolerance"] <= 1e-10
+    spec = Spec("y", ("x",), ("z",), controls=("w",), absorb=("firm", "year"))
+    from sensiv.estimation import absorb_direct
+
+    monkeypatch.setattr(absorb_direct, "DIRECT_LEVELS", 0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        plain = iv.fit(data, spec, absorb_tolerance=1e-12)
+    assert plain.absorption.iterations > 1
+    assert tight["coef"] == pytest.approx(plain.to_dict()["coef"], rel=1e-9)
+
+
 @pytest.mark.parametrize("command,extra", [
     ("sweep", ("--direct=-0.1:0.1", "--points", "5")),
     ("prior", ("--prior", "normal:0:0.05")),
     ("corrbound", ("--reps", "20", "--seed", "1", "--points", "5")),
     ("calibrate", ()),
 ])
-def test_every_data_command_takes_the_tolerance(command, extra, data):
+def test_every_data_command_takes_the_tolerance(command, extra, data, projections_only):
     loose = invoke(command, data, *BASE, *TWO, "--absorb-tolerance", "1e-3", *extra, "--json")
     tight = invoke(command, data, *BASE, *TWO, *extra, "--json")
     assert loose.exit_code == 0 and tight.exit_code == 0, loose.output
