@@ -310,14 +310,12 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
 
 
 CACHE_ROWS = 4096
-"""Rows of a chunk that pass 2 turns into score rows at a time: the score rows of a block
-this size stay in the processor's cache between being formed and being multiplied."""
+"""Rows pass 2 turns into score rows at a time (they stay in cache until multiplied)."""
 
 
 def cache_blocks(values: np.ndarray, weights: np.ndarray | None
                  ) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
-    """``values`` and ``weights`` in consecutive blocks of at most :data:`CACHE_ROWS` rows
-    (views; the whole chunk when it is no longer)."""
+    """``values`` and ``weights`` in views of at most :data:`CACHE_ROWS` rows."""
     n = values.shape[0]
     if n <= CACHE_ROWS:
         yield values, weights
