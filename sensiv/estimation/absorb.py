@@ -12,7 +12,10 @@ the demeaned columns, and nothing is refitted per curve point.
   each fixed effect in turn, repeat — accelerated by the Irons–Tuck (1969) extrapolation of
   every second iterate (the scheme fixest also uses; it needs two map evaluations per step and
   no tuning), column by column, until the relative change of the column falls below the
-  tolerance (default :data:`DEFAULT_TOLERANCE`).
+  tolerance (default :data:`DEFAULT_TOLERANCE`).  When all but the largest fixed effect have
+  few levels together, the iteration starts from their exact solution beside the largest
+  (:mod:`sensiv.estimation.absorb_direct`); its first step is one plain sweep, which usually
+  changes it by rounding only, so one step is reported.
 * **Singletons** (a level met in a single row) are dropped, iterated until none remain for
   several fixed effects: such a row is fitted exactly by its own indicator and only inflates
   the row count (common practice, no source).
@@ -67,7 +70,8 @@ class Absorption:
     n_singletons : int
         Rows dropped because their level of some fixed effect occurs once.
     iterations : int
-        Accelerated alternating-projection steps taken (1 for one fixed effect: exact).
+        Accelerated alternating-projection steps taken (1 for one fixed effect: exact; 1
+        also when the direct solve of the small fixed effects stood after one checking sweep).
     tolerance : float
         Achieved relative change of the demeaned columns (0 for one fixed effect: exact).
     requested_tolerance : float

@@ -221,7 +221,9 @@ def _first_pass(source) -> tuple:
     counts = totals = sums = reference = c_reference = varies = c_varies = None
     shift = scratch = None
     raw = empty_moments(source.layout.columns)
+    n_chunks = 0
     for chunk in source.chunks():
+        n_chunks += 1
         if scratch is None or scratch.shape != chunk.values.shape:
             scratch = np.empty(chunk.values.shape, order="F")
         raw = raw + chunk_moments(raw.columns, chunk.values, chunk.weights, chunk.n_dropped,
@@ -253,7 +255,10 @@ def _first_pass(source) -> tuple:
             sums[:, j] += np.bincount(codes, weights=w_col, minlength=n)
     # per cluster variable: whether no level meets two of its clusters.
     nested = None if c_varies is None else ~c_varies
-    return levels.labels(), counts, totals, sums, varies, shift, nested, raw
+    # One chunk: the rows are demeaned before pass 1, exactly as in memory, so that a file and
+    # the same rows loaded give bit-identical results (the second read of one chunk is cheap).
+    return levels.labels(), counts, totals, sums, varies, shift, nested, (
+        raw if n_chunks > 1 else None)
 
 
 def _within_moments(raw: Moments, totals: np.ndarray, sums: np.ndarray, shift: np.ndarray,
@@ -293,8 +298,8 @@ def _streamed(source) -> AbsorbedSource:
     absorption = fe.Absorption(spec.absorb, (levels,), counted, nested, n_singletons, 1,
                                0.0, fe.DEFAULT_TOLERANCE, dropped, streamed=True)
     stream = Stream(labels, counts, offset, shift[keep_cols], keep_cols)
-    moments = _within_moments(raw, totals, sums, shift, kept, counts, keep_cols,
-                              tuple(new_layout.columns))
+    moments = None if raw is None else _within_moments(raw, totals, sums, shift, kept, counts,
+                                                       keep_cols, tuple(new_layout.columns))
     return AbsorbedSource(spec, new_layout, source.description, absorption,
                           tuple(getattr(source, "notes", ())) + notes, None, source, stream,
                           moments)
