@@ -74,9 +74,11 @@ def plainly_finite(column: np.ndarray) -> bool:
     return _LOWER * column.size <= s <= _UPPER
 
 
-def _checked(column: np.ndarray, role: str, name: str, where: str, first_row: int
-             ) -> np.ndarray | None:
-    """The general path's checks of one float64 column; its missing mask (``None``: none)."""
+def checked_column(column: np.ndarray, role: str, name: str, where: str, first_row: int
+                   ) -> np.ndarray | None:
+    """The checks of one float64 column (infinite values, scale); its missing mask (``None``:
+    none).  Finite values below ``MAX_MAGNITUDE`` cannot sum to NaN, so a NaN sum means a
+    missing value, and only then is the mask formed."""
     found = extremes(column)
     if math.isinf(found[0]) or math.isinf(found[1]):
         infinite = np.isinf(column)
@@ -91,7 +93,7 @@ def _checked(column: np.ndarray, role: str, name: str, where: str, first_row: in
     return np.isnan(column)
 
 
-def _check_weights(spec: Spec, weights: np.ndarray, where: str, first_row: int) -> None:
+def check_weights(spec: Spec, weights: np.ndarray, where: str, first_row: int) -> None:
     bad = weights <= 0  # NaN compares False and is handled as missing
     if bad.any():
         position = int(np.argmax(bad))
@@ -117,13 +119,13 @@ def clean_arrays(arrays: Sequence[np.ndarray], spec: Spec, where: str, first_row
     drop = None
     for role, name in roles(spec):
         column = columns[name]
-        mask = None if plainly_finite(column) else _checked(column, role, name, where,
+        mask = None if plainly_finite(column) else checked_column(column, role, name, where,
                                                             first_row)
         missing[name] = 0 if mask is None else int(mask.sum())
         if mask is not None:
             drop = mask if drop is None else drop | mask
     if spec.weight is not None:
-        _check_weights(spec, columns[spec.weight], where, first_row)
+        check_weights(spec, columns[spec.weight], where, first_row)
     keep = None if drop is None or not drop.any() else ~drop
     kept = n if keep is None else int(keep.sum())
     model = (spec.outcome, *spec.treatments, *spec.instruments, *spec.controls)

@@ -27,7 +27,6 @@ Examples
 from __future__ import annotations
 
 import dataclasses
-import math
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -37,10 +36,9 @@ import warnings
 import numpy as np
 
 from sensiv.core.errors import IdentifierWarning, InputError
-from sensiv.data.convert import (as_float, check_scale, data_row, dtype_kind, extremes,
-                                 identifier_notes, level_index, level_strings, missing_mask,
-                                 scan_levels, Tally, text_controls)
-from sensiv.data.columnar import cleaned
+from sensiv.data.convert import (as_float, data_row, dtype_kind, identifier_notes, level_index,
+                                 level_strings, missing_mask, scan_levels, Tally, text_controls)
+from sensiv.data.columnar import check_weights, checked_column, cleaned
 from sensiv.data.dense_size import check_dense_size
 from sensiv.data.spec import check_columns, cluster_columns, roles, row_filter, Spec
 from sensiv.data.where import check_kinds, filter_columns, keep_mask, Node
@@ -207,33 +205,14 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
             mask = missing_mask(frame[name])
         else:
             column = numeric[name] = as_float(frame[name], role, name, where, first_row)
-            found = extremes(column)
-            if math.isinf(found[0]) or math.isinf(found[1]):
-                infinite = np.isinf(column)
-                raise InputError(
-                    f"{role} {name!r} in {where} has {int(infinite.sum())} infinite value(s) "
-                    f"(first at data row {data_row(first_row, int(np.argmax(infinite)))}); "
-                    "recode them to finite numbers or drop those rows"
-                )
-            check_scale(column, f"{role} {name!r} in {where}", first_row, found)
-            # Finite values below MAX_MAGNITUDE cannot sum to NaN: a NaN sum means a missing
-            # value, and only then is the mask formed.
-            if not math.isnan(float(np.add.reduce(column))):
+            mask = checked_column(column, role, name, where, first_row)
+            if mask is None:
                 missing_counts[name] = 0
                 continue
-            mask = np.isnan(column)
         missing_counts[name] = int(mask.sum())
         drop |= mask
     if spec.weight is not None:
-        bad = numeric[spec.weight] <= 0  # NaN compares False and is handled as missing
-        if bad.any():
-            position = int(np.argmax(bad))
-            raise InputError(
-                f"weight {spec.weight!r} in {where} has {int(bad.sum())} zero or negative "
-                f"value(s) (e.g. {numeric[spec.weight][position]:g} at data row "
-                f"{data_row(first_row, position)}); weights must be positive: drop those rows "
-                "or fix the weights"
-            )
+        check_weights(spec, numeric[spec.weight], where, first_row)
     return numeric, missing_counts, drop
 
 
