@@ -67,18 +67,34 @@ def _grouped_sums_sql(plan: Plan, parts: list[str], shift: np.ndarray, cluster: 
                         f"ELSE 0.0 END AS sensiv_d{j}_" for j in range(p))
     mid = (f"SELECT *, CASE WHEN {CLEAN} THEN sensiv_w_ ELSE 0.0 END AS sensiv_cw_, {centred} "
            f"FROM ({inner}) AS valued")
-    names = ["", *(f"sensiv_d{j}_" for j in range(p))]
-    sums = []
-    for i in range(p + 1):
-        for j in range(i, p + 1):
-            factors = [f for f in (names[i], names[j]) if f]
-            if plan.weight is not None or not factors:
-                factors = ["sensiv_cw_", *factors]
-            sums.append(f"sum({' * '.join(factors)}) AS m{len(sums)}")
+    sums = _moment_sums([f"sensiv_d{j}_" for j in range(p)], "sensiv_cw_",
+                        plan.weight is not None)
     listed = ", ".join([*(f"{part} AS k{i}" for i, part in enumerate(parts)), *sums])
     grouping = " GROUP BY sensiv_c_" if cluster is not None else ""
     sql = f"SELECT {listed} FROM ({mid}) AS centred{grouping}"
     return sql, query.params + plan.value_params + plan.kept_params
+
+
+def _moment_sums(columns: list[str], weight: str, weighted: bool) -> list[str]:
+    """``sum(w·aᵢ·aⱼ) AS m{k}`` over the upper triangle of the augmented row ``[1, columns]``
+    (row-major); the weight is left out of the non-constant terms when it is 1 (``weighted``
+    false) or already 0 on the rows it must drop."""
+    names = ["", *columns]
+    sums = []
+    for i in range(len(names)):
+        for j in range(i, len(names)):
+            factors = [f for f in (names[i], names[j]) if f]
+            if weighted or not factors:
+                factors = [weight, *factors]
+            sums.append(f"sum({' * '.join(factors)}) AS m{len(sums)}")
+    return sums
+
+
+def _matrices(table: dict, size: int, keep=slice(None)) -> np.ndarray:
+    """The ``(G, size, size)`` moment matrices of a result's ``m{k}`` columns."""
+    entries = size * (size + 1) // 2
+    return symmetric(np.column_stack([np.asarray(table[f"m{k}"], dtype=np.float64)[keep]
+                                      for k in range(entries)]), size)
 
 
 def _combined(column, how: str):
@@ -96,8 +112,9 @@ def _combined(column, how: str):
 
 def _one_scan_pass(plan: Plan, source, columns: Sequence[str]) -> Moments | None:
     """Pass 1 as one scan: checks and moments, grouped by the cluster for one-way clusters,
-    whose per-cluster moment matrices are kept for pass 2 (:func:`~sensiv.estimation.cluster_moments.remember`); ``None`` where
-    the quick checks cannot decide (a NaN, an infinite value, a text column in a numeric
+    whose per-cluster moment matrices are kept for pass 2
+    (:func:`~sensiv.estimation.cluster_moments.remember`); ``None`` where the quick checks
+    cannot decide (a NaN, an infinite value, a text column in a numeric
     role...): the two-query route then runs the full checks."""
     quick = quick_parts(plan)
     shift = _sample_shift(plan) if quick is not None else None
@@ -115,9 +132,7 @@ def _one_scan_pass(plan: Plan, source, columns: Sequence[str]) -> Moments | None
     n_filtered, n_dropped = verdict
     p = len(plan.values)
     met = np.asarray(table["k1"]) > 0             # clusters with a clean row
-    entries = (p + 1) * (p + 2) // 2
-    per_cluster = symmetric(np.column_stack(
-        [np.asarray(table[f"m{k}"], dtype=np.float64)[met] for k in range(entries)]), p + 1)
+    per_cluster = _matrices(table, p + 1, met)
     remember(source, ClusterMoments([], shift, per_cluster) if cluster is not None else None)
     whole = per_cluster.sum(axis=0)
     return _centred_moments(columns, row[1], n_dropped, n_filtered, shift, whole[0, 0],
@@ -204,19 +219,14 @@ def _grouped_moments(plan: Plan, centred: str, p: int, params: list, ways: int
                      ) -> list[np.ndarray]:
     """Per-cluster augmented moment matrices ``M_g = Σ_{i∈g} w d̃ᵢ d̃ᵢ'`` (``d̃ = [1, d]``), one
     ``(G, 1+p, 1+p)`` array per way (``A``; or ``A``, ``B``, ``A∩B`` from grouping sets)."""
-    names = ["1.0", *(f"d{j}" for j in range(p))]
-    pairs = [(i, j) for i in range(p + 1) for j in range(i, p + 1)]
-    sums = ", ".join(f"sum(w * {names[i]} * {names[j]}) AS m{k}"
-                     for k, (i, j) in enumerate(pairs))
+    sums = ", ".join(_moment_sums([f"d{j}" for j in range(p)], "w", plan.weight is not None))
     if ways == 1:
         sql = f"SELECT {sums} FROM ({centred}) AS centred GROUP BY c0"
     else:
         sql = (f"SELECT grouping(c0, c1) AS way, {sums} FROM ({centred}) AS centred "
                "GROUP BY GROUPING SETS ((c0), (c1), (c0, c1))")
     table = plan.run(sql, params).fetchnumpy()
-    flat = np.column_stack([np.asarray(table[f"m{k}"], dtype=np.float64)
-                            for k in range(len(pairs))])
-    full = symmetric(flat, p + 1)
+    full = _matrices(table, p + 1)
     if ways == 1:
         return [full]
     # grouping(c0, c1): 1 when only c0 groups (way A), 2 when only c1 (B), 0 for both (A∩B)

@@ -1,6 +1,6 @@
 """The DuckDB engine's plan of one source: the connection, the filtered rows and the data
 expressions (:class:`Plan`), and the numpy path's value checks as SQL aggregates
-(:func:`check_parts`, :func:`check_verdict`), used by :mod:`.duckdb_engine`."""
+(:func:`checks`, :func:`quick_parts`, :func:`check_verdict`), used by :mod:`.duckdb_engine`."""
 
 from __future__ import annotations
 
@@ -162,27 +162,24 @@ def _numeric_roles(plan: Plan) -> list[tuple[str, str]]:
             if c not in plan.text and role not in ("cluster", "absorbed fixed effect")]
 
 
-def check_parts(plan: Plan) -> tuple[list[str], list[str]]:
+def _check_parts(plan: Plan) -> list[str]:
     """The checks' aggregates over the rows of :meth:`Plan.flagged` (rows, clean rows, missing
     values per used column, infinite values and the largest finite size per numeric column,
-    non-positive weights), with how each combines over groups (``sum`` or ``max``)."""
+    non-positive weights)."""
     spec = plan.source.spec
     parts = ["count(*)", f"count(*) FILTER (WHERE {CLEAN})"]
     parts += [f"count(*) FILTER (WHERE {missing(c, plan.numeric[c])})"
               for c in plan.role_columns]
-    combine = ["sum"] * len(parts)
     for _, c in _numeric_roles(plan):
         parts += [f"count(*) FILTER (WHERE isinf({number(c)}))",
                   f"max(abs({number(c)})) FILTER (WHERE isfinite({number(c)}))"]
-        combine += ["sum", "max"]
     if spec.weight is not None:
         parts.append(f"count(*) FILTER (WHERE {number(spec.weight)} <= 0)")
-        combine.append("sum")
-    return parts, combine
+    return parts
 
 
 def check_verdict(plan: Plan, row: Sequence, total: int) -> tuple[int, int]:
-    """Raise the first problem the aggregates of :func:`check_parts` show (the numpy path's
+    """Raise the first problem the aggregates of :func:`_check_parts` show (the numpy path's
     messages); return (rows removed by the filter, rows dropped for a missing value)."""
     spec, where = plan.source.spec, plan.source.description
     kept_rows, clean = int(row[0]), int(row[1])
@@ -217,7 +214,7 @@ def check_verdict(plan: Plan, row: Sequence, total: int) -> tuple[int, int]:
 def checks(plan: Plan) -> tuple[int, int, np.ndarray]:
     """The checks in one scan; returns (rows removed by the filter, rows dropped, each value
     column's plain mean over the clean rows as a centring shift)."""
-    parts, _ = check_parts(plan)
+    parts = _check_parts(plan)
     parts += [f"avg({v}) FILTER (WHERE {CLEAN})" for v in plan.values]
     row = plan.run(f"SELECT {', '.join(parts)} FROM {plan.flagged()} AS kept",
                    plan.value_params + plan.kept_params).fetchone()
