@@ -2,12 +2,14 @@
 a directory, a glob, hive partitions) or a table of a DuckDB database.  DuckDB runs them
 multi-threaded and out of core; only the reduced sums come back to Python.
 
-* Pass 1, one scan: the numpy path's checks as cheap aggregates (NULL counts, each column's
-  least and largest value, the least weight), with sums of ``w·(v − shift)`` and
-  ``w·(vᵢ − shiftᵢ)(vⱼ − shiftⱼ)`` about a shift from the first rows (the weighted means and
-  centred co-moments follow exactly, and columns with a large mean keep their accuracy).
-  Where those aggregates show a NaN, an infinite value or a non-positive weight, a full-checks
-  query counts and names it (the numpy path's messages) before a second moment query.
+* Pass 1, one scan: sums of ``w·(v − shift)`` and ``w·(vᵢ − shiftᵢ)(vⱼ − shiftⱼ)`` about a
+  shift from the first rows (the weighted means and centred co-moments follow exactly, and
+  columns with a large mean keep their accuracy) beside three check aggregates (rows, clean
+  rows, the least weight).  Where every row is clean, the numpy path's checks follow from the
+  sums themselves (a NaN or infinite value makes a sum non-finite; the sums bound each column's
+  largest size); where a row has a missing value, one scan without grouping counts them.  Where
+  that cannot decide (a NaN, an infinite value, a non-positive weight), a full-checks query
+  counts and names it (the numpy path's messages) before a second moment query.
 * With one-way clusters that scan is grouped by the cluster and keeps each cluster's moment
   matrix ``M_g = Σ w d̃ d̃'``; the scores are bilinear in the row (``ScoreBlock``: ``a = d̃ @
   left``, ``e = d̃ @ right``), so pass 2's cluster sums are ``vec(left' M_g right)``, with no
@@ -33,8 +35,8 @@ from sensiv.estimation.absorb_view import GroupStats
 from sensiv.estimation.cluster_moments import (ClusterMoments, cluster_scores, recall, remember,
                                                scores_from, symmetric)
 from sensiv.estimation.cluster_ways import combine_ways
-from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, quick_parts,
-                                                   quick_verdict)
+from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, quick_row,
+                                                   quick_verdict, scan_parts, sums_verdict)
 from sensiv.estimation.engines.duckdb_sql import Query, linear
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums
 
@@ -97,45 +99,46 @@ def _matrices(table: dict, size: int, keep=slice(None)) -> np.ndarray:
                                       for k in range(entries)]), size)
 
 
-def _combined(column, how: str):
-    """One check aggregate over the groups: a sum, or the least / largest value met (``None``
-    when no group has one; a NaN stays NaN)."""
-    values = np.ma.asarray(column, dtype=np.float64)
-    if how == "sum":
-        return int(values.sum())
-    met = values.compressed()
+def _least(column) -> float | None:
+    """The least value of a check aggregate over the groups (``None`` when no group has one;
+    a NaN stays NaN)."""
+    met = np.ma.asarray(column, dtype=np.float64).compressed()
     if met.size == 0:
         return None
-    return float(met.min() if how == "min" else met.max()) if not np.isnan(met).any() \
-        else float("nan")
+    return float("nan") if np.isnan(met).any() else float(met.min())
 
 
 def _one_scan_pass(plan: Plan, source, columns: Sequence[str]) -> Moments | None:
-    """Pass 1 as one scan: checks and moments, grouped by the cluster for one-way clusters,
-    whose per-cluster moment matrices are kept for pass 2
-    (:func:`~sensiv.estimation.cluster_moments.remember`); ``None`` where the quick checks
-    cannot decide (a NaN, an infinite value, a text column in a numeric
+    """Pass 1 as one scan: moments and a few check aggregates, grouped by the cluster for
+    one-way clusters, whose per-cluster moment matrices are kept for pass 2
+    (:func:`~sensiv.estimation.cluster_moments.remember`).  Where every kept row is clean the
+    checks follow from the sums (:func:`~.duckdb_plan.sums_verdict`); where some row has a
+    missing value, from one cheap scan without grouping (:func:`~.duckdb_plan.quick_row`).
+    ``None`` where those cannot decide (a NaN, an infinite value, a text column in a numeric
     role...): the two-query route then runs the full checks."""
-    quick = quick_parts(plan)
-    shift = _sample_shift(plan) if quick is not None else None
+    parts = scan_parts(plan)
+    shift = _sample_shift(plan) if parts is not None else None
     if shift is None:
         return None
-    parts, combine = quick
     clusters = cluster_columns(source.spec)
     cluster = clusters[0] if len(clusters) == 1 else None
     sql, params = _grouped_sums_sql(plan, parts, shift, cluster)
     table = plan.run(sql, params).fetchnumpy()
-    row = [_combined(table[f"k{i}"], how) for i, how in enumerate(combine)]
-    verdict = quick_verdict(plan, row, plan.total_rows())
-    if verdict is None:
-        return None
-    n_filtered, n_dropped = verdict
+    rows, clean = (int(np.sum(np.asarray(table[k], dtype=np.int64))) for k in ("k0", "k1"))
     p = len(plan.values)
     met = np.asarray(table["k1"]) > 0             # clusters with a clean row
     per_cluster = _matrices(table, p + 1, met)
+    if rows == clean:
+        least = _least(table["k2"]) if source.spec.weight is not None else None
+        verdict = sums_verdict(plan, plan.total_rows(), rows, least, shift, per_cluster)
+    else:
+        verdict = quick_verdict(plan, quick_row(plan), plan.total_rows())
+    if verdict is None:
+        return None
+    n_filtered, n_dropped = verdict
     remember(source, ClusterMoments([], shift, per_cluster) if cluster is not None else None)
     whole = per_cluster.sum(axis=0)
-    return _centred_moments(columns, row[1], n_dropped, n_filtered, shift, whole[0, 0],
+    return _centred_moments(columns, clean, n_dropped, n_filtered, shift, whole[0, 0],
                             whole[0, 1:], whole[1:, 1:])
 
 

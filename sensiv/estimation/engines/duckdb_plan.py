@@ -82,8 +82,10 @@ class Plan:
         self.quick_clean = f"NOT ({any_null})"     # the same where no value is NaN
         values = Query()
         self.values = []
+        self.value_index = {}   # numeric column -> its index among the values
         for name in (spec.outcome, *spec.treatments, *spec.instruments, *spec.controls):
             if name not in levels:
+                self.value_index.setdefault(name, len(self.values))
                 self.values.append(number(name))
                 continue
             numeric_levels = name in spec.categorical
@@ -224,25 +226,77 @@ def checks(plan: Plan) -> tuple[int, int, np.ndarray]:
     return n_filtered, n_dropped, shift
 
 
-def quick_parts(plan: Plan) -> tuple[list[str], list[str]] | None:
+def scan_parts(plan: Plan) -> list[str] | None:
+    """The grouped scan's own check aggregates (rows, clean rows, the least weight), few so
+    that the scan costs little more than its moment sums; ``None`` when a numeric role's
+    column is not stored as a number (the full checks then say what is wrong)."""
+    if not all(plan.numeric[c] for _, c in _numeric_roles(plan)):
+        return None
+    parts = ["count(*)", f"count(*) FILTER (WHERE {CLEAN})"]
+    if plan.source.spec.weight is not None:
+        parts.append(f"min({number(plan.source.spec.weight)})")
+    return parts
+
+
+def sums_verdict(plan: Plan, total: int, rows: int, least_weight, shift: np.ndarray,
+                 per_group: np.ndarray) -> tuple[int, int] | None:
+    """:func:`check_verdict` for a scan whose kept rows are all clean, from its moment sums
+    ``per_group`` (``(G, 1+p, 1+p)`` of ``[1, v − shift]``) alone.
+
+    A NaN or an infinite value makes a sum non-finite.  Each value column's largest size lies
+    between ``max(|shift|, √(Σw v² / Σw))`` and ``|shift| + √(max_g Σ_g w d² / least w)``
+    (the shift is a mean of some of its values); a positive weight's between ``Σw / rows``
+    and ``Σw``.  ``None`` where a sum is not finite, a weight is not positive or the bounds
+    cannot settle the size checks: the full checks then count and name the problem."""
+    weighted = plan.source.spec.weight is not None
+    if rows == 0 or not np.isfinite(per_group).all():
+        return None
+    if weighted and not (least_weight is not None and least_weight > 0):
+        return None
+    least = float(least_weight) if weighted else 1.0
+    whole = per_group.sum(axis=0)
+    weight_sum = float(whole[0, 0])
+    margin = 1.0 + 1e-9
+    for role, c in _numeric_roles(plan):
+        if role == "weight":
+            lower, upper = weight_sum / rows, weight_sum
+        else:
+            j = 1 + plan.value_index[c]
+            s = float(shift[j - 1])
+            with np.errstate(over="ignore", invalid="ignore"):
+                second = float(whole[j, j] + 2.0 * s * whole[0, j] + s * s * weight_sum)
+            lower = max(abs(s), float(np.sqrt(max(second, 0.0) / weight_sum)))
+            upper = abs(s) + float(np.sqrt(per_group[:, j, j].max() / least))
+        if not upper * margin <= MAX_MAGNITUDE:
+            return None
+        if upper > 0.0 and not lower >= margin / MAX_MAGNITUDE:
+            return None
+    full = [rows, rows, *(0 for _ in plan.role_columns)]
+    full += [v for _ in _numeric_roles(plan) for v in (0, None)]
+    return check_verdict(plan, full + ([0] if weighted else []), total)
+
+
+def quick_row(plan: Plan) -> list:
+    """:func:`quick_parts`' aggregates over the kept rows in one scan without grouping (where
+    some kept row has a missing value, the exact missing counts the messages need)."""
+    parts = quick_parts(plan)
+    return list(plan.run(f"SELECT {', '.join(parts)} FROM {plan.flagged(quick=True)} AS kept",
+                         plan.kept_params).fetchone())
+
+
+def quick_parts(plan: Plan) -> list[str]:
     """Cheaper aggregates for the same checks where no value is NaN or infinite: missing values
     as NULL counts, each numeric column's least and largest value (NaN and ±inf show there),
-    the least weight; with how each combines over groups.  ``None`` when a numeric role's
-    column is not stored as a number (the full checks then say what is wrong)."""
-    numeric_roles = _numeric_roles(plan)
-    if not all(plan.numeric[c] for _, c in numeric_roles):
-        return None
+    the least weight (:func:`quick_row` reads them where :func:`scan_parts` found a row with
+    a missing value; numeric roles are stored as numbers there)."""
     parts = ["count(*)", f"count(*) FILTER (WHERE {CLEAN})"]
     parts += [f"count(*) - count({quoted(c)})" if plan.numeric[c]
               else f"count(*) FILTER (WHERE {missing(c, False)})" for c in plan.role_columns]
-    combine = ["sum"] * len(parts)
-    for _, c in numeric_roles:
+    for _, c in _numeric_roles(plan):
         parts += [f"min({number(c)})", f"max({number(c)})"]
-        combine += ["min", "max"]
     if plan.source.spec.weight is not None:
         parts.append(f"min({number(plan.source.spec.weight)})")
-        combine.append("min")
-    return parts, combine
+    return parts
 
 
 def quick_verdict(plan: Plan, row: Sequence, total: int) -> tuple[int, int] | None:

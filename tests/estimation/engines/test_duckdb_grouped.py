@@ -107,3 +107,67 @@ def test_nan_stored_as_nan_takes_the_full_checks(tmp_path, monkeypatch):
     assert not cluster_moments._LAST          # the quick route declined
     assert_same(got, run("fit", path, *MODEL, "--json"))
     assert json.loads(got)["n_dropped"] == 7
+
+
+@pytest.fixture
+def clean_folder(tmp_path):
+    """The sorted design without a missing value: the checks come from the moment sums."""
+    frame = random_frame(n=3000, seed=5).dropna().sort_values("w1", kind="stable")
+    folder = tmp_path / "clean"
+    folder.mkdir()
+    for k, rows in enumerate(np.array_split(np.arange(len(frame)), 3)):
+        frame.iloc[rows].to_parquet(folder / f"part-{k}.parquet", index=False)
+    return folder
+
+
+def test_clean_rows_settle_the_checks_from_the_sums(clean_folder, monkeypatch):
+    def no_second_scan(plan):
+        raise AssertionError("a kept row was taken for one with a missing value")
+
+    monkeypatch.setattr(duckdb_engine, "quick_row", no_second_scan)
+    cluster_moments._LAST.clear()
+    ranges = ["--direct=-0.1:0.1", "--direct=-0.05:0.05"]
+    got = run("sweep", clean_folder, *MODEL, *ranges, "--json", "--engine", "duckdb")
+    assert cluster_moments._LAST, "the one-scan route was not taken"
+    assert_same(got, run("sweep", clean_folder, *MODEL, *ranges, "--json"))
+
+
+def _with(frame, column, values):
+    frame = frame.copy()
+    frame[column] = values
+    return frame
+
+
+@pytest.mark.parametrize("change", [
+    lambda f: _with(f, "w1", np.where(np.arange(len(f)) == 40, 3e150, f["w1"])),   # too large
+    lambda f: _with(f, "z2", f["z2"] * 1e-160),                                     # too small
+    lambda f: _with(f, "wt", np.where(np.arange(len(f)) == 7, 0.0, f["wt"])),       # zero weight
+    lambda f: _with(f, "wt", np.where(np.arange(len(f)) == 9, -1.0, f["wt"])),      # negative
+    lambda f: _with(f, "y", np.where(np.arange(len(f)) == 3, np.inf, f["y"])),      # infinite
+], ids=["too-large", "too-small", "zero-weight", "negative-weight", "infinite"])
+def test_checks_from_the_sums_give_the_full_checks_messages(tmp_path, monkeypatch, change):
+    """Where the sums cannot settle a check, the full checks name the problem: the message is
+    the two-query route's (which runs the full checks first), and the numpy path refuses the
+    same column (it also names the data row)."""
+    path = tmp_path / "bad.parquet"
+    change(random_frame(n=900, seed=4).dropna().reset_index(drop=True)).to_parquet(path)
+    args = ["fit", str(path), *MODEL]
+    numpy_out = runner.invoke(app, args)
+    one_scan = runner.invoke(app, [*args, "--engine", "duckdb"])
+    monkeypatch.setattr(duckdb_engine, "_sample_shift", lambda plan: None)
+    two_query = runner.invoke(app, [*args, "--engine", "duckdb"])
+    assert [o.exit_code for o in (numpy_out, one_scan, two_query)] == [2, 2, 2]
+    assert one_scan.output == two_query.output
+    named = one_scan.output.split(" in ")[0]          # "error: <role> '<column>'"
+    assert numpy_out.output.startswith(named), (numpy_out.output, named)
+
+
+def test_large_but_valid_magnitudes_pass_on_either_route(tmp_path):
+    """Values of 1e140 in size: the sums' upper bound may not settle the size check, the full
+    checks then do; the numbers equal the numpy engine's."""
+    frame = random_frame(n=900, seed=6).dropna()
+    frame["w1"] = frame["w1"] * 1e137
+    path = tmp_path / "large.parquet"
+    frame.to_parquet(path)
+    got = run("fit", path, *MODEL, "--json", "--engine", "duckdb")
+    assert_same(got, run("fit", path, *MODEL, "--json"))
