@@ -147,6 +147,9 @@ def main() -> None:
     was most of what ``sensiv CMD --help`` cost beyond importing typer.  Anything else (no
     command, ``--help``, ``--version``, a misspelt command) runs the whole application.
     """
+    from sensiv.core.memory import prefer_system_allocator
+
+    prefer_system_allocator()     # freed memory can go back to the system (core/memory.py)
     name = requested_command(sys.argv[1:])
     (app if name is None else only(name))()
 

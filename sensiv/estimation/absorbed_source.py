@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sensiv.core.errors import AbsorbConvergenceWarning, InputError
+from sensiv.core.memory import release_freed
 from sensiv.data.source import Chunk, Layout
 from sensiv.estimation import absorb as fe
 from sensiv.estimation.absorb_view import (GroupAbsorbed, LevelCodes, Stream, apply_drops,
@@ -117,23 +118,28 @@ def _core_columns(source, keep: np.ndarray, n_core: int) -> np.ndarray:
 
 def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     spec, layout = source.spec, source.layout
-    all_chunks = list(source.chunks())
+    all_chunks = []
+    for chunk in source.chunks():   # each frame read is freed; its pages go back at once
+        all_chunks.append(chunk)
+        release_freed()
     n_dropped = sum(c.n_dropped for c in all_chunks)
     n_filtered = sum(c.n_filtered for c in all_chunks)
     values, weights, clusters, groups = _gather(all_chunks, len(spec.absorb), source.description)
     del all_chunks
-    codes = [fe.encode(g)[0] for g in groups]
+    release_freed()
+    codes, levels = map(list, zip(*(fe.encode(g) for g in groups)))
+    del groups                      # the labels are not needed once coded
     keep = fe.singleton_rows(codes)
     n_singletons = int((~keep).sum())
     if n_singletons:
         values = np.asfortranarray(values[keep])
         weights = None if weights is None else weights[keep]
         clusters = None if clusters is None else clusters[keep]
-        codes = [c[keep] for c in codes]
+        for k in range(len(codes)):  # renumbered one by one: one old code column alive
+            codes[k], levels[k] = fe.recode(codes[k][keep])
     if values.shape[0] == 0:
         raise InputError(f"every row of {source.description} is alone in its level of a fixed "
                          f"effect ({', '.join(spec.absorb)}); nothing is left to fit")
-    codes, levels = zip(*(fe.recode(c) for c in codes))
     total = [fe.spread(values[:, j], weights) for j in range(values.shape[1])]
     # An absorbed outcome, treatment or instrument is an error naming the fixed effect that
     # absorbs it (its raw column read again then); controls are dropped whichever absorbs them.
