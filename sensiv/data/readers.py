@@ -365,7 +365,7 @@ def _parquet_columns(path: Path, spec: Any, rows: int
 
     def batches() -> Iterator[list[np.ndarray]]:
         with pq.ParquetFile(path, pre_buffer=False, buffer_size=PARQUET_BUFFER_BYTES) as handle:
-            for batch in handle.iter_batches(batch_size=rows, columns=names, use_threads=False):
+            for batch in handle.iter_batches(batch_size=rows, columns=names, use_threads=True):
                 yield [arrow_array(batch.column(name)) for name in names]
     return lambda: _guarded(path, "parquet", batches)
 
