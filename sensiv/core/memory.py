@@ -16,8 +16,6 @@ imported; a user's ``ARROW_DEFAULT_MEMORY_POOL`` is respected).
 
 from __future__ import annotations
 
-import ctypes
-import ctypes.util
 import os
 import sys
 from pathlib import Path
@@ -71,6 +69,9 @@ _TRIM: list = []   # glibc's malloc_trim once looked up ([None] where there is n
 def release_freed() -> None:
     """Give the C heap's free pages back to the operating system (glibc), else nothing."""
     if not _TRIM:
+        import ctypes             # here, not at the top: ``sensiv --help`` imports this module
+        import ctypes.util
+
         try:
             library = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6")
             trim = library.malloc_trim
