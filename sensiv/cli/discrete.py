@@ -9,9 +9,9 @@ import typer
 
 from sensiv.cli.app import app, guarded
 from sensiv.cli.labels import LABEL, document, put_in_force
-from sensiv.cli.options import (ENGINE, FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, TREATMENT,
-                                WHERE, check_engine, check_out, emit, figure_formats,
-                                out_option, write_outputs)
+from sensiv.cli.options import (ENGINE, FORMAT, INSTRUMENT, JSON, LEVEL, OUTCOME, SCHEDULER,
+                                TREATMENT, WHERE, check_engine, check_out, emit,
+                                engine_source, figure_formats, out_option, write_outputs)
 
 EXIT_SOLVER_FAILURE = 1
 
@@ -61,6 +61,7 @@ def discrete(
                                                "past the breakdown budget]."),
     level: float = LEVEL,
     engine: str = ENGINE,
+    scheduler: Optional[str] = SCHEDULER,
     label: Optional[list[str]] = LABEL,
     as_json: bool = JSON,
     out: Optional[Path] = out_option("Also write discrete.json and "
@@ -76,12 +77,7 @@ def discrete(
     from sensiv.present.markdown import discrete_markdown
 
     chosen = figure_formats(formats)
-    check_engine(engine, None)
-    if engine != "numpy":
-        from sensiv.core.errors import InputError
-
-        raise InputError(f"discrete tabulates the rows in-process; --engine {engine} is not "
-                         "supported here yet: use --engine numpy (the default)")
+    check_engine(engine, scheduler)
     x, z = _one(treatment, "treatment"), _one(instrument, "instrument")
     put_in_force(label, (outcome, x, z))
     if counts:
@@ -92,13 +88,17 @@ def discrete(
             raise InputError("--where filters rows of unit-level data, not a counts table "
                              "(--counts): filter the counts file itself, or drop --where")
 
+        if engine != "numpy":
+            raise InputError(f"--engine {engine} reads unit-level data; a counts table "
+                             "(--counts) is read in this process: drop --engine")
         table = read_counts(data, outcome=outcome, treatment=x, instrument=z)
     else:
-        from sensiv.data import Spec, from_file
+        from sensiv.data import Spec
         from sensiv.partial_id.discrete_data import tabulate
 
-        table = tabulate(from_file(data, Spec(outcome=outcome, treatments=(x,),
-                                              instruments=(z,), where=where)))
+        table = tabulate(engine_source(data, Spec(outcome=outcome, treatments=(x,),
+                                                  instruments=(z,), where=where),
+                                       engine, scheduler))
     try:
         result = discrete_bounds(table, budget, monotone=monotone, defier_budget=defier_budget,
                                  threshold=threshold, reps=reps, seed=seed, points=points,

@@ -21,6 +21,7 @@ import numpy as np
 
 from sensiv.estimation.engines import dask_engine, duckdb_engine
 from sensiv.estimation.absorb_view import GroupStats
+from sensiv.estimation.cells import Cells, count_cells
 from sensiv.estimation.cluster_moments import Gatherer, gathering, recall, remember, scores_from
 from sensiv.estimation.cluster_ways import combine_ways
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums, accumulate, score_sums
@@ -68,3 +69,14 @@ def group_stats_of(source) -> GroupStats:
     if engine_of(source) == "duckdb":
         return duckdb_engine.group_stats(source)
     return dask_engine.group_stats(source)
+
+
+def cells_of(source, limits: Sequence[int]) -> Cells:
+    """The cell counts of a discrete outcome, treatment and instrument (the first three
+    columns), on the source's engine (:mod:`sensiv.estimation.cells`)."""
+    engine = engine_of(source)
+    if engine == "duckdb":
+        return duckdb_engine.cells(source, limits)
+    if engine == "dask":
+        return dask_engine.cells(source, limits)
+    return count_cells(source.chunks(), limits)

@@ -211,26 +211,19 @@ def tabulate(source: Source) -> CountsTable:
             "the discrete bounds use no controls, weights or clusters (Z is assumed "
             "randomised); remove them from the Spec"
         )
+    from sensiv.estimation.passes import cells_of
+
     names = (spec.outcome, spec.treatments[0], spec.instruments[0])
-    found: list[dict[float, int]] = [{}, {}, {}]  # distinct values of y, x, z so far
-    cells: dict[tuple[float, float, float], int] = {}
-    dropped = filtered = 0
-    for chunk in source.chunks():
-        dropped += chunk.n_dropped
-        filtered += chunk.n_filtered
-        values = chunk.values[:, :3]  # columns: outcome, treatment, instrument
-        for column, role, name, seen in ((2, "instrument", names[2], found[2]),
-                                         (1, "treatment", names[1], found[1]),
-                                         (0, "outcome", names[0], found[0])):
-            seen.update(dict.fromkeys(np.unique(values[:, column]).tolist(), 0))
-            if len(seen) > _ROLES[role][2]:
-                _check_levels(np.array(sorted(seen)), role, name, where, at_least=True)
-        rows, counts = np.unique(values, axis=0, return_counts=True)
-        for (y, x, z), count in zip(rows.tolist(), counts.tolist()):
-            cells[(z, x, y)] = cells.get((z, x, y), 0) + count
-    keys = np.array(list(cells), dtype=np.float64).reshape(-1, 3)
-    weights = np.array(list(cells.values()), dtype=np.int64)
-    table = _table(keys[:, 0], keys[:, 1], keys[:, 2], weights, names, dropped, where)
+    roles = ("outcome", "treatment", "instrument")
+    found = cells_of(source, tuple(_ROLES[role][2] for role in roles))
+    for column in (2, 1, 0):  # the instrument's message first, as the columns are checked
+        if len(found.seen[column]) > found.limits[column]:
+            _check_levels(np.array(found.seen[column]), roles[column], names[column], where,
+                          at_least=True)
+    keys = np.array(list(found.counts), dtype=np.float64).reshape(-1, 3)
+    weights = np.array(list(found.counts.values()), dtype=np.int64)
+    table = _table(keys[:, 0], keys[:, 1], keys[:, 2], weights, names, found.dropped, where)
+    filtered = found.filtered
     return replace(table, n_filtered=filtered)
 
 

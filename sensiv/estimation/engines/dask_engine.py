@@ -39,6 +39,7 @@ from sensiv.data.spec import cluster_columns, read_columns
 from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats, demean_chunks
 from sensiv.estimation.cluster_moments import (ClusterMoments, Gatherer, gathering, merged,
                                                recall, remember, scores_from)
+from sensiv.estimation.cells import Cells, count_cells
 from sensiv.estimation.cluster_ways import combine_ways, pair_labels
 from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
                                        cluster_label_columns, cluster_score_sums,
@@ -258,6 +259,37 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
     ways = sorted({way for way, _ in merged})
     return combine_ways([{b.name: merged[(way, b.name)].to_numpy(dtype=np.float64)
                           for b in blocks} for way in ways])
+
+
+# --------------------------------------------------------------------------- discrete cells
+def part_cells(part: Any, frames: Callable | None, spec, description: str,
+               limits: tuple[int, int, int]) -> tuple[Cells, tuple]:
+    """Task: the cell counts (:func:`~sensiv.estimation.cells.count_cells`) and row counts of
+    one partition."""
+    tally = Tally(spec, description)
+    return count_cells(_chunks(part, frames, tally), limits), _counts(tally)
+
+
+def merge_cells(left: tuple, right: tuple) -> tuple:
+    (a, c1), (b, c2) = left, right
+    missing = {k: c1[3].get(k, 0) + c2[3].get(k, 0) for k in {*c1[3], *c2[3]}}
+    return a + b, (c1[0] + c2[0], c1[1] + c2[1], c1[2] + c2[2], missing)
+
+
+def cells(source, limits: Sequence[int]) -> Cells:
+    """The discrete tabulation on Dask: per-partition cell counts, merged in the tree."""
+    limits = tuple(int(v) for v in limits)
+    client = client_of(source.scheduler)
+    leaves = [client.submit(part_cells, part, frames, source.spec, source.description, limits,
+                            pure=False) for part, frames in _parts(source, client)]
+    if not leaves:
+        return Cells({}, ((), (), ()), limits)
+    found, (rows, kept, filtered, missing) = _tree(client, leaves, merge_cells)
+    if source.origin is not None and source.origin.kind != "duckdb":  # files, Dask frames
+        tally = Tally(source.spec, source.description)
+        tally.add(rows, kept, missing, filtered)
+        tally.finish()
+    return found
 
 
 # --------------------------------------------------------------------------- absorbed levels

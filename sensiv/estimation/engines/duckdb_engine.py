@@ -34,6 +34,7 @@ from sensiv.data.spec import cluster_columns
 from sensiv.estimation.absorb_view import GroupStats
 from sensiv.estimation.cluster_moments import (ClusterMoments, cluster_scores, recall, remember,
                                                scores_from, symmetric)
+from sensiv.estimation.cells import Cells
 from sensiv.estimation.cluster_ways import combine_ways
 from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, quick_row,
                                                    quick_verdict, scan_parts, sums_verdict)
@@ -323,3 +324,24 @@ def group_stats(source) -> GroupStats:
               if clusters else None)
     return GroupStats(labels, table[:, 0].astype(np.int64), table[:, 1],
                       table[:, 2:2 + p], table[:, 2 + p:2 + 2 * p], table[:, 2 + 2 * p:], single)
+
+
+def cells(source, limits: Sequence[int]) -> Cells:
+    """The discrete tabulation in DuckDB: the numpy path's checks, each of ``y``, ``x``, ``z``'s
+    distinct values (at most one past its limit), and where no column is over its limit the
+    rows per cell ``(z, x, y)`` as a ``GROUP BY``."""
+    plan = Plan(source)
+    try:
+        n_filtered, n_dropped, _ = checks(plan)
+        rows, params = plan.clean_rows()
+        seen = tuple(tuple(sorted(float(v) for (v,) in plan.run(
+            f"SELECT DISTINCT v{j} FROM ({rows}) AS clean LIMIT {int(limit) + 1}",
+            params).fetchall())) for j, limit in enumerate(limits))
+        counts = {}
+        if not any(len(s) > limit for s, limit in zip(seen, limits)):
+            table = plan.run(f"SELECT v2, v1, v0, count(*) FROM ({rows}) AS clean "
+                             "GROUP BY v2, v1, v0", params).fetchall()
+            counts = {(float(z), float(x), float(y)): int(n) for z, x, y, n in table}
+    finally:
+        plan.close()
+    return Cells(counts, seen, tuple(int(v) for v in limits), n_dropped, n_filtered)

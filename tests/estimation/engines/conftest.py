@@ -107,3 +107,27 @@ def random_folder(tmp_path_factory):
     folder = tmp_path_factory.mktemp("random") / "random"
     write_partitioned(random_frame(), folder, "year")
     return folder
+
+
+@pytest.fixture(scope="module")
+def discrete_folder(tmp_path_factory):
+    """Invented discrete design (instrument of 3 levels, binary treatment and outcome) with
+    missing outcomes and a column for --where, in a hive layout of 3 × 2 files."""
+    rng = np.random.default_rng(21)
+    n = 3000
+    z = rng.integers(0, 3, n)
+    x = (rng.uniform(size=n) < 0.2 + 0.25 * z).astype(float)
+    y = (rng.uniform(size=n) < 0.3 + 0.3 * x).astype(float)
+    y[rng.choice(n, 30, replace=False)] = np.nan
+    frame = pd.DataFrame({"z": z, "x": x, "y": y, "age": rng.integers(18, 70, n),
+                          "site": rng.integers(0, 3, n)})
+    folder = tmp_path_factory.mktemp("discrete") / "discrete"
+    write_partitioned(frame, folder, "site")
+    return folder
+
+
+DISCRETE = [["--outcome", "y", "--treatment", "x", "--instrument", "z", "--reps", "49",
+             "--seed", "5", "--points", "11"],
+            ["--outcome", "y", "--treatment", "x", "--instrument", "z", "--reps", "0",
+             "--where", "age >= 30 and not y is missing"]]
+"""``sensiv discrete`` on :func:`discrete_folder`: with a bootstrap, and with a row filter."""

@@ -20,7 +20,7 @@ from sensiv.estimation import iv
 from sensiv.estimation import cluster_moments
 from sensiv.estimation.engines import dask_engine
 
-from conftest import assert_same_document, card_frame
+from conftest import DISCRETE, assert_same_document, card_frame
 
 distributed = pytest.importorskip("distributed")
 runner = CliRunner()
@@ -150,4 +150,11 @@ def test_one_way_clusters_skip_the_second_round_of_tasks(card_folder, scheduler)
     cluster_moments._LAST.clear()
     numpy_doc, dask_doc = both("fit", card_folder, CARD + DESIGNS["cluster"], scheduler)
     assert cluster_moments._LAST, "the gathered route was not taken"
+    assert_same_document(dask_doc, numpy_doc)
+
+
+@pytest.mark.parametrize("options", range(2))
+def test_discrete_equals_the_numpy_engine(discrete_folder, scheduler, options):
+    """Per-partition cell counts merged in the tree: the same document as the numpy engine."""
+    numpy_doc, dask_doc = both("discrete", discrete_folder, DISCRETE[options], scheduler)
     assert_same_document(dask_doc, numpy_doc)

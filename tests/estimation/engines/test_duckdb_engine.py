@@ -19,7 +19,7 @@ from sensiv.cli.app import app
 from sensiv.data import Spec, from_file, with_engine
 from sensiv.estimation import iv
 
-from conftest import assert_same_document, card_frame
+from conftest import DISCRETE, assert_same_document, card_frame, numbers
 
 pytest.importorskip("duckdb")
 runner = CliRunner()
@@ -158,7 +158,25 @@ def test_every_data_command_equals_the_numpy_engine(card_folder, command, extra)
     assert_same_document(duckdb_doc, numpy_doc)
 
 
-def test_discrete_refuses_other_engines(card_folder):
-    run = invoke("discrete", card_folder, "--outcome", "black", "--treatment", "smsa",
-                 "--instrument", "nearc4", "--engine", "duckdb")
-    assert run.exit_code == 2 and "--engine numpy" in run.output
+def test_discrete_counts_table_refuses_an_engine(tmp_path):
+    counts = tmp_path / "cells.csv"
+    counts.write_text("z,x,y,count\n0,0,0,5\n0,1,1,4\n1,0,0,3\n1,1,1,6\n0,0,1,2\n1,1,0,1\n")
+    run = invoke("discrete", counts, "--counts", "--outcome", "y", "--treatment", "x",
+                 "--instrument", "z", "--engine", "duckdb")
+    assert run.exit_code == 2 and "drop --engine" in run.output
+
+@pytest.mark.parametrize("options", range(2))
+def test_discrete_equals_the_numpy_engine(discrete_folder, options):
+    """The tabulation as a GROUP BY: the same counts, drops, filtered rows and bounds as the
+    numpy engine (the engines' contract, relative 1e-10)."""
+    numpy_doc, duckdb_doc = both("discrete", discrete_folder, DISCRETE[options])
+    assert_same_document(duckdb_doc, numpy_doc)
+    dropped = [v for key, v in numbers(json.loads(numpy_doc)) if key.endswith("/n_dropped")]
+    assert dropped == [30 if options == 0 else 0]
+
+
+def test_discrete_too_many_levels_is_refused_on_duckdb(discrete_folder):
+    runs = [invoke("discrete", discrete_folder, "--outcome", "age", "--treatment", "x",
+                   "--instrument", "z", "--engine", engine) for engine in ("numpy", "duckdb")]
+    assert [r.exit_code for r in runs] == [2, 2]
+    assert all("outcome 'age'" in r.output and "distinct values" in r.output for r in runs)
