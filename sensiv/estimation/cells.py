@@ -19,19 +19,15 @@ import numpy as np
 
 @dataclass(frozen=True, slots=True)
 class Cells:
-    """Rows per cell ``(z, x, y)``, the distinct values of ``y``, ``x``, ``z`` met, whether
-    counting stopped at a column over its limit, and the rows dropped and filtered."""
+    """Rows per cell ``(z, x, y)``, the distinct values of ``y``, ``x``, ``z`` met (more than
+    a column's limit where counting stopped), the limits, and the rows dropped and
+    filtered."""
 
     counts: dict
     seen: tuple[tuple[float, ...], tuple[float, ...], tuple[float, ...]]
     limits: tuple[int, int, int]
     dropped: int = 0
     filtered: int = 0
-
-    @property
-    def over(self) -> bool:
-        """Whether some column has more distinct values than its limit."""
-        return any(len(s) > limit for s, limit in zip(self.seen, self.limits))
 
     def __add__(self, other: Cells) -> Cells:
         counts = dict(self.counts)

@@ -223,8 +223,7 @@ def tabulate(source: Source) -> CountsTable:
     keys = np.array(list(found.counts), dtype=np.float64).reshape(-1, 3)
     weights = np.array(list(found.counts.values()), dtype=np.int64)
     table = _table(keys[:, 0], keys[:, 1], keys[:, 2], weights, names, found.dropped, where)
-    filtered = found.filtered
-    return replace(table, n_filtered=filtered)
+    return replace(table, n_filtered=found.filtered)
 
 
 def counts_from_frame(frame: pd.DataFrame, *, outcome: str, treatment: str, instrument: str,

@@ -150,12 +150,27 @@ def part_moments(part: Any, frames: Callable | None, spec, description: str,
     return moments, _counts(tally), (clusters, gather and not moments.n)
 
 
+def _added_counts(c1: tuple, c2: tuple) -> tuple:
+    """Two partitions' row counts (:func:`_counts`) added."""
+    missing = {k: c1[3].get(k, 0) + c2[3].get(k, 0) for k in {*c1[3], *c2[3]}}
+    return c1[0] + c2[0], c1[1] + c2[1], c1[2] + c2[2], missing
+
+
+def _finish_counts(origin, source, counts: tuple) -> None:
+    """The whole-data checks of ``source`` on the merged row counts, where the raw rows'
+    ``origin`` is files or a Dask frame (in-memory chunks were checked when they were made)."""
+    if origin is not None and origin.kind != "duckdb":
+        rows, kept, filtered, missing = counts
+        tally = Tally(source.spec, source.description)
+        tally.add(rows, kept, missing, filtered)
+        tally.finish()
+
+
 def merge_moments(left: tuple, right: tuple) -> tuple:
     (m1, c1, g1), (m2, c2, g2) = left, right
-    missing = {k: c1[3].get(k, 0) + c2[3].get(k, 0) for k in {*c1[3], *c2[3]}}
     # a partition without rows gathers nothing and leaves the other's matrices as they are
     clusters = g2 if g1[1] else g1 if g2[1] else (merged(g1[0], g2[0]), False)
-    return m1 + m2, (c1[0] + c2[0], c1[1] + c2[1], c1[2] + c2[2], missing), clusters
+    return m1 + m2, _added_counts(c1, c2), clusters
 
 
 def _tree(client: Any, leaves: list, merge: Callable) -> Any:
@@ -186,13 +201,9 @@ def moments(source, columns: Sequence[str]) -> Moments:
     remember(source, None)
     if not leaves:
         return empty_moments(columns)
-    total, (rows, kept, filtered, missing), (clusters, _) = _tree(client, leaves,
-                                                                  merge_moments)
+    total, counts, (clusters, _) = _tree(client, leaves, merge_moments)
     remember(source, clusters)
-    tally = Tally(source.spec, source.description)
-    if base.origin is not None and base.origin.kind != "duckdb":  # files, Dask frames
-        tally.add(rows, kept, missing, filtered)
-        tally.finish()
+    _finish_counts(base.origin, source, counts)
     return total
 
 
@@ -272,8 +283,7 @@ def part_cells(part: Any, frames: Callable | None, spec, description: str,
 
 def merge_cells(left: tuple, right: tuple) -> tuple:
     (a, c1), (b, c2) = left, right
-    missing = {k: c1[3].get(k, 0) + c2[3].get(k, 0) for k in {*c1[3], *c2[3]}}
-    return a + b, (c1[0] + c2[0], c1[1] + c2[1], c1[2] + c2[2], missing)
+    return a + b, _added_counts(c1, c2)
 
 
 def cells(source, limits: Sequence[int]) -> Cells:
@@ -284,11 +294,8 @@ def cells(source, limits: Sequence[int]) -> Cells:
                             pure=False) for part, frames in _parts(source, client)]
     if not leaves:
         return Cells({}, ((), (), ()), limits)
-    found, (rows, kept, filtered, missing) = _tree(client, leaves, merge_cells)
-    if source.origin is not None and source.origin.kind != "duckdb":  # files, Dask frames
-        tally = Tally(source.spec, source.description)
-        tally.add(rows, kept, missing, filtered)
-        tally.finish()
+    found, counts = _tree(client, leaves, merge_cells)
+    _finish_counts(source.origin, source, counts)
     return found
 
 
