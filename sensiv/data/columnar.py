@@ -120,7 +120,7 @@ def clean_arrays(arrays: Sequence[np.ndarray], spec: Spec, where: str, first_row
     for role, name in roles(spec):
         column = columns[name]
         mask = None if plainly_finite(column) else checked_column(column, role, name, where,
-                                                            first_row)
+                                                                  first_row)
         missing[name] = 0 if mask is None else int(mask.sum())
         if mask is not None:
             drop = mask if drop is None else drop | mask

@@ -38,6 +38,11 @@ class Cells:
                      self.filtered + other.filtered)
 
 
+def beyond_limits(seen: Sequence, limits: Sequence[int]) -> bool:
+    """Whether some column's distinct values ``seen`` outnumber its limit."""
+    return any(len(s) > limit for s, limit in zip(seen, limits))
+
+
 def count_cells(chunks: Iterable, limits: Sequence[int]) -> Cells:
     """:class:`Cells` of ``chunks`` (objects with ``values``, ``n_dropped``, ``n_filtered``),
     ``limits`` the largest number of levels of ``y``, ``x`` and ``z``."""
@@ -51,7 +56,7 @@ def count_cells(chunks: Iterable, limits: Sequence[int]) -> Cells:
         values = chunk.values[:, :3]
         for j in range(3):
             found[j].update(np.unique(values[:, j]).tolist())
-        if any(len(s) > limit for s, limit in zip(found, limits)):
+        if beyond_limits(found, limits):
             break
         rows, counts = np.unique(values, axis=0, return_counts=True)
         for (y, x, z), count in zip(rows.tolist(), counts.tolist()):

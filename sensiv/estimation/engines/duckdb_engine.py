@@ -34,7 +34,7 @@ from sensiv.data.spec import cluster_columns
 from sensiv.estimation.absorb_view import GroupStats
 from sensiv.estimation.cluster_moments import (ClusterMoments, cluster_scores, recall, remember,
                                                scores_from, symmetric)
-from sensiv.estimation.cells import Cells
+from sensiv.estimation.cells import Cells, beyond_limits
 from sensiv.estimation.cluster_ways import combine_ways
 from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, quick_row,
                                                    quick_verdict, scan_parts, sums_verdict)
@@ -338,7 +338,7 @@ def cells(source, limits: Sequence[int]) -> Cells:
             f"SELECT DISTINCT v{j} FROM ({rows}) AS clean LIMIT {int(limit) + 1}",
             params).fetchall())) for j, limit in enumerate(limits))
         counts = {}
-        if not any(len(s) > limit for s, limit in zip(seen, limits)):
+        if not beyond_limits(seen, limits):
             table = plan.run(f"SELECT v2, v1, v0, count(*) FROM ({rows}) AS clean "
                              "GROUP BY v2, v1, v0", params).fetchall()
             counts = {(float(z), float(x), float(y)): int(n) for z, x, y, n in table}
