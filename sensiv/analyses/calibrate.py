@@ -18,7 +18,10 @@ def run(context, options) -> calibrate.Calibration:
         if not (isinstance(columns, list) and all(isinstance(c, str) for c in columns)):
             raise InputError(f"groups.{name} of study '{context.study}' must be a list of "
                              "column names")
-    data = context.frame if o.get("no_first_stage_group") else context.source
+    # the subgroup is read again from the rows: the frame of a file read into memory, else
+    # the source of the files or DuckDB table (on the study's engine)
+    subgroup = o.get("no_first_stage_group") and context.frame is not None
+    data = context.frame if subgroup else context.source
     return calibrate.calibrate(data, context.spec, groups=groups or None,
                                no_first_stage_group=o.get("no_first_stage_group"),
                                **context.common)

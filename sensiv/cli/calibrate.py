@@ -73,11 +73,6 @@ def calibrate(
     iv.check_options(se or ("cluster" if cluster else "robust"), cluster, level)
     put_in_force(label, used_columns(spec))
     groups = calibration.parse_groups(group or [])
-    if engine != "numpy" and no_first_stage_group is not None:
-        from sensiv.core.errors import InputError
-
-        raise InputError(f"--no-first-stage-group selects the subgroup's rows in memory, which "
-                         f"--engine {engine} does not do yet; use --engine numpy for it")
     if engine != "numpy" or scheduler is not None:
         data = engine_source(data, spec, engine, scheduler)
     result = calibration.calibrate(data, spec, groups=groups,

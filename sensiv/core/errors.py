@@ -12,6 +12,15 @@ class InputError(ValueError):
     """Bad input: the message names the problem, the offending value and the fix."""
 
 
+class ConstantControlError(InputError):
+    """A text control takes a single value in the rows kept (``column`` names it); callers
+    that select a subgroup catch it to leave the control out there."""
+
+    def __init__(self, message: str, column: str) -> None:
+        super().__init__(message)
+        self.column = column
+
+
 class WeakInstrumentWarning(UserWarning):
     """The first stage is weak: Wald intervals and tests may be badly sized."""
 

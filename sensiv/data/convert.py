@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from sensiv.core.errors import InputError
+from sensiv.core.errors import ConstantControlError, InputError
 from sensiv.core.limits import MAX_MAGNITUDE
 from sensiv.data.spec import MAX_SUGGESTIONS, Spec, roles, used_columns
 
@@ -272,10 +272,9 @@ def scan_levels(frames: Callable[[], Iterator[pd.DataFrame]], spec: Spec, text: 
     for name in text:
         levels[name] = level_order(found[name], name in spec.categorical)
         if len(levels[name]) < 2:
-            raise InputError(
+            raise ConstantControlError(
                 f"control {name!r} in {description} takes the single value "
                 f"{levels[name][0]!r} in the {tally.kept} rows kept after dropping "
                 f"{tally.rows - tally.kept} rows with missing values; a constant control "
-                "carries no information: remove it from the controls"
-            )
+                "carries no information: remove it from the controls", name)
     return levels

@@ -59,6 +59,8 @@ class Origin:
     base: str | None = None
     frame: Any = None
     """The ``dask.dataframe.DataFrame`` of a source built by :func:`from_dask`."""
+    location: str | None = None
+    """DATA as given (a file, a directory or glob, ``file.duckdb::table``), to read it again."""
 
 
 def is_dataset(path: Any) -> bool:
@@ -181,6 +183,29 @@ def partition_frames(source: Source) -> list[Callable[[], Iterator[pd.DataFrame]
             for path in origin.paths]
 
 
+def column_frames(origin: Origin, columns: list[str], rows: int
+                  ) -> list[Callable[[], Iterator[pd.DataFrame]]]:
+    """One factory of frame iterators over ``columns`` per partition of ``origin`` (a file, a
+    DuckDB table, a partition of a Dask DataFrame), whatever the columns a source uses."""
+    if origin.kind == "duckdb":
+        return [_table_reader(Path(origin.paths[0]), origin.table, columns, rows)]
+    if origin.kind == "dask":
+        part = origin.frame[columns]
+        return [lambda k=k: iter([part.get_partition(k).compute()])
+                for k in range(part.npartitions)]
+    return [_dataset_reader([path], origin.kind, origin.base, columns, rows)
+            for path in origin.paths]
+
+
+def origin_columns(origin: Origin) -> list[str]:
+    """The column names of the data set at ``origin``."""
+    if origin.kind == "duckdb":
+        return _table_columns(Path(origin.paths[0]), origin.table)
+    if origin.kind == "dask":
+        return [str(c) for c in origin.frame.columns]
+    return list(_arrow_dataset(list(origin.paths), origin.kind, origin.base).schema.names)
+
+
 def _dataset_reader(files: list[str], fmt: str, base: str | None, used: list[str], rows: int
                     ) -> Callable[[], Iterator[pd.DataFrame]]:
     def frames() -> Iterator[pd.DataFrame]:
@@ -299,7 +324,7 @@ def from_dataset(path: Any, spec: Spec, *, chunk_rows: int) -> Source:
     if "::" in text:
         database, table = _duckdb_table(text)
         available = _table_columns(database, table)
-        origin = Origin("duckdb", (str(database),), table)
+        origin = Origin("duckdb", (str(database),), table, location=text)
         description = f"'{database.name}::{table}'"
 
         def make_frames(labels: list[str]) -> Callable[[], Iterator[pd.DataFrame]]:
@@ -312,7 +337,7 @@ def from_dataset(path: Any, spec: Spec, *, chunk_rows: int) -> Source:
         available = list(dataset.schema.names)
         hive = any("=" in part for f in files
                    for part in Path(os.path.relpath(f, base or ".")).parts)
-        origin = Origin(fmt, tuple(files), None, hive, base)
+        origin = Origin(fmt, tuple(files), None, hive, base, location=text)
         description = f"'{text}' ({len(files)} file{'s' if len(files) > 1 else ''})"
 
         def make_frames(labels: list[str]) -> Callable[[], Iterator[pd.DataFrame]]:

@@ -344,7 +344,8 @@ def from_file(path: str | os.PathLike[str], spec: Spec, *,
     columns = _parquet_columns(resolved, spec, rows) if fmt == "parquet" else None
     source = build_source(spec, resolved.name, available, samples, make_frames, eager=False,
                           chunk_rows=rows, columns=columns, ahead=columns is not None)
-    origin = Origin(fmt, (str(resolved),)) if fmt in ("csv", "parquet") else None
+    origin = (Origin(fmt, (str(resolved),), location=str(resolved))
+              if fmt in ("csv", "parquet") else None)
     return dataclasses.replace(source, origin=origin, chunk_rows=rows)
 
 

@@ -248,6 +248,20 @@ def parse_filter(text: str) -> Node:
     return node
 
 
+def column_term(name: str) -> str:
+    """A column name as a filter writes it: plain, or in backquotes when it is not a plain
+    identifier or is a keyword.
+
+    >>> column_term("age"), column_term("birth year"), column_term("in")
+    ('age', '`birth year`', '`in`')
+    """
+    if "`" in name:
+        raise InputError(f"column {name!r} has a backquote in its name, which a row filter "
+                         "cannot write; rename the column")
+    plain = re.fullmatch(r"[A-Za-z_][A-Za-z0-9_.]*", name) and name not in KEYWORDS
+    return name if plain else f"`{name}`"
+
+
 def leaves(node: Node) -> list[Compare | Member | Missing]:
     """The comparisons of a tree, left to right."""
     if isinstance(node, Not):

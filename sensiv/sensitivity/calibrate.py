@@ -31,13 +31,15 @@ set of moments and holds the :class:`Calibration` result.
 
 from __future__ import annotations
 
+import os
 import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
 from sensiv.core.errors import FewClustersWarning, InputError
 from sensiv.core.results import Presentable, describe, format_number, json_number
-from sensiv.data import read_table
+from sensiv.data import from_file, read_table
+from sensiv.data.datasets import from_dask, is_dask_frame, is_dataset
 from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.absorb import Absorption
@@ -47,7 +49,7 @@ from sensiv.estimation.passes import moments_of
 from sensiv.sensitivity.yardsticks import (Yardstick, yardstick_groups, leave_one_out_yardsticks,
                                            instrument_coefficients)
 from sensiv.sensitivity.direct_sets import Scale, scale_from_moments
-from sensiv.sensitivity.zero_first_stage import (ZeroFirstStage, check_role, subgroup_mask,
+from sensiv.sensitivity.zero_first_stage import (ZeroFirstStage, check_role, marker_counts,
                                                  zero_first_stage)
 
 CAUTION = ("Caution: these calibrations are reference magnitudes, not estimates of the true "
@@ -201,8 +203,9 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     Parameters
     ----------
     data : sensiv.data source, pandas.DataFrame or path
-        With ``no_first_stage_group`` a DataFrame or a path (the subgroup's rows are selected
-        from the frame, so a prepared source does not suffice).
+        With ``no_first_stage_group`` a DataFrame, a path, a Dask DataFrame or a source read
+        from files or a DuckDB table (the subgroup's rows are selected again where they live,
+        so an in-memory source does not suffice).
     spec : sensiv.data.Spec, optional
         Required unless ``data`` is a source.
     groups : mapping of str to sequence of str, optional
@@ -231,15 +234,16 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     >>> b.name, round(b.implied_direct, 3)
     ('w', 0.784)
     """
-    frame, source = _source(data, spec, no_first_stage_group, chunk_rows)
+    rows, source = _source(data, spec, no_first_stage_group, chunk_rows)
     spec = source.spec
     layout = source.layout
     se = se or iv.default_se(spec)
     iv.check_options(se, spec.cluster, confidence_level)
     named = yardstick_groups(spec, layout, groups)
-    if frame is not None:  # column checks before any estimation
+    counts = None
+    if rows is not None:  # column checks before any estimation
         check_role(spec, no_first_stage_group)
-        subgroup_mask(frame, no_first_stage_group)
+        counts = marker_counts(rows, no_first_stage_group)
 
     moments = moments_of(source, layout.columns)
     absorption = getattr(source, "absorption", None)
@@ -251,10 +255,10 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     yardsticks = leave_one_out_yardsticks(moments, layout, named, full, beta, scale)
     notes = _calibration_notes(source, se, named)
     zfs = None
-    if frame is not None:
-        zfs = zero_first_stage(frame, spec, no_first_stage_group, se=se,
+    if rows is not None:
+        zfs = zero_first_stage(rows, spec, no_first_stage_group, se=se,
                                confidence_level=confidence_level, small=small, scale=scale,
-                               beta=beta)
+                               beta=beta, counts=counts)
         zfs_notes, warning = zero_first_stage_notes(zfs, confidence_level)
         notes += zfs_notes
         if warning is not None:
@@ -269,8 +273,10 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
 
 
 def _source(data, spec, no_first_stage_group: str | None, chunk_rows: int | None):
-    """``(frame, source)``: with a subgroup the rows must be at hand as a DataFrame (read from
-    a path if need be); otherwise ``frame`` is ``None`` and any source will do."""
+    """``(rows, source)``: with a subgroup ``rows`` is where its rows are selected from (a
+    DataFrame, read from a path if need be, or a source that can read its files, DuckDB table
+    or Dask DataFrame again on its engine); otherwise ``rows`` is ``None`` and any source will
+    do."""
     if no_first_stage_group is None:
         return None, iv.as_source(data, spec, chunk_rows=chunk_rows)
     import pandas as pd
@@ -278,10 +284,16 @@ def _source(data, spec, no_first_stage_group: str | None, chunk_rows: int | None
     if not isinstance(no_first_stage_group, str) or not no_first_stage_group:
         raise InputError(f"--no-first-stage-group must name a column; got "
                          f"{no_first_stage_group!r}")
+    if is_dask_frame(data):
+        data = from_dask(data, spec)
+    elif isinstance(data, (str, os.PathLike)) and is_dataset(data):
+        data = from_file(data, spec, **({"chunk_rows": chunk_rows} if chunk_rows else {}))
     if hasattr(data, "chunks"):
-        raise InputError("a zero-first-stage subgroup is selected from the rows of a "
-                         "DataFrame or file; pass the DataFrame or the path instead of a "
-                         "prepared source")
+        if data.origin is None:
+            raise InputError("a zero-first-stage subgroup is selected from the rows of a "
+                             "DataFrame, files or a DuckDB table; pass the DataFrame or the "
+                             "path instead of a prepared source")
+        return data, iv.as_source(data)
     frame = data if isinstance(data, pd.DataFrame) else read_table(data)
     return frame, iv.as_source(frame, spec)
 

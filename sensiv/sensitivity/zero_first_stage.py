@@ -5,18 +5,24 @@ collapses to ``ρ = γ``, so the subgroup's reduced-form coefficient (with its s
 estimates the direct effect; it is offered as a normal prior for ``sensiv prior`` and as a
 range for ``sensiv sweep``.  This module selects and checks the subgroup, fits its first stage
 and reduced form from moments, and reports the estimate with its premise check.
+
+The subgroup is a row filter, ``(where) and marker == 1``, on the same data and engine
+(:mod:`sensiv.data.subsets`): a DataFrame in memory, or files and DuckDB tables read again by
+the numpy, DuckDB or Dask engine; its marker is counted on that engine first.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
-from sensiv.core.errors import InputError
+from sensiv.core.errors import ConstantControlError, InputError
 from sensiv.core.results import Interval, json_number
-from sensiv.data import from_frame
+from sensiv.data.datasets import origin_columns
 from sensiv.data.spec import cluster_columns
+from sensiv.data.subsets import IndicatorCounts, count_indicator, marked, reread
 from sensiv.estimation import distributions as dist
 from sensiv.estimation.absorbed_source import absorb_source
 from sensiv.estimation.covariance import check_clusters, combine_two_way, normalise_weights
@@ -24,7 +30,7 @@ from sensiv.estimation.design import CONSTANT, Design
 from sensiv.estimation.first_stage import first_stage_covariance
 from sensiv.estimation import iv, linalg
 from sensiv.estimation.moments import Moments, ScoreBlock
-from sensiv.estimation.passes import moments_of, scores_of
+from sensiv.estimation.passes import indicator_counts_of, moments_of, scores_of
 from sensiv.sensitivity.yardsticks import (OPTION_DIGITS, design_for, outward, partialled,
                                            range_option)
 from sensiv.sensitivity.direct_sets import Scale
@@ -114,15 +120,9 @@ class ZeroFirstStage:
         }
 
 
-def _is_text(series) -> bool:
-    import pandas as pd
-
-    api = pd.api.types
-    return not (api.is_bool_dtype(series.dtype) or api.is_numeric_dtype(series.dtype))
-
-
-def subgroup_mask(frame, column: str) -> tuple[np.ndarray, int]:
-    """Rows with ``column == 1`` and the count of rows where ``column`` is missing.
+def marker_counts(data, column: str) -> IndicatorCounts:
+    """The counts of the subgroup marker ``column`` over every row of ``data`` (a DataFrame, or
+    a source read from files, a DuckDB table or a Dask DataFrame, counted on its engine).
 
     Raises
     ------
@@ -130,32 +130,28 @@ def subgroup_mask(frame, column: str) -> tuple[np.ndarray, int]:
         The column is absent, not numeric or boolean, or takes values other than 0 and 1, or
         no row has the value 1.
     """
-    import pandas as pd
-
-    if column not in frame.columns:
-        close = [str(c) for c in frame.columns if str(c).lower() == column.lower()]
+    is_source = hasattr(data, "chunks")
+    available = (origin_columns(data.origin) if is_source else
+                 [str(c) for c in data.columns])
+    if column not in available:
+        close = [c for c in available if c.lower() == column.lower()]
         hint = f"; did you mean {close[0]!r}?" if close else ""
         raise InputError(f"--no-first-stage-group column {column!r} not found in the data"
                          f"{hint}; name a 0/1 column that marks the subgroup")
-    series = frame[column]
-    missing = series.isna().to_numpy()
-    if _is_text(series):
-        example = series[~series.isna()].iloc[0] if (~missing).any() else None
+    counts = indicator_counts_of(data, column) if is_source else count_indicator(data[column])
+    if counts.text:
         raise InputError(f"--no-first-stage-group column {column!r} is not binary: it holds "
-                         f"text (e.g. {example!r}); code the subgroup as 1 and every other "
-                         "row as 0")
-    values = pd.to_numeric(series[~missing]).to_numpy(dtype=float)
-    bad = values[(values != 0.0) & (values != 1.0)]
-    if bad.size:
+                         f"text (e.g. {counts.least_text!r}); code the subgroup as 1 and every "
+                         "other row as 0")
+    if counts.others:
         raise InputError(f"--no-first-stage-group column {column!r} is not binary: it holds "
-                         f"{bad.size} value(s) other than 0 and 1 (e.g. {bad[0]:g}); code the "
-                         "subgroup as 1 and every other row as 0")
-    mask = np.zeros(len(frame), dtype=bool)
-    mask[~missing] = values == 1.0
-    if not mask.any():
+                         f"{counts.others} value(s) other than 0 and 1 (e.g. "
+                         f"{counts.least_other:g}); code the subgroup as 1 and every other row "
+                         "as 0")
+    if not counts.ones:
         raise InputError(f"--no-first-stage-group column {column!r} has no row equal to 1, so "
                          "the subgroup is empty; mark the subgroup's rows with 1")
-    return mask, int(missing.sum())
+    return counts
 
 
 def check_role(spec, column: str) -> None:
@@ -169,20 +165,25 @@ def check_role(spec, column: str) -> None:
                          "name a separate 0/1 column that marks the subgroup")
 
 
-def _single_level_controls(sub, spec) -> list[str]:
-    """Text controls with fewer than two levels among the subgroup's complete rows."""
-    used = [spec.outcome, *spec.treatments, *spec.instruments, *spec.controls,
-            *cluster_columns(spec), *([spec.weight] if spec.weight is not None else [])]
-    block = sub[used]
-    keep = block.notna().all(axis=1).to_numpy().copy()
-    for name in used:
-        if _is_text(block[name]):
-            keep &= (block[name].astype(str) != "").to_numpy()
-    return [c for c in spec.controls
-            if _is_text(block[c]) and block.loc[keep, c].astype(str).nunique() < 2]
+def _subgroup_source(data, spec, column: str, where: str) -> tuple[Any, list[str]]:
+    """The subgroup's rows as a source on ``data``'s engine (its row filter and ``column ==
+    1``, with a one-way absorbed fixed effect swept out), and the controls left out there: the
+    marker and every text control with a single level in the subgroup's complete rows."""
+    dropped = [c for c in spec.controls if c == column]
+    while True:
+        try:
+            return absorb_source(reread(data, marked(spec, column, tuple(dropped)))), dropped
+        except ConstantControlError as exc:
+            if exc.column not in spec.controls or exc.column in dropped:
+                raise InputError(f"in {where}: {exc}") from exc
+            dropped.append(exc.column)
+        except InputError as exc:
+            raise InputError(f"in {where}: {exc}") from exc
 
-def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: float,
-                     small: bool, scale: Scale, beta: np.ndarray) -> ZeroFirstStage:
+
+def zero_first_stage(data, spec, column: str, *, se: str, confidence_level: float,
+                     small: bool, scale: Scale, beta: np.ndarray,
+                     counts: IndicatorCounts | None = None) -> ZeroFirstStage:
     r"""First stage and reduced form of the instruments within the subgroup ``column == 1``.
 
     .. math::
@@ -202,16 +203,9 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
         within the subgroup.
     """
     check_role(spec, column)
-    mask, n_missing = subgroup_mask(frame, column)
-    sub = frame.loc[mask]
-    where = f"the subgroup {column} == 1 ({int(mask.sum())} rows)"
-    dropped = [c for c in spec.controls if c == column]
-    dropped += _single_level_controls(sub, spec)
-    sub_spec = replace(spec, controls=tuple(c for c in spec.controls if c not in dropped))
-    try:
-        source = absorb_source(from_frame(sub, sub_spec))
-    except InputError as exc:
-        raise InputError(f"in {where}: {exc}") from exc
+    counts = counts if counts is not None else marker_counts(data, column)
+    where = f"the subgroup {column} == 1 ({counts.ones} rows)"
+    source, dropped = _subgroup_source(data, spec, column, where)
     layout = source.layout
     moments = moments_of(source, layout.columns)
     k_z = len(layout.instruments)
@@ -247,7 +241,8 @@ def zero_first_stage(frame, spec, column: str, *, se: str, confidence_level: flo
     intervals = tuple(Interval(float(d - critical * s), float(d + critical * s))
                       for d, s in zip(direct, se_direct))
     return ZeroFirstStage(
-        group=column, n=moments.n, n_dropped=moments.n_dropped, n_marker_missing=n_missing,
+        group=column, n=moments.n, n_dropped=moments.n_dropped,
+        n_marker_missing=counts.missing,
         instruments=layout.instruments, treatments=layout.treatments, se_type=se,
         confidence_level=confidence_level, critical=critical, first_stage=fs_coef,
         first_stage_f=fs_f, first_stage_p_value=fs_p, direct=direct, covariance=cov,

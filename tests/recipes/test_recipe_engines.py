@@ -59,6 +59,36 @@ def test_recipe_with_the_duckdb_engine_on_a_partitioned_folder(tmp_path):
             assert math.isclose(x, y, rel_tol=1e-10)
 
 
+SUBGROUP = """\
+[[study.analysis]]
+kind = "calibrate"
+no_first_stage_group = "clay"
+"""
+
+
+@pytest.mark.filterwarnings("ignore:the first-stage F in the subgroup")
+def test_recipe_zero_first_stage_subgroup_on_the_duckdb_engine(tmp_path):
+    """The subgroup of a calibrate analysis is read again on the study's engine (an invented
+    0/1 marker of clay soils): the same estimate as the in-memory route of a CSV file."""
+    frame = pd.read_csv(ROOT / "examples" / "irrigation.csv")
+    frame["clay"] = (frame["soil"] == "clay").astype(int)
+    frame.to_csv(tmp_path / "clay.csv", index=False)
+    parts = tmp_path / "parts"
+    parts.mkdir()
+    for k, start in enumerate(range(0, len(frame), 150)):
+        frame.iloc[start:start + 150].to_parquet(parts / f"p{k}.parquet", index=False)
+    results = []
+    for path, engine in (("clay.csv", ""), ("parts", 'engine = "duckdb"')):
+        recipe = written(tmp_path, path, engine)
+        recipe.write_text(recipe.read_text() + SUBGROUP)
+        results.append(run_recipe(recipe).runs[1].result.zero_first_stage.to_dict())
+    got, want = results
+    assert got["n"] == want["n"] == int(frame["clay"].sum())
+    assert got["controls_dropped"] == want["controls_dropped"] == ["soil"]
+    for key in ("direct", "se", "contamination"):
+        assert got[key]["height_m"] == pytest.approx(want[key]["height_m"], rel=1e-10)
+
+
 def test_recipe_with_an_unknown_engine_names_the_key(tmp_path):
     (tmp_path / "irrigation.csv").write_bytes((ROOT / "examples" / "irrigation.csv").read_bytes())
     with pytest.raises(InputError, match="engine 'spark'.*numpy, duckdb, dask"):

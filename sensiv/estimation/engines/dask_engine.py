@@ -33,9 +33,10 @@ import numpy as np
 from sensiv.core.errors import InputError
 from sensiv.core.progress import Progress
 from sensiv.data.convert import Tally
-from sensiv.data.datasets import missing_extra, partition_frames
+from sensiv.data.datasets import column_frames, missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
 from sensiv.data.spec import cluster_columns, read_columns
+from sensiv.data.subsets import IndicatorCounts, count_indicator
 from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats, demean_chunks
 from sensiv.estimation.cluster_moments import (ClusterMoments, Gatherer, gathering, merged,
                                                recall, remember, scores_from)
@@ -270,6 +271,26 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
     ways = sorted({way for way, _ in merged})
     return combine_ways([{b.name: merged[(way, b.name)].to_numpy(dtype=np.float64)
                           for b in blocks} for way in ways])
+
+
+# --------------------------------------------------------------------------- marker counts
+def part_indicator(frames: Any, column: str) -> IndicatorCounts:
+    """Task: the counts of a 0/1 column in one partition (a frame, or a factory of them)."""
+    if hasattr(frames, "columns"):           # one partition of a Dask DataFrame
+        return count_indicator(frames[column])
+    return sum((count_indicator(frame[column]) for frame in frames()), IndicatorCounts())
+
+
+def indicator_counts(source, column: str) -> IndicatorCounts:
+    """The counts of a 0/1 marker column over every row, per partition on the cluster."""
+    client = client_of(source.scheduler)
+    origin = source.origin
+    if origin.kind == "dask":
+        parts = client.compute(origin.frame[[column]].to_delayed())
+    else:
+        parts = column_frames(origin, [column], source.chunk_rows)
+    leaves = [client.submit(part_indicator, part, column, pure=False) for part in parts]
+    return _tree(client, leaves, IndicatorCounts.__add__)
 
 
 # --------------------------------------------------------------------------- discrete cells

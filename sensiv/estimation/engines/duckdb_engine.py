@@ -29,6 +29,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from sensiv.core.errors import InputError
 from sensiv.data.datasets import quoted
 from sensiv.data.spec import cluster_columns
 from sensiv.estimation.absorb_view import GroupStats
@@ -36,9 +37,11 @@ from sensiv.estimation.cluster_moments import (ClusterMoments, cluster_scores, r
                                                scores_from, symmetric)
 from sensiv.estimation.cells import Cells, beyond_limits
 from sensiv.estimation.cluster_ways import combine_ways
-from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, quick_row,
-                                                   quick_verdict, scan_parts, sums_verdict)
-from sensiv.estimation.engines.duckdb_sql import Query, linear
+from sensiv.data.subsets import IndicatorCounts
+from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, duckdb_module,
+                                                   open_relation, quick_row, quick_verdict,
+                                                   scan_parts, sums_verdict)
+from sensiv.estimation.engines.duckdb_sql import Query, is_numeric, linear, missing, number
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums
 
 SAMPLE_ROWS = 65_536
@@ -345,3 +348,31 @@ def cells(source, limits: Sequence[int]) -> Cells:
     finally:
         plan.close()
     return Cells(counts, seen, tuple(int(v) for v in limits), n_dropped, n_filtered)
+
+
+def indicator_counts(source, column: str) -> IndicatorCounts:
+    """The counts of a 0/1 marker column over every row, in one query (the pandas kernel's
+    :func:`~sensiv.data.subsets.count_indicator` rules: NULL and NaN missing, text refused)."""
+    duckdb = duckdb_module()
+    connection, relation, params = open_relation(source)
+    name = quoted(column)
+    try:
+        (kind,), = connection.execute(f"SELECT column_type FROM (DESCRIBE SELECT {name} FROM "
+                                      f"{relation})", params).fetchall()
+        if not is_numeric(kind):
+            rows, present, least = connection.execute(
+                f"SELECT count(*), count({name}), min(CAST({name} AS VARCHAR)) FROM {relation}",
+                params).fetchone()
+            return IndicatorCounts(rows, rows - present, 0, present, None, True, least)
+        value, absent = number(column), missing(column, True)
+        other = f"NOT {absent} AND {value} <> 0 AND {value} <> 1"
+        rows, gone, ones, others, least = connection.execute(
+            f"SELECT count(*), count(*) FILTER (WHERE {absent}), count(*) FILTER (WHERE NOT "
+            f"{absent} AND {value} = 1), count(*) FILTER (WHERE {other}), min({value}) FILTER "
+            f"(WHERE {other}) FROM {relation}", params).fetchone()
+    except duckdb.Error as exc:
+        raise InputError(f"DuckDB could not read {source.description}: {exc}; check that every "
+                         "file is complete and valid, or choose --engine numpy") from exc
+    finally:
+        connection.close()
+    return IndicatorCounts(rows, gone, ones, others, None if least is None else float(least))

@@ -31,7 +31,7 @@ def duckdb_module() -> Any:
     return duckdb
 
 
-def _relation(source) -> tuple[Any, str, list]:
+def open_relation(source) -> tuple[Any, str, list]:
     """A connection, the FROM clause and its parameters for the source's raw rows."""
     duckdb = duckdb_module()
     origin = source.origin
@@ -55,7 +55,7 @@ class Plan:
         self.view = source if isinstance(source, GroupAbsorbed) else None
         source = source.base if self.view is not None else source
         self.source = source
-        self.connection, relation, params = _relation(source)
+        self.connection, relation, params = open_relation(source)
         spec = source.spec
         used = read_columns(spec)
         listed = ", ".join(quoted(c) for c in used)

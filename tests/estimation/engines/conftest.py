@@ -96,6 +96,20 @@ def assert_same_document(got: str, want: str, rel: float = REL, floor: float = 1
 
 
 @pytest.fixture(scope="module")
+def scheduler():
+    """A two-worker local Dask cluster in processes, started for one test module (no external
+    service), and its address."""
+    distributed = pytest.importorskip("distributed")
+    from sensiv.estimation.engines import dask_engine
+
+    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                       dashboard_address=None)
+    yield cluster.scheduler_address
+    dask_engine.close_clients()
+    cluster.close()
+
+
+@pytest.fixture(scope="module")
 def card_folder(tmp_path_factory):
     folder = tmp_path_factory.mktemp("card") / "card"
     write_partitioned(card_frame(), folder, "south66")

@@ -37,15 +37,6 @@ DESIGNS = {
 }
 
 
-@pytest.fixture(scope="module")
-def scheduler():
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       dashboard_address=None)
-    yield cluster.scheduler_address
-    dask_engine.close_clients()
-    cluster.close()
-
-
 def both(command, folder, options, scheduler):
     runs = [runner.invoke(app, [command, str(folder), *options, "--json", *engine])
             for engine in (["--engine", "numpy"],

@@ -18,12 +18,11 @@ import pytest
 from typer.testing import CliRunner
 
 from sensiv.cli.app import app
-from sensiv.estimation.engines import dask_engine
 
 from conftest import assert_same_document, card_frame, write_partitioned
 
 pytest.importorskip("duckdb")
-distributed = pytest.importorskip("distributed")
+pytest.importorskip("distributed")
 runner = CliRunner()
 
 CARD = ["--outcome", "lwage", "--treatment", "educ", "--instrument", "nearc4",
@@ -52,15 +51,6 @@ def area_folder(tmp_path_factory):
     folder = tmp_path_factory.mktemp("card_area") / "card"
     write_partitioned(frame, folder, "south66")
     return folder
-
-
-@pytest.fixture(scope="module")
-def scheduler():
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       dashboard_address=None)
-    yield cluster.scheduler_address
-    dask_engine.close_clients()
-    cluster.close()
 
 
 def runs(command, folder, options, scheduler):
