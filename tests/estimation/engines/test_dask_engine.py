@@ -149,3 +149,18 @@ def test_discrete_equals_the_numpy_engine(discrete_folder, scheduler, options):
     """Per-partition cell counts merged in the tree: the same document as the numpy engine."""
     numpy_doc, dask_doc = both("discrete", discrete_folder, DISCRETE[options], scheduler)
     assert_same_document(dask_doc, numpy_doc)
+
+
+def test_corrupt_partition_file_names_the_file(tmp_path, card_folder, scheduler):
+    """Issue's fault list: a truncated partition file is exit 2 naming the file, read on a
+    worker (common practice, no source)."""
+    import shutil
+
+    folder = tmp_path / "card"
+    shutil.copytree(card_folder, folder)
+    bad = sorted(folder.rglob("*.parquet"))[-1]
+    bad.write_bytes(bad.read_bytes()[: len(bad.read_bytes()) // 3])
+    run = runner.invoke(app, ["fit", str(folder), *CARD, "--engine", "dask", "--scheduler",
+                              scheduler])
+    assert run.exit_code == 2, run.output
+    assert bad.name in run.output and "Traceback" not in run.output
