@@ -115,7 +115,7 @@ def demean_chunks(chunks: Iterable[Chunk], stream: Stream, effect: str, descript
 
 class LevelCodes:
     """Codes of a fixed effect's levels met in successive chunks, consecutive in the order of
-    first appearance (as :class:`sensiv.estimation.moments.LabelCodes`), found by one hash
+    first appearance (as :class:`sensiv.estimation.label_codes.LabelCodes`), found by one hash
     look-up of each chunk's distinct labels among the known ones: no Python loop over the
     levels, which a fixed effect of 100,000 levels met in every chunk would cost."""
 

@@ -28,8 +28,8 @@ from sensiv.data.source import Chunk, Layout
 from sensiv.estimation import absorb as fe
 from sensiv.estimation.absorb_view import (GroupAbsorbed, LevelCodes, Stream, apply_drops,
                                            demean_chunks, group_absorbed, model_roles, refusal)
-from sensiv.estimation.moments import (LabelCodes, Moments, chunk_moments, cluster_label_columns,
-                                      empty_moments)
+from sensiv.estimation.label_codes import LabelCodes, cluster_label_columns
+from sensiv.estimation.moments import BLOCK_ROWS, Moments, chunk_moments, empty_moments
 from sensiv.estimation.passes import engine_of, group_stats_of
 
 
@@ -230,8 +230,8 @@ def _first_pass(source) -> tuple:
     n_chunks = 0
     for chunk in source.chunks():
         n_chunks += 1
-        if scratch is None or scratch.shape != chunk.values.shape:
-            scratch = np.empty(chunk.values.shape, order="F")
+        if scratch is None or scratch.shape[1] != chunk.values.shape[1]:
+            scratch = np.empty((BLOCK_ROWS, chunk.values.shape[1]), order="F")
         raw = raw + chunk_moments(raw.columns, chunk.values, chunk.weights, chunk.n_dropped,
                                   chunk.n_filtered, scratch)
         if chunk.values.shape[0] == 0:

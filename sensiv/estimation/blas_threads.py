@@ -25,6 +25,8 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from typing import Any, TypeVar
 
+import numpy as np
+
 Result = TypeVar("Result")
 
 _NAMES = ("scipy_openblas_{}_num_threads64_", "scipy_openblas_{}_num_threads",
@@ -90,6 +92,16 @@ def one_blas_thread() -> Iterator[None]:
                 for put, count in _state["saved"]:
                     put(count)
                 _state["saved"] = []
+
+
+def gram(a: np.ndarray) -> np.ndarray:
+    """``a.T @ a``, through ``np.dot``: numpy's ``matmul`` keeps the interpreter lock (GIL)
+    in its symmetric branch for ``a.T @ a`` (numpy 2.4, measured: a second thread's Python
+    loop ran 2.2× slower while one thread ran such products, and two threads of them took as
+    long as one), where ``dot`` releases it.  The same product: bit for bit on a contiguous
+    block, to rounding on a strided slice.  The passes' threads form their products with
+    this."""
+    return np.dot(a.T, a)
 
 
 def on_one_blas_thread(function: Callable[..., Result]) -> Callable[..., Result]:

@@ -27,7 +27,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from sensiv.estimation.moments import LabelCodes, ScoreBlock
+from sensiv.estimation.blas_threads import gram
+from sensiv.estimation.label_codes import LabelCodes
+from sensiv.estimation.moments import ScoreBlock
 
 MAX_ENTRIES = 10_000_000
 """Largest ``G · (1+p)²`` gathered (80 MB of float64)."""
@@ -111,7 +113,7 @@ class Gatherer:
         if weights is not None:
             x *= np.sqrt(weights[order])[:, None]
         for a, b in zip(starts.tolist(), ends.tolist()):
-            self.sums[sorted_codes[a]] += x[a:b].T @ x[a:b]
+            self.sums[sorted_codes[a]] += gram(x[a:b])
 
     def _products(self, x: np.ndarray) -> np.ndarray:
         """``x[:, i] · x[:, j]`` for ``i ≤ j`` (upper triangle, row-major)."""

@@ -23,8 +23,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from sensiv.core.errors import InputError
+from sensiv.estimation.blas_threads import gram
 from sensiv.estimation.parallel import ordered_map
-from sensiv.estimation.score_rows import ScoreRows, row_slices
+from sensiv.estimation.label_codes import LabelCodes
+from sensiv.estimation.score_rows import ScoreRows, cache_blocks, row_slices
 
 
 @dataclass(frozen=True, slots=True)
@@ -102,6 +104,10 @@ class Moments:
         return float(max(d_mean, d_com, d_w))
 
 
+BLOCK_ROWS = 8192
+"""Rows pass 1 centres at a time (``8192 × p`` numbers stay in a core's cache for p ≲ 15)."""
+
+
 def empty_moments(columns: Sequence[str]) -> Moments:
     """Moments of zero rows (the identity of ``+``)."""
     p = len(columns)
@@ -125,8 +131,8 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
         Rows of this block dropped before ``values`` was formed (carried along for reporting).
     n_filtered : int
         Rows of this block removed by the row filter (carried along for reporting).
-    scratch : ndarray, shape (n, p), optional
-        Space for the centred block, reused across chunks (a fresh one costs page faults).
+    scratch : ndarray, shape (BLOCK_ROWS, p), optional
+        Space for a centred block, reused across chunks (a fresh one costs page faults).
 
     Examples
     --------
@@ -135,25 +141,37 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
     >>> float(m.mean[0]), float(m.comoment[0, 0])
     (2.0, 2.0)
     """
-    n = values.shape[0]
+    n, p = values.shape
     if n == 0:
         out = empty_moments(columns)
         return Moments(out.columns, 0, n_dropped, 0.0, out.mean, out.comoment, n_filtered)
     # Shift by the first row before summing, so that a column whose mean dwarfs its spread
     # (a calendar year, incomes in cents) is accumulated as small deviations: the mean is then
-    # accurate to rounding of the spread, not of the level.
-    shift = values[0]
-    centred = np.subtract(values, shift, out=scratch)
-    if weights is None:
-        total = float(n)
-        offset = centred.mean(axis=0)
+    # accurate to rounding of the spread, not of the level.  Both sweeps work on blocks of
+    # BLOCK_ROWS rows, centred into scratch space that stays in the processor's cache (a
+    # centred copy of the whole chunk went to memory and back three times).
+    shift = values[0].copy()
+    rows = min(n, BLOCK_ROWS)
+    if scratch is None or scratch.shape[0] < rows or scratch.shape[1] != p:
+        scratch = np.empty((rows, p), order="F")
+    blocks = [slice(start, min(start + BLOCK_ROWS, n)) for start in range(0, n, BLOCK_ROWS)]
+    total = float(n) if weights is None else float(weights.sum())
+    sums = np.zeros(p)
+    for part in blocks:
+        centred = np.subtract(values[part], shift, out=scratch[:part.stop - part.start])
+        sums += centred.sum(axis=0) if weights is None else weights[part] @ centred
+    offset = sums / total
+    comoment = np.zeros((p, p))
+    weighted = None if weights is None else np.empty_like(scratch)
+    for part in blocks:
+        m = part.stop - part.start
+        centred = np.subtract(values[part], shift, out=scratch[:m])
         centred -= offset
-        comoment = centred.T @ centred
-    else:
-        total = float(weights.sum())
-        offset = (weights @ centred) / total
-        centred -= offset
-        comoment = (centred * weights[:, None]).T @ centred
+        if weights is None:
+            comoment += gram(centred)
+        else:
+            comoment += np.dot(np.multiply(centred, weights[part, None], out=weighted[:m]).T,
+                               centred)
     mean = shift + offset
     comoment = 0.5 * (comoment + comoment.T)
     return Moments(tuple(columns), n, n_dropped, total, mean, comoment, n_filtered)
@@ -162,9 +180,9 @@ def chunk_moments(columns: Sequence[str], values: np.ndarray, weights: np.ndarra
 def accumulate(chunks: Iterable, columns: Sequence[str]) -> Moments:
     """Pass 1: moments of every chunk (objects with ``values``, ``weights``, ``n_dropped``), summed."""
     def one(scratch: dict, chunk) -> Moments:
-        if scratch.get("shape") != chunk.values.shape:  # one scratch array per thread
-            scratch["shape"], scratch["array"] = (chunk.values.shape,
-                                                  np.empty(chunk.values.shape, order="F"))
+        p = chunk.values.shape[1]
+        if scratch.get("p") != p:  # one scratch block per thread
+            scratch["p"], scratch["array"] = p, np.empty((BLOCK_ROWS, p), order="F")
         return chunk_moments(columns, chunk.values, chunk.weights, chunk.n_dropped,
                              getattr(chunk, "n_filtered", 0), scratch["array"])
 
@@ -221,32 +239,6 @@ class ScoreSums:
     psd_fix: bool = False
 
 
-class LabelCodes:
-    """Maps labels (of clusters, or of a fixed effect's levels) met in successive chunks to
-    consecutive integer codes, in the order of first appearance."""
-
-    def __init__(self) -> None:
-        self._codes: dict = {}
-
-    def encode(self, labels: np.ndarray) -> tuple[np.ndarray, int]:
-        import pandas as pd
-
-        local, uniques = pd.factorize(labels, sort=False)
-        mapping = np.empty(len(uniques), dtype=np.int64)
-        for j, label in enumerate(uniques.tolist()):
-            code = self._codes.get(label)
-            if code is None:
-                code = len(self._codes)
-                self._codes[label] = code
-            mapping[j] = code
-        return mapping[local], len(self._codes)
-
-    def __len__(self) -> int:
-        return len(self._codes)
-
-    def labels(self) -> list:
-        """The labels met so far, in the order of their codes."""
-        return list(self._codes)
 
 
 def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
@@ -275,7 +267,7 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
             part = [np.zeros((w, w)) for w in local.widths]
             for values, weights in cache_blocks(chunk.values, chunk.weights):
                 for acc, h in zip(part, local.rows(values, weights)):
-                    acc += h.T @ h
+                    acc += gram(h)
             return part
 
         outer = [np.zeros((w, w)) for w in rows.widths]
@@ -307,22 +299,6 @@ def score_sums(chunks: Iterable, mean: np.ndarray, blocks: Sequence[ScoreBlock],
     combined = {b.name: outer[0][b.name] + outer[1][b.name] - outer[2][b.name] for b in blocks}
     parts = tuple(zip((1, 1, -1), outer, counts))
     return ScoreSums(combined, min(counts[:2]), counts, parts)
-
-
-CACHE_ROWS = 4096
-"""Rows pass 2 turns into score rows at a time (they stay in cache until multiplied)."""
-
-
-def cache_blocks(values: np.ndarray, weights: np.ndarray | None
-                 ) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
-    """``values`` and ``weights`` in views of at most :data:`CACHE_ROWS` rows."""
-    n = values.shape[0]
-    if n <= CACHE_ROWS:
-        yield values, weights
-        return
-    for start in range(0, n, CACHE_ROWS):
-        stop = start + CACHE_ROWS
-        yield values[start:stop], None if weights is None else weights[start:stop]
 
 
 def _add_by_code(acc: np.ndarray, codes: np.ndarray, n_groups: int, g: np.ndarray) -> np.ndarray:
@@ -372,23 +348,6 @@ def cluster_sums(chunks: Iterable, mean: np.ndarray, block: ScoreBlock) -> np.nd
     (:mod:`sensiv.estimation.wild_bootstrap`) needs these sums themselves, not only
     ``Σ_g s_g s_g'``."""
     return cluster_score_sums(chunks, mean, [block])[1][block.name]
-
-
-def cluster_label_columns(clusters: np.ndarray) -> list[np.ndarray]:
-    """The label column of each cluster variable (two for two-way clustering)."""
-    return [clusters] if clusters.ndim == 1 else [clusters[:, j] for j in range(clusters.shape[1])]
-
-
-def count_clusters(chunks: Iterable) -> tuple[int, ...]:
-    """Distinct cluster labels per cluster variable (one, or two for two-way) in ``chunks``."""
-    indices: list[LabelCodes] = []
-    for chunk in chunks:
-        labels = chunk.clusters
-        columns = cluster_label_columns(labels)
-        indices = indices or [LabelCodes() for _ in columns]
-        for index, column in zip(indices, columns):
-            index.encode(column)
-    return tuple(len(index) for index in indices)
 
 
 def check_rows(moments: Moments, n_parameters: int) -> None:

@@ -23,7 +23,7 @@ products then stand in for the scores (:mod:`sensiv.estimation.symmetric_rows`).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 
 import numpy as np
 
@@ -41,6 +41,22 @@ PASS2_ROWS = 16_384
 """Rows of a chunk turned into score rows at a time in pass 2: the score rows are several
 times wider than the data (e.g. 280 numbers per row with 50 instruments), so whole chunks of
 them cost more memory than the chunk itself."""
+
+
+CACHE_ROWS = 4096
+"""Rows pass 2 turns into score rows at a time (they stay in cache until multiplied)."""
+
+
+def cache_blocks(values: np.ndarray, weights: np.ndarray | None
+                 ) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
+    """``values`` and ``weights`` in views of at most :data:`CACHE_ROWS` rows."""
+    n = values.shape[0]
+    if n <= CACHE_ROWS:
+        yield values, weights
+        return
+    for start in range(0, n, CACHE_ROWS):
+        stop = start + CACHE_ROWS
+        yield values[start:stop], None if weights is None else weights[start:stop]
 
 
 def row_slices(chunk):

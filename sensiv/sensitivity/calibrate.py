@@ -44,7 +44,7 @@ from sensiv.data.where import filter_assumptions
 from sensiv.estimation import iv
 from sensiv.estimation.absorb import Absorption
 from sensiv.estimation.covariance import count_notes
-from sensiv.estimation.moments import count_clusters
+from sensiv.estimation.label_codes import count_clusters
 from sensiv.estimation.passes import moments_of
 from sensiv.sensitivity.yardsticks import (Yardstick, yardstick_groups, leave_one_out_yardsticks,
                                            instrument_coefficients)

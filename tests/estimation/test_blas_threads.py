@@ -10,7 +10,8 @@ import numpy as np
 import pytest
 import scipy.linalg  # noqa: F401  (scipy's own OpenBLAS is then loaded too)
 
-from sensiv.estimation.blas_threads import blas_controls, on_one_blas_thread, one_blas_thread
+from sensiv.estimation.blas_threads import (blas_controls, gram, on_one_blas_thread,
+                                           one_blas_thread)
 
 
 def counts() -> list[int]:
@@ -72,3 +73,14 @@ def test_the_decorator_keeps_arguments_results_and_errors(controls):
     with pytest.raises(ValueError, match="no b"):
         product(a, b=None)
     assert counts() == [2] * len(controls)
+
+
+@pytest.mark.parametrize("order", ["C", "F"])
+def test_gram_is_the_same_product(order):
+    """``gram`` only moves ``a.T @ a`` to ``np.dot`` (which lets the GIL go): the same bits
+    on a contiguous block, the same product to rounding on the row slices the passes take
+    (common practice, no source)."""
+    a = np.asarray(np.random.default_rng(2).normal(size=(5000, 13)), order=order)
+    np.testing.assert_array_equal(gram(a), a.T @ a)
+    part = a[17:4113]
+    np.testing.assert_allclose(gram(part), part.T @ part, rtol=0, atol=1e-14 * 4096)

@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 import sensiv.estimation.parallel as parallel
-from sensiv.estimation import moments
+from sensiv.estimation import moments, score_rows
 from sensiv.estimation.moments import ScoreBlock, accumulate, chunk_moments, score_sums
 
 
@@ -82,7 +82,7 @@ def plain_meats(chunks, mean, blocks):
 
 @pytest.mark.parametrize("seed", [1, 2])
 def test_cache_blocked_pass_two_equals_the_plain_formula(seed):
-    sizes = [moments.CACHE_ROWS * 2 + 17, 5, moments.CACHE_ROWS, 3_001]
+    sizes = [score_rows.CACHE_ROWS * 2 + 17, 5, score_rows.CACHE_ROWS, 3_001]
     chunks = random_chunks(seed, sizes)
     mean = accumulate(chunks, [f"c{j}" for j in range(6)]).mean
     blocks = blocks_for(6, seed)

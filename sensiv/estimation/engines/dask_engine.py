@@ -42,9 +42,10 @@ from sensiv.estimation.cluster_moments import (ClusterMoments, Gatherer, gatheri
                                                recall, remember, scores_from)
 from sensiv.estimation.cells import Cells, count_cells
 from sensiv.estimation.cluster_ways import combine_ways, pair_labels
+from sensiv.estimation.label_codes import cluster_label_columns
 from sensiv.estimation.moments import (Moments, ScoreBlock, ScoreSums, accumulate,
-                                       cluster_label_columns, cluster_score_sums,
-                                       empty_moments, score_sums as sums_of)
+                                       cluster_score_sums, empty_moments,
+                                       score_sums as sums_of)
 
 CONNECT_SECONDS = 10
 """How long a ``--scheduler`` address may take to answer."""
