@@ -13,7 +13,7 @@ import pytest
 
 from sensiv.data.source import Chunk
 from sensiv.estimation import cluster_moments
-from sensiv.estimation.cluster_moments import Gatherer, merged, scores_from
+from sensiv.estimation.cluster_moments import Gatherer, merged, scores_from, small_codes
 from sensiv.estimation.moments import ScoreBlock, cluster_score_sums
 
 
@@ -91,3 +91,14 @@ def test_too_many_clusters_gives_up(monkeypatch):
     gatherer = Gatherer(values.shape[1])
     gatherer.add(values, weights, labels)
     assert gatherer.full and gatherer.result() is None
+
+
+def test_small_codes_sort_in_the_same_order():
+    """The 16-bit codes of the per-cluster sort give the same stable order as the codes
+    themselves, and codes too large for 16 bits are left as they are (common practice, no
+    source)."""
+    codes = np.random.default_rng(5).integers(0, 700, 20_000)
+    np.testing.assert_array_equal(np.argsort(small_codes(codes), kind="stable"),
+                                  np.argsort(codes, kind="stable"))
+    large = np.array([0, 70_000, 3])
+    assert small_codes(large) is large
