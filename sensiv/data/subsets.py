@@ -15,6 +15,10 @@ Examples
 (5, 1, 2, 1, 3.5)
 >>> (counts + counts).ones
 4
+>>> frame = pd.DataFrame({"m": [1, 1, 0, None], "age": [20, 40, 50, 60]})
+>>> from sensiv.data.where import parse_filter
+>>> count_kept(frame, "m", (parse_filter("age > 30"), {"age": "numeric"})).ones
+1
 """
 
 from __future__ import annotations
@@ -29,7 +33,7 @@ from sensiv.data.datasets import from_dask, with_engine
 from sensiv.data.readers import from_file, from_frame
 from sensiv.data.source import Source
 from sensiv.data.spec import Spec
-from sensiv.data.where import column_term
+from sensiv.data.where import column_term, filter_columns, keep_mask
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -71,6 +75,19 @@ def count_indicator(series: pd.Series) -> IndicatorCounts:
     other = values[(values != 0.0) & (values != 1.0)]
     return IndicatorCounts(len(series), int(missing.sum()), int((values == 1.0).sum()),
                            int(other.size), float(other.min()) if other.size else None)
+
+
+def count_kept(frame: pd.DataFrame, column: str, row_filter=None) -> IndicatorCounts:
+    """:func:`count_indicator` of ``column`` among the rows of ``frame`` that ``row_filter``
+    (a source's parsed filter and its columns' kinds, or ``None``) keeps."""
+    if row_filter is not None:
+        frame = frame[keep_mask(row_filter[0], frame, row_filter[1])]
+    return count_indicator(frame[column])
+
+
+def counted_columns(column: str, row_filter=None) -> list[str]:
+    """The columns :func:`count_kept` reads: the marker and the row filter's."""
+    return list(dict.fromkeys([column, *(filter_columns(row_filter[0]) if row_filter else [])]))
 
 
 def marked(spec: Spec, column: str, drop: tuple[str, ...] = ()) -> Spec:

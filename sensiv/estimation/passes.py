@@ -20,7 +20,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from sensiv.data.datasets import column_frames
-from sensiv.data.subsets import IndicatorCounts, count_indicator
+from sensiv.data.subsets import IndicatorCounts, count_kept, counted_columns
 from sensiv.estimation.engines import dask_engine, duckdb_engine
 from sensiv.estimation.absorb_view import GroupStats
 from sensiv.estimation.cells import Cells, count_cells
@@ -85,14 +85,14 @@ def cells_of(source, limits: Sequence[int]) -> Cells:
 
 
 def indicator_counts_of(source, column: str) -> IndicatorCounts:
-    """The counts of a 0/1 column over every row of a source read from files, a DuckDB table
-    or a Dask DataFrame (:mod:`sensiv.data.subsets`), on its engine."""
+    """The counts of a 0/1 column over the rows the row filter keeps of a source read from
+    files, a DuckDB table or a Dask DataFrame (:mod:`sensiv.data.subsets`), on its engine."""
     engine = engine_of(source)
     if engine == "duckdb":
         return duckdb_engine.indicator_counts(source, column)
     if engine == "dask":
         return dask_engine.indicator_counts(source, column)
-    rows = source.chunk_rows or 1_000_000
-    return sum((count_indicator(frame[column]) for frames in
-                column_frames(source.origin, [column], rows) for frame in frames()),
-               IndicatorCounts())
+    rows, kept = source.chunk_rows or 1_000_000, source.row_filter
+    return sum((count_kept(frame, column, kept) for frames in
+                column_frames(source.origin, counted_columns(column, kept), rows)
+                for frame in frames()), IndicatorCounts())

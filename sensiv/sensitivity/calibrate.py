@@ -243,7 +243,7 @@ def calibrate(data, spec=None, *, groups: Mapping[str, Sequence[str]] | None = N
     counts = None
     if rows is not None:  # column checks before any estimation
         check_role(spec, no_first_stage_group)
-        counts = marker_counts(rows, no_first_stage_group)
+        counts = marker_counts(rows, no_first_stage_group, spec)
 
     moments = moments_of(source, layout.columns)
     absorption = getattr(source, "absorption", None)

@@ -21,8 +21,8 @@ import numpy as np
 from sensiv.core.errors import ConstantControlError, InputError
 from sensiv.core.results import Interval, json_number
 from sensiv.data.datasets import origin_columns
-from sensiv.data.spec import cluster_columns
-from sensiv.data.subsets import IndicatorCounts, count_indicator, marked, reread
+from sensiv.data.spec import cluster_columns, row_filter
+from sensiv.data.subsets import IndicatorCounts, count_kept, marked, reread
 from sensiv.estimation import distributions as dist
 from sensiv.estimation.absorbed_source import absorb_source
 from sensiv.estimation.covariance import check_clusters, combine_two_way, normalise_weights
@@ -120,9 +120,10 @@ class ZeroFirstStage:
         }
 
 
-def marker_counts(data, column: str) -> IndicatorCounts:
-    """The counts of the subgroup marker ``column`` over every row of ``data`` (a DataFrame, or
-    a source read from files, a DuckDB table or a Dask DataFrame, counted on its engine).
+def marker_counts(data, column: str, spec) -> IndicatorCounts:
+    """The counts of the subgroup marker ``column`` among the rows of ``data`` that the row
+    filter of ``spec`` keeps (``data`` a DataFrame, or a source read from files, a DuckDB
+    table or a Dask DataFrame, counted on its engine with its own filter).
 
     Raises
     ------
@@ -138,7 +139,11 @@ def marker_counts(data, column: str) -> IndicatorCounts:
         hint = f"; did you mean {close[0]!r}?" if close else ""
         raise InputError(f"--no-first-stage-group column {column!r} not found in the data"
                          f"{hint}; name a 0/1 column that marks the subgroup")
-    counts = indicator_counts_of(data, column) if is_source else count_indicator(data[column])
+    if is_source:
+        counts = indicator_counts_of(data, column)
+    else:
+        tree = row_filter(spec)
+        counts = count_kept(data, column, None if tree is None else (tree, None))
     if counts.text:
         raise InputError(f"--no-first-stage-group column {column!r} is not binary: it holds "
                          f"text (e.g. {counts.least_text!r}); code the subgroup as 1 and every "
@@ -149,8 +154,9 @@ def marker_counts(data, column: str) -> IndicatorCounts:
                          f"{counts.least_other:g}); code the subgroup as 1 and every other row "
                          "as 0")
     if not counts.ones:
-        raise InputError(f"--no-first-stage-group column {column!r} has no row equal to 1, so "
-                         "the subgroup is empty; mark the subgroup's rows with 1")
+        kept = " among the rows --where keeps" if spec.where is not None else ""
+        raise InputError(f"--no-first-stage-group column {column!r} has no row equal to 1{kept}, "
+                         "so the subgroup is empty; mark the subgroup's rows with 1")
     return counts
 
 
@@ -203,7 +209,7 @@ def zero_first_stage(data, spec, column: str, *, se: str, confidence_level: floa
         within the subgroup.
     """
     check_role(spec, column)
-    counts = counts if counts is not None else marker_counts(data, column)
+    counts = counts if counts is not None else marker_counts(data, column, spec)
     where = f"the subgroup {column} == 1 ({counts.ones} rows)"
     source, dropped = _subgroup_source(data, spec, column, where)
     layout = source.layout

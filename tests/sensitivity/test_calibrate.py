@@ -65,9 +65,9 @@ def simulated(n=1500, seed=11, k_z=1, direct=0.1):
     return frame
 
 
-def spec_for(k_z=1, controls=("w1", "w2", "region"), cluster=None, weight=None):
+def spec_for(k_z=1, controls=("w1", "w2", "region"), cluster=None, weight=None, where=None):
     return Spec("y", ("x",), tuple(f"z{k + 1}" for k in range(k_z)), controls=controls,
-                cluster=cluster, weight=weight)
+                cluster=cluster, weight=weight, where=where)
 
 
 def design_frame(frame, controls):
@@ -431,3 +431,17 @@ def test_cli_bad_input_writes_nothing(tmp_path):
     bad(invoke("calibrate", EXAMPLE, *BASE, "--no-first-stage-group", "soil", "--out", out),
         "not binary")
     assert not out.exists()
+
+
+def test_marker_counts_follow_the_row_filter():
+    # common practice, no source: the subgroup is read among the rows --where keeps, so its
+    # missing markers are counted there, and a filter that keeps no marked row is refused
+    frame = simulated()
+    frame["nofs"] = frame["nofs"].astype(float)
+    frame.loc[:9, "nofs"] = np.nan
+    frame["late"] = (np.arange(len(frame)) >= 5).astype(int)
+    res = calibrate(frame, spec_for(where="late == 1"), no_first_stage_group="nofs")
+    assert res.zero_first_stage.n_marker_missing == 5
+    assert res.zero_first_stage.n == int(((frame["nofs"] == 1) & (frame["late"] == 1)).sum())
+    with pytest.raises(InputError, match="no row equal to 1 among the rows --where keeps"):
+        calibrate(frame, spec_for(where="nofs == 0"), no_first_stage_group="nofs")

@@ -36,7 +36,7 @@ from sensiv.data.convert import Tally
 from sensiv.data.datasets import column_frames, missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
 from sensiv.data.spec import cluster_columns, read_columns
-from sensiv.data.subsets import IndicatorCounts, count_indicator
+from sensiv.data.subsets import IndicatorCounts, count_kept, counted_columns
 from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats, demean_chunks
 from sensiv.estimation.cluster_moments import (ClusterMoments, Gatherer, gathering, merged,
                                                recall, remember, scores_from)
@@ -275,22 +275,26 @@ def score_sums(source, mean: np.ndarray, blocks: Sequence[ScoreBlock], cluster: 
 
 
 # --------------------------------------------------------------------------- marker counts
-def part_indicator(frames: Any, column: str) -> IndicatorCounts:
-    """Task: the counts of a 0/1 column in one partition (a frame, or a factory of them)."""
+def part_indicator(frames: Any, column: str, row_filter) -> IndicatorCounts:
+    """Task: the counts of a 0/1 column among one partition's kept rows (a frame, or a
+    factory of them)."""
     if hasattr(frames, "columns"):           # one partition of a Dask DataFrame
-        return count_indicator(frames[column])
-    return sum((count_indicator(frame[column]) for frame in frames()), IndicatorCounts())
+        return count_kept(frames, column, row_filter)
+    return sum((count_kept(frame, column, row_filter) for frame in frames()),
+               IndicatorCounts())
 
 
 def indicator_counts(source, column: str) -> IndicatorCounts:
-    """The counts of a 0/1 marker column over every row, per partition on the cluster."""
+    """The counts of a 0/1 marker column over the rows the row filter keeps, per partition on
+    the cluster."""
     client = client_of(source.scheduler)
-    origin = source.origin
+    origin, kept = source.origin, source.row_filter
+    columns = counted_columns(column, kept)
     if origin.kind == "dask":
-        parts = client.compute(origin.frame[[column]].to_delayed())
+        parts = client.compute(origin.frame[columns].to_delayed())
     else:
-        parts = column_frames(origin, [column], source.chunk_rows)
-    leaves = [client.submit(part_indicator, part, column, pure=False) for part in parts]
+        parts = column_frames(origin, columns, source.chunk_rows)
+    leaves = [client.submit(part_indicator, part, column, kept, pure=False) for part in parts]
     return _tree(client, leaves, IndicatorCounts.__add__)
 
 

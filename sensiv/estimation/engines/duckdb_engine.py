@@ -41,7 +41,8 @@ from sensiv.data.subsets import IndicatorCounts
 from sensiv.estimation.engines.duckdb_plan import (CLEAN, Plan, checks, duckdb_module,
                                                    open_relation, quick_row, quick_verdict,
                                                    scan_parts, sums_verdict)
-from sensiv.estimation.engines.duckdb_sql import Query, is_numeric, linear, missing, number
+from sensiv.estimation.engines.duckdb_sql import (Query, filter_sql, is_numeric, linear,
+                                                  missing, number)
 from sensiv.estimation.moments import Moments, ScoreBlock, ScoreSums
 
 SAMPLE_ROWS = 65_536
@@ -351,11 +352,16 @@ def cells(source, limits: Sequence[int]) -> Cells:
 
 
 def indicator_counts(source, column: str) -> IndicatorCounts:
-    """The counts of a 0/1 marker column over every row, in one query (the pandas kernel's
-    :func:`~sensiv.data.subsets.count_indicator` rules: NULL and NaN missing, text refused)."""
+    """The counts of a 0/1 marker column over the rows the row filter keeps, in one query (the
+    pandas kernel's :func:`~sensiv.data.subsets.count_indicator` rules: NULL and NaN
+    missing, text refused)."""
     duckdb = duckdb_module()
     connection, relation, params = open_relation(source)
     name = quoted(column)
+    if source.row_filter is not None:   # the rows --where keeps
+        query = Query(list(params))
+        where = filter_sql(*source.row_filter, query)
+        relation, params = f"(SELECT * FROM {relation} WHERE {where})", query.params
     try:
         (kind,), = connection.execute(f"SELECT column_type FROM (DESCRIBE SELECT {name} FROM "
                                       f"{relation})", params).fetchall()
