@@ -73,11 +73,14 @@ def command(folder: Path, engine: str, scheduler: str | None) -> list[str]:
 
 
 def child(args: list[str]) -> None:
-    from sensiv.cli.app import app
+    """One run of the command as a user runs it (the console script's ``main``, which also
+    chooses the memory allocator before pyarrow is imported)."""
+    from sensiv.cli.app import main
 
+    sys.argv = ["sensiv", *args]
     start = time.perf_counter()
     try:
-        app(args)
+        main()
     except SystemExit as exc:
         if exc.code not in (0, None):
             raise
