@@ -85,6 +85,11 @@ def count_kept(frame: pd.DataFrame, column: str, row_filter=None) -> IndicatorCo
     return count_indicator(frame[column])
 
 
+def count_frames(frames, column: str, row_filter=None) -> IndicatorCounts:
+    """:func:`count_kept` summed over the frames of one factory (a file, a table)."""
+    return sum((count_kept(frame, column, row_filter) for frame in frames()), IndicatorCounts())
+
+
 def counted_columns(column: str, row_filter=None) -> list[str]:
     """The columns :func:`count_kept` reads: the marker and the row filter's."""
     return list(dict.fromkeys([column, *(filter_columns(row_filter[0]) if row_filter else [])]))

@@ -20,7 +20,8 @@ from collections.abc import Sequence
 import numpy as np
 
 from sensiv.data.datasets import column_frames
-from sensiv.data.subsets import IndicatorCounts, count_kept, counted_columns
+from sensiv.data.readers import DEFAULT_CHUNK_ROWS
+from sensiv.data.subsets import IndicatorCounts, count_frames, counted_columns
 from sensiv.estimation.engines import dask_engine, duckdb_engine
 from sensiv.estimation.absorb_view import GroupStats
 from sensiv.estimation.cells import Cells, count_cells
@@ -92,7 +93,7 @@ def indicator_counts_of(source, column: str) -> IndicatorCounts:
         return duckdb_engine.indicator_counts(source, column)
     if engine == "dask":
         return dask_engine.indicator_counts(source, column)
-    rows, kept = source.chunk_rows or 1_000_000, source.row_filter
-    return sum((count_kept(frame, column, kept) for frames in
-                column_frames(source.origin, counted_columns(column, kept), rows)
-                for frame in frames()), IndicatorCounts())
+    rows, kept = source.chunk_rows or DEFAULT_CHUNK_ROWS, source.row_filter
+    return sum((count_frames(frames, column, kept) for frames in
+                column_frames(source.origin, counted_columns(column, kept), rows)),
+               IndicatorCounts())

@@ -36,7 +36,7 @@ from sensiv.data.convert import Tally
 from sensiv.data.datasets import column_frames, missing_extra, partition_frames
 from sensiv.data.source import clean_chunks
 from sensiv.data.spec import cluster_columns, read_columns
-from sensiv.data.subsets import IndicatorCounts, count_kept, counted_columns
+from sensiv.data.subsets import IndicatorCounts, count_frames, count_kept, counted_columns
 from sensiv.estimation.absorb_view import GroupAbsorbed, GroupStats, demean_chunks
 from sensiv.estimation.cluster_moments import (ClusterMoments, Gatherer, gathering, merged,
                                                recall, remember, scores_from)
@@ -280,8 +280,7 @@ def part_indicator(frames: Any, column: str, row_filter) -> IndicatorCounts:
     factory of them)."""
     if hasattr(frames, "columns"):           # one partition of a Dask DataFrame
         return count_kept(frames, column, row_filter)
-    return sum((count_kept(frame, column, row_filter) for frame in frames()),
-               IndicatorCounts())
+    return count_frames(frames, column, row_filter)
 
 
 def indicator_counts(source, column: str) -> IndicatorCounts:
