@@ -35,7 +35,8 @@ import numpy as np
 
 from sensiv.data.spec import DEFAULT_ABSORB_TOLERANCE
 from sensiv.estimation import absorb_direct
-from sensiv.estimation.absorb_direct import DirectPlan, direct_plan, direct_residual
+from sensiv.estimation.absorb_direct import (DirectPlan, direct_plan, direct_residual,
+                                             sweep_change)
 
 DEFAULT_TOLERANCE = DEFAULT_ABSORB_TOLERANCE
 """Relative change of a demeaned column below which alternating projections stop (the
@@ -123,9 +124,17 @@ def encode(labels: np.ndarray) -> tuple[np.ndarray, int]:
     """Consecutive integer codes of ``labels`` (no missing) and the number of levels.
 
     The codes are ``intp`` (64 bits): ``np.bincount`` converts any other integer type on every
-    call, which made the demeaning half again slower with 32-bit codes (measured)."""
+    call, which made the demeaning half again slower with 32-bit codes (measured).  Integer
+    labels in ``[0, 2n)`` are numbered by a table of the values present (in their order, twice
+    as fast as hashing them, measured); any other labels by pandas' hash table."""
     import pandas as pd
 
+    if labels.dtype.kind in "iu" and labels.size:
+        low, high = int(labels.min()), int(labels.max())
+        if low >= 0 and high < 2 * labels.size:
+            present = np.bincount(labels, minlength=high + 1) > 0
+            numbering = np.cumsum(present, dtype=np.intp) - 1
+            return np.take(numbering, labels), int(numbering[-1]) + 1
     codes, uniques = pd.factorize(labels, sort=False)
     return codes.astype(np.intp, copy=False), len(uniques)
 
@@ -140,14 +149,19 @@ def recode(codes: np.ndarray) -> tuple[np.ndarray, int]:
 def singleton_rows(codes: Sequence[np.ndarray]) -> np.ndarray:
     """Mask of the rows kept after dropping singletons, iterated until none remain."""
     keep = np.ones(len(codes[0]), dtype=bool)
+    first = True  # every row kept: the codes themselves, not a masked copy
     while True:
         bad = np.zeros_like(keep)
         for c in codes:
+            if first:
+                bad |= np.take(np.bincount(c) == 1, c)
+                continue
             counts = np.bincount(c[keep])
             bad[keep] |= counts[c[keep]] == 1
         if not bad.any() or len(codes) == 1:
             return keep & ~bad
         keep &= ~bad
+        first = False
 
 
 def group_weights(codes: np.ndarray, n_levels: int, weights: np.ndarray | None) -> np.ndarray:
@@ -178,7 +192,8 @@ def _sweep(column, groups, weights):
 
 def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndarray]],
                   weights: np.ndarray | None, tolerance: float,
-                  max_iterations: int, plan: DirectPlan | None = None
+                  max_iterations: int, plan: DirectPlan | None = None,
+                  buffers: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
                   ) -> tuple[np.ndarray, int, float]:
     """One column residualised on several fixed effects by accelerated alternating projections.
 
@@ -188,13 +203,18 @@ def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndar
     with a ``plan``).  With a ``plan`` (:mod:`sensiv.estimation.absorb_direct`) the projections
     start from the direct solution: its first step is one plain sweep, and the solution stands
     when that sweep changes it by no more than the tolerance (else the accelerated steps go on
-    from there, counted from 2).
+    from there, counted from 2).  ``buffers``: three row-sized arrays the direct solve may
+    use (the column returned may then be one of them; copy it before the next call).
     """
-    shifted = column - column[0]
+    shift, out, scratch = (None, None, None) if buffers is None else buffers
+    shifted = np.subtract(column, column[0], out=shift)
     if plan is not None:
-        start, scale = direct_residual(plan, shifted, weights)
+        start, scale = direct_residual(plan, shifted, weights, out, scratch)
         if scale == 0.0:
-            return start * 0.0, 1, 0.0
+            return np.zeros_like(start), 1, 0.0
+        change = sweep_change(plan, start, weights, scratch)  # two fixed effects: no sweep
+        if change is not None and change <= tolerance * scale:
+            return start, 1, change / scale
         x = _sweep(start, groups, weights)
         difference = x - start
         change = np.sqrt(_dot(difference, difference)) / scale
@@ -239,6 +259,7 @@ def demean_columns(values: np.ndarray, codes: Sequence[np.ndarray], levels: Sequ
         direct_levels = absorb_direct.DIRECT_LEVELS
     groups = [(c, group_weights(c, n, weights)) for c, n in zip(codes, levels)]
     plan = direct_plan(codes, levels, weights, direct_levels) if len(groups) > 1 else None
+    buffers = None if plan is None else tuple(np.empty(values.shape[0]) for _ in range(3))
     steps, achieved = 1, 0.0
     for j in range(values.shape[1]):
         column = values[:, j]
@@ -246,7 +267,7 @@ def demean_columns(values: np.ndarray, codes: Sequence[np.ndarray], levels: Sequ
             values[:, j] = demean_once(column - column[0], *groups[0], weights)
             continue
         values[:, j], used, reached = demean_column(column, groups, weights, tolerance,
-                                                    max_iterations, plan)
+                                                    max_iterations, plan, buffers)
         steps, achieved = max(steps, used), max(achieved, reached)
     return values, steps, achieved
 

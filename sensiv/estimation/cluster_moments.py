@@ -80,7 +80,7 @@ class Gatherer:
 
         if self.shift is None:
             self.shift = values.mean(axis=0)
-        codes, n_groups = self.codes.encode(clusters)
+        codes, n_groups, n_here = self.codes.encode_counted(clusters)
         if n_groups * (self.width + 1) ** 2 > MAX_ENTRIES:
             self.full, self.sums = True, np.zeros((0, self.width + 1, self.width + 1))
             return
@@ -88,7 +88,7 @@ class Gatherer:
             grown = np.zeros((n_groups, self.width + 1, self.width + 1))
             grown[:self.sums.shape[0]] = self.sums
             self.sums = grown
-        if values.shape[0] >= LOOP_ROWS * len(np.unique(codes)):
+        if values.shape[0] >= LOOP_ROWS * n_here:
             self._by_cluster(values, weights, codes)
             return
         step = max(1, BUFFER_ENTRIES // len(self.rows))

@@ -16,6 +16,12 @@ class LabelCodes:
         self._codes: dict = {}
 
     def encode(self, labels: np.ndarray) -> tuple[np.ndarray, int]:
+        """The codes of ``labels`` and the number of labels met so far."""
+        codes, n_codes, _ = self.encode_counted(labels)
+        return codes, n_codes
+
+    def encode_counted(self, labels: np.ndarray) -> tuple[np.ndarray, int, int]:
+        """:meth:`encode`, and the number of distinct labels in ``labels`` itself."""
         import pandas as pd
 
         local, uniques = pd.factorize(labels, sort=False)
@@ -26,7 +32,7 @@ class LabelCodes:
                 code = len(self._codes)
                 self._codes[label] = code
             mapping[j] = code
-        return mapping[local], len(self._codes)
+        return mapping[local], len(self._codes), len(uniques)
 
     def __len__(self) -> int:
         return len(self._codes)
