@@ -140,18 +140,16 @@ class ScoreRows:
         out = []
         n = values.shape[0]
         n_residuals = self._residual_map.shape[1]
-        if n_residuals:
-            r = self._residual_map
-            e = values @ r[1:]
-            e += r[0] - self._mean @ r[1:]
+        if n_residuals:  # the centred rows [1, v − μ] once, each unit's h a scaling of them
+            centred = self._scratch("centred", n, values.shape[1] + 1)
+            centred[:, 0] = 1.0
+            np.subtract(values, self._mean, out=centred[:, 1:])
+            e = np.matmul(centred, self._residual_map, out=self._scratch("e", n, n_residuals))
             if weights is not None:
                 e *= weights[:, None]
             for j in range(n_residuals):
                 h = self._scratch(("h", j), n, values.shape[1] + 1)
-                h[:, 0] = e[:, j]
-                np.subtract(values, self._mean, out=h[:, 1:])
-                h[:, 1:] *= e[:, j:j + 1]
-                out.append(h)
+                out.append(np.multiply(centred, e[:, j:j + 1], out=h))
         for j, (v_map, v_offset) in enumerate(self._bases):
             v = np.matmul(values, v_map, out=self._scratch(("v", j), n, v_map.shape[1]))
             v += v_offset
