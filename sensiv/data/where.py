@@ -375,8 +375,18 @@ def show(value: Literal) -> str:
     return repr(value) if isinstance(value, str) else f"{value:.15g}"
 
 
+_PLAIN_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_.]*")
+
+
+def _name(column: str) -> str:
+    """A column as the grammar reads it: backquoted unless a plain identifier."""
+    plain = _PLAIN_NAME.fullmatch(column) and column not in KEYWORDS
+    return column if plain else f"`{column}`"
+
+
 def render(node: Node) -> str:
-    """The filter written back as text in a canonical form (for reports)."""
+    """The filter written back as text in a canonical form (for reports), which parses back
+    to the same tree."""
     value = show
     if isinstance(node, Not):
         return f"not ({render(node.operand)})"
@@ -384,11 +394,11 @@ def render(node: Node) -> str:
         word = "and" if isinstance(node, Both) else "or"
         return f"({render(node.left)} {word} {render(node.right)})"
     if isinstance(node, Missing):
-        return f"{node.column} is {'not ' if node.negated else ''}missing"
+        return f"{_name(node.column)} is {'not ' if node.negated else ''}missing"
     if isinstance(node, Member):
         listed = ", ".join(value(v) for v in node.values)
-        return f"{node.column} {'not in' if node.negated else 'in'} [{listed}]"
-    return f"{node.column} {node.op} {value(node.value)}"
+        return f"{_name(node.column)} {'not in' if node.negated else 'in'} [{listed}]"
+    return f"{_name(node.column)} {node.op} {value(node.value)}"
 
 
 def filter_assumptions(where: str | None, n_filtered: int) -> list[str]:
