@@ -29,7 +29,8 @@ checking a direct solve by the iteration it replaces, no source).  With two fixe
 change is computed without the sweep (:func:`sweep_change`): a sweep ``M_2 M_1`` changes ``r``
 by ``P_1 r + P_2 r − P_2 P_1 r = D_1 a + D_2 (c − X'a / t_2)``, with ``a``, ``c`` the level means
 of ``r`` on each and ``X = D_1'WD_2``, whose squared length ``Σ n_1 a² + Σ n_2 u² + 2 a'Nu``
-(``n`` the rows per level, ``N = D_1'D_2``) needs only two group sums of ``r``.
+(``n`` the rows per level, ``N = D_1'D_2``) needs only the group sums of ``r`` — and the
+direct residual's are zero on the largest fixed effect, so one group sum.
 """
 
 from __future__ import annotations
@@ -57,14 +58,15 @@ cancellation); the demeaned column is then formed to measure it."""
 
 @dataclass(frozen=True, slots=True)
 class SweepCheck:
-    """What :func:`sweep_change` needs for two fixed effects, in the order they are swept."""
+    """What :func:`sweep_change` needs for two fixed effects: the smaller one's codes, level
+    weight sums and rows per level, the unweighted cross-tabulation ``D_b'D_s`` beside the
+    plan's weighted one, and whether the largest fixed effect is swept first."""
 
-    codes: tuple[np.ndarray, np.ndarray]
-    totals: tuple[np.ndarray, np.ndarray]  # level weight sums
-    counts: tuple[np.ndarray, np.ndarray]  # rows per level
-    cross: object  # D_1'WD_2, dense or CSR
-    pairs: object  # D_1'D_2 (rows), dense or CSR
-
+    codes: np.ndarray
+    totals: np.ndarray
+    counts: np.ndarray
+    pairs: object  # D_b'D_s (rows), dense or CSR
+    big_first: bool
 
 @dataclass(frozen=True, slots=True)
 class DirectPlan:
@@ -137,16 +139,12 @@ def direct_plan(codes: Sequence[np.ndarray], levels: Sequence[int],
     kept = values > EIGEN_CUTOFF * reference
     big_counts = big_totals if weights is None else _totals(big_codes, n_big, None)
     check = None
-    if len(codes) == 2:  # in the sweep's order, the codes as given
+    if len(codes) == 2:
         other = codes[small[0]]
         pairs = cross if weights is None else _cross(big_codes, n_big, [other], small_levels,
                                                      None)
-        totals = (big_totals, _totals(other, small_levels[0], weights))
-        counts = (big_counts, _totals(other, small_levels[0], None))
-        if big == 0:
-            check = SweepCheck((big_codes, other), totals, counts, cross, pairs)
-        else:
-            check = SweepCheck((other, big_codes), totals[::-1], counts[::-1], cross.T, pairs.T)
+        check = SweepCheck(other, _totals(other, small_levels[0], weights),
+                           _totals(other, small_levels[0], None), pairs, big == 0)
     return DirectPlan(big_codes, big_totals, tuple(codes[j] for j in small), small_levels,
                       cross, np.ascontiguousarray(vectors[:, kept]), 1.0 / values[kept], big,
                       big_counts, check)
@@ -211,15 +209,21 @@ def _within_norm(plan: DirectPlan, column: np.ndarray, means: np.ndarray, sums: 
 
 def sweep_change(plan: DirectPlan, residual: np.ndarray, weights: np.ndarray | None,
                  scratch: np.ndarray | None = None) -> float | None:
-    """The length of the change one sweep of alternating projections would make to
-    ``residual`` (see the module notes), or ``None`` unless there are two fixed effects."""
+    """The length of the change one sweep of alternating projections would make to a
+    ``residual`` of :func:`direct_residual` (see the module notes), or ``None`` unless there
+    are two fixed effects.
+
+    Such a residual has zero level sums on the largest fixed effect for any ``β``
+    (``D_b'W r = S_b − t_b m + Cβ − Cβ``), so only the other fixed effect's level means ``c``
+    are summed from the rows: swept first, the largest leaves ``r`` as it is and the change is
+    ``D_s c``; swept second, the change is ``D_s c − D_b (Cc / t_b)``."""
     check = plan.check
     if check is None:
         return None
     w_res = residual if weights is None else np.multiply(residual, weights, out=scratch)
-    first, second = (np.bincount(c, weights=w_res, minlength=t.size) / t
-                     for c, t in zip(check.codes, check.totals))
-    rest = second - (check.cross.T @ first) / check.totals[1]
-    square = (float(check.counts[0] @ (first * first)) + float(check.counts[1] @ (rest * rest))
-              + 2.0 * float(first @ (check.pairs @ rest)))
+    means = np.bincount(check.codes, weights=w_res, minlength=check.totals.size) / check.totals
+    square = float(check.counts @ (means * means))
+    if not check.big_first:
+        back = (plan.cross @ means) / plan.big_totals
+        square += float(plan.big_counts @ (back * back)) - 2.0 * float(back @ (check.pairs @ means))
     return float(np.sqrt(max(square, 0.0)))

@@ -125,10 +125,11 @@ def test_reported_tolerance_is_truthful():
 @pytest.mark.parametrize("levels,weighted,dense", [((80, 9), False, True), ((80, 9), True, True),
                                                     ((9, 80), True, True), ((80, 9), True, False)])
 def test_two_way_change_from_level_sums_is_the_sweeps(levels, weighted, dense, monkeypatch):
-    # With two fixed effects the change one more sweep would make is computed from two group
-    # sums (absorb_direct.sweep_change); it must equal the change of the sweep itself — here
-    # measured after a plain sweep, where the change is far from zero (common practice, no
-    # source: the identity of the module notes, checked by doing the sweep).
+    # With two fixed effects the change one more sweep would make to a residual with zero
+    # level sums on the largest fixed effect is computed from one group sum
+    # (absorb_direct.sweep_change); it must equal the change of the sweep itself — here for a
+    # column demeaned by the largest fixed effect alone, where the change is far from zero
+    # (common practice, no source: the identity of the module notes, checked by the sweep).
     import sensiv.estimation.absorb_direct as direct
 
     if not dense:
@@ -136,16 +137,17 @@ def test_two_way_change_from_level_sums_is_the_sweeps(levels, weighted, dense, m
     codes, levels, values, weights = design(2_000, levels, 8, weighted)
     plan = direct_plan(codes, levels, weights)
     groups = [(c, fe.group_weights(c, n, weights)) for c, n in zip(codes, levels)]
+    big = int(np.argmax(levels))
     for j in range(values.shape[1]):
-        once = fe._sweep(values[:, j] - values[0, j], groups, weights)
+        once = fe.demean_once(values[:, j] - values[0, j], *groups[big], weights)
         actual = np.linalg.norm(fe._sweep(once, groups, weights) - once)
+        assert actual > 1.0
         assert direct.sweep_change(plan, once, weights) == pytest.approx(actual, rel=1e-9)
     got, steps, achieved = fe.demean_columns(np.asfortranarray(values.copy()), codes, levels,
                                              weights)
     assert relative(got, lstsq_residuals(codes, levels, values, weights)) < REL
     for j in range(values.shape[1]):  # the reported tolerance is truthful (to rounding:
         again = fe._sweep(got[:, j], groups, weights)  # both sides are 1e-15 here)
-        big = int(np.argmax(levels))
         scale = np.linalg.norm(fe.demean_once(values[:, j] - values[0, j], *groups[big],
                                               weights))
         assert np.linalg.norm(again - got[:, j]) / scale <= achieved * 1.0001 + 1e-14
