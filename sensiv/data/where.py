@@ -375,35 +375,26 @@ def show(value: Literal) -> str:
     return repr(value) if isinstance(value, str) else f"{value:.15g}"
 
 
-_PLAIN_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_.]*")
-
-
-def _name(column: str) -> str:
-    """A column as the grammar reads it: backquoted unless a plain identifier."""
-    plain = _PLAIN_NAME.fullmatch(column) and column not in KEYWORDS
-    return column if plain else f"`{column}`"
-
-
 def render(node: Node) -> str:
     """The filter written back as text in a canonical form (for reports), which parses back
-    to the same tree."""
-    value = show
+    to the same tree (a column that is not a plain identifier in backquotes)."""
     if isinstance(node, Not):
         return f"not ({render(node.operand)})"
     if isinstance(node, (Both, Either)):
         word = "and" if isinstance(node, Both) else "or"
         return f"({render(node.left)} {word} {render(node.right)})"
+    plain = re.fullmatch(r"[A-Za-z_][A-Za-z0-9_.]*", node.column) and node.column not in KEYWORDS
+    name = node.column if plain else f"`{node.column}`"
     if isinstance(node, Missing):
-        return f"{_name(node.column)} is {'not ' if node.negated else ''}missing"
+        return f"{name} is {'not ' if node.negated else ''}missing"
     if isinstance(node, Member):
-        listed = ", ".join(value(v) for v in node.values)
-        return f"{_name(node.column)} {'not in' if node.negated else 'in'} [{listed}]"
-    return f"{_name(node.column)} {node.op} {value(node.value)}"
+        listed = ", ".join(show(v) for v in node.values)
+        return f"{name} {'not in' if node.negated else 'in'} [{listed}]"
+    return f"{name} {node.op} {show(node.value)}"
 
 
 def filter_assumptions(where: str | None, n_filtered: int) -> list[str]:
     """The assumption line of a row filter (empty without one)."""
-    if where is None:
-        return []
-    return [f"sample restricted by the row filter {where!r} ({n_filtered} rows filtered out); "
-            "the results describe that subpopulation only"]
+    return [] if where is None else [
+        f"sample restricted by the row filter {where!r} ({n_filtered} rows filtered out); the "
+        "results describe that subpopulation only"]
