@@ -193,7 +193,7 @@ def _sweep(column, groups, weights):
 def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndarray]],
                   weights: np.ndarray | None, tolerance: float,
                   max_iterations: int, plan: DirectPlan | None = None,
-                  buffers: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+                  buffers: tuple[np.ndarray, np.ndarray] | None = None
                   ) -> tuple[np.ndarray, int, float]:
     """One column residualised on several fixed effects by accelerated alternating projections.
 
@@ -203,11 +203,12 @@ def demean_column(column: np.ndarray, groups: Sequence[tuple[np.ndarray, np.ndar
     with a ``plan``).  With a ``plan`` (:mod:`sensiv.estimation.absorb_direct`) the projections
     start from the direct solution: its first step is one plain sweep, and the solution stands
     when that sweep changes it by no more than the tolerance (else the accelerated steps go on
-    from there, counted from 2).  ``buffers``: three row-sized arrays the direct solve may
-    use (the column returned may then be one of them; copy it before the next call).
+    from there, counted from 2).  ``buffers``: two row-sized arrays the direct solve may use
+    (the column returned may then be one of them: copy it before the next call); with them
+    ``column`` itself is shifted in place.
     """
-    shift, out, scratch = (None, None, None) if buffers is None else buffers
-    shifted = np.subtract(column, column[0], out=shift)
+    out, scratch = (None, None) if buffers is None else buffers
+    shifted = np.subtract(column, column[0], out=None if buffers is None else column)
     if plan is not None:
         start, scale = direct_residual(plan, shifted, weights, out, scratch)
         if scale == 0.0:
@@ -259,7 +260,7 @@ def demean_columns(values: np.ndarray, codes: Sequence[np.ndarray], levels: Sequ
         direct_levels = absorb_direct.DIRECT_LEVELS
     groups = [(c, group_weights(c, n, weights)) for c, n in zip(codes, levels)]
     plan = direct_plan(codes, levels, weights, direct_levels) if len(groups) > 1 else None
-    buffers = None if plan is None else tuple(np.empty(values.shape[0]) for _ in range(3))
+    buffers = None if plan is None else (np.empty(values.shape[0]), np.empty(values.shape[0]))
     steps, achieved = 1, 0.0
     for j in range(values.shape[1]):
         column = values[:, j]

@@ -83,8 +83,9 @@ def _pieces(chunk: Chunk) -> Iterator[Chunk]:
 def _gather(chunks: list[Chunk], n_effects: int, description: str):
     """Rows of every chunk stacked: values (float64, column-major), weights, clusters, labels.
 
-    Each chunk's values are released as soon as they are copied (``chunks`` is emptied), so
-    the peak is one copy of the used columns and one chunk, not two copies."""
+    Each chunk's values are released (and their pages handed back) as soon as they are
+    copied, and the labels are stacked only after that (``chunks`` is emptied), so the peak
+    is one copy of the used columns and one chunk, not two copies."""
     chunks[:] = [c for c in chunks if c.values.shape[0]]
     if not chunks:
         raise InputError(f"{description} has no rows left to absorb fixed effects from")
@@ -95,17 +96,21 @@ def _gather(chunks: list[Chunk], n_effects: int, description: str):
         raise InputError(f"{description} is too large to hold its used columns in memory for "
                          "several absorbed fixed effects; absorb one fixed effect, or filter "
                          "rows with --where") from exc
-    weights = np.concatenate([c.weights for c in chunks]) if chunks[0].weights is not None else None
-    clusters = (np.concatenate([c.clusters for c in chunks])
-                if chunks[0].clusters is not None else None)
-    groups = [np.concatenate([c.groups[j] for c in chunks]) for j in range(n_effects)]
+    weights = [c.weights for c in chunks] if chunks[0].weights is not None else None
+    clusters = [c.clusters for c in chunks] if chunks[0].clusters is not None else None
+    groups = [[c.groups[j] for c in chunks] for j in range(n_effects)]
     start = 0
     for i, chunk in enumerate(chunks):
         rows = chunk.values.shape[0]
         values[start:start + rows] = chunk.values
         start += rows
         chunks[i] = chunk = None
+        release_freed()
     chunks.clear()
+    weights = None if weights is None else np.concatenate(weights)
+    clusters = None if clusters is None else np.concatenate(clusters)
+    for j in range(n_effects):
+        groups[j] = np.concatenate(groups[j])
     return values, weights, clusters, groups
 
 
@@ -129,6 +134,7 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     release_freed()
     codes, levels = map(list, zip(*(fe.encode(g) for g in groups)))
     del groups                      # the labels are not needed once coded
+    release_freed()
     keep = fe.singleton_rows(codes)
     n_singletons = int((~keep).sum())
     if n_singletons:
@@ -146,6 +152,7 @@ def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
     n_core = 1 + len(layout.treatments) + len(layout.instruments)
     values, steps, achieved = fe.demean_columns(values, codes, levels, weights, tolerance,
                                                 max_iterations)
+    release_freed()                 # the labels and the demeaning's scratch rows
     if len(codes) > 1 and achieved > tolerance:
         warnings.warn(f"alternating projections for the fixed effects {', '.join(spec.absorb)} "
                       f"stopped after {steps} steps at a relative change {achieved:.2e}, above "
