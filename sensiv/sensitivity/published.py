@@ -242,9 +242,9 @@ def published_analysis(*, estimate: float, se: float, first_stage: float,
     notes = consistency_notes(rep)
     for message in notes:
         warnings.warn(message, InconsistentInputWarning, stacklevel=2)
-    sp = rep.first_stage_se if rep.first_stage_se is not None else abs(
-        rep.first_stage) / math.sqrt(rep.first_stage_f)
-    cov, cov_notes = choose_covariance(rep, sp)
+    with overflow_guard("a printed number"):
+        sp = rep.first_stage_se or abs(rep.first_stage) / math.sqrt(rep.first_stage_f)
+        cov, cov_notes = choose_covariance(rep, sp)
     notes += cov_notes
     if cov.method == METHOD_CLIPPED:
         for message in cov_notes:
@@ -263,7 +263,8 @@ def _stress_test(rep: Reported, sp: float, cov: Covariance, gamma_set: Interval,
     warnings are raised at the caller of :func:`published_analysis`)."""
     b, p = rep.estimate, rep.first_stage
     critical = dist.normal_quantile(0.5 + 0.5 * confidence_level)
-    cores = [core_from(b, p, m, critical, cov.inflation) for m in cov.matrices]
+    cores = [core_from(b, p, m, critical, cov.inflation, w)
+             for m, w in zip(cov.matrices, cov.centred)]
     ar_critical = dist.chi2_quantile(confidence_level, 1)
     dset = box_set((INSTRUMENT,), [(gamma_set.low, gamma_set.high)])
     scales = np.linspace(0.0, 1.0, points)
@@ -338,13 +339,14 @@ def _robust_part(rep: Reported, sp: float, cov: Covariance, critical: float, dse
     """The weak-IV-robust set (the union over the covariances' exact Anderson–Rubin sets), its
     method, and a note on it with whether that note is a weak-instrument warning."""
     b, p = rep.estimate, rep.first_stage
-    forms = [ReducedForm(np.array([b * p]), np.array([p]), m[:1, :1].copy(), m[:1, 1:].copy(),
-                         m[1:, 1:].copy(), critical) for m in cov.matrices]
-    pieces = []
-    for form in forms:
-        pieces.extend(robust_set(form, dset)[0])
+    pieces = []  # in β₀ − B, from the reduced form of y − B·d (zero) and its covariances as
+    for m, (w_rr, w_rp) in zip(cov.matrices, cov.centred):  # constructed: no cancellation
+        form = ReducedForm(np.zeros(1), np.array([p]), np.array([[w_rr]]), np.array([[w_rp]]),
+                           m[1:, 1:].copy(), critical)
+        pieces.extend(Interval(i.low + b, i.high + b) for i in robust_set(form, dset)[0])
     ar = merge_intervals(pieces)
-    method = "exact" if len(forms) == 1 else "exact, union over the two extreme correlations"
+    method = ("exact" if len(cov.matrices) == 1 else
+              "exact, union over the two extreme correlations")
     if cov.method == METHOD_WORST:
         # The AR variance at β₀ is Var(ρ̂ − β₀π̂), whose worst case grows with |β₀ − B|; a gap
         # to the Wald union then reflects the unknown covariance, not a weak first stage.

@@ -82,6 +82,9 @@ class Covariance:
 
     ``matrices`` holds one 2×2 matrix (backed out) or the two extreme ones (worst case);
     ``inflation`` is added to ``Q₀₀`` after clipping so no interval is narrower than printed.
+    ``centred`` holds, per matrix, ``(Var(ρ̂ − Bπ̂), Cov(ρ̂ − Bπ̂, π̂))`` as constructed, from
+    which the cores are built: formed from the matrix instead, they cancel to nothing when
+    ``|B|·SP`` dwarfs ``S·|P|`` (the printed ``S²P²`` is then below the rounding of ``v_ρρ``).
     """
 
     method: str
@@ -90,6 +93,7 @@ class Covariance:
     implied_correlation: float | None  # before clipping
     inflation: float
     words: str
+    centred: tuple[tuple[float, float], ...] = ()
 
     def to_dict(self) -> dict:
         single = self.matrices[0] if len(self.matrices) == 1 else None
@@ -124,6 +128,11 @@ def worst_case_matrices(b: float, s: float, p: float, sp: float) -> tuple[np.nda
     return out[0], out[1]
 
 
+def _worst_centred(s: float, p: float, sp: float) -> tuple[tuple[float, float], ...]:
+    """``(Var(ρ̂ − Bπ̂), Cov(ρ̂ − Bπ̂, π̂))`` of :func:`worst_case_matrices`' two ends."""
+    return tuple(((s * p) ** 2, sign * sp * s * abs(p)) for sign in (1.0, -1.0))
+
+
 def choose_covariance(rep: Reported, sp: float) -> tuple[Covariance, list[str]]:
     """Back the covariance out of the printed IV se, or take the worst case; say which."""
     b, s, p = rep.estimate, rep.se, rep.first_stage
@@ -137,11 +146,11 @@ def choose_covariance(rep: Reported, sp: float) -> tuple[Covariance, list[str]]:
                      f"IV se by the delta method (implied correlation {implied:.4g}); the "
                      "delta-method variance of (rho - gamma)/pi is used at every direct effect")
             return Covariance(METHOD_BACKED_OUT, (_matrix(sr * sr, c, sp * sp),), implied,
-                              implied, 0.0, words), notes
+                              implied, 0.0, words, (((s * p) ** 2, c - b * sp * sp),)), notes
         clipped = max(-1.0, min(1.0, implied))
         c = clipped * sr * sp
-        q00 = (sr * sr - 2.0 * b * c + b * b * sp * sp) / (p * p)
-        inflation = max(0.0, s * s - q00)
+        centred = (sr * sr - 2.0 * b * c + b * b * sp * sp, c - b * sp * sp)
+        inflation = max(0.0, s * s - centred[0] / (p * p))
         words = ("covariance of reduced form and first stage backed out from the reported IV "
                  f"se by the delta method; the implied correlation {implied:.4g} lies outside "
                  f"[-1, 1] (rounding in the printed table) and was clipped to {clipped:g}"
@@ -155,7 +164,7 @@ def choose_covariance(rep: Reported, sp: float) -> tuple[Covariance, list[str]]:
             f"{implied:.4g} between reduced form and first stage; it was clipped to "
             f"{clipped:g} (check the table for a typo if rounding cannot explain this)")
         return Covariance(METHOD_CLIPPED, (_matrix(sr * sr, c, sp * sp),), clipped, implied,
-                          inflation, words), notes
+                          inflation, words, (centred,)), notes
     reason = ("no reduced-form se is printed" if sr is None else
               "the estimate is zero, so the reported IV se carries no information on it")
     words = (f"covariance of reduced form and first stage unknown ({reason}): worst case over "
@@ -166,13 +175,14 @@ def choose_covariance(rep: Reported, sp: float) -> tuple[Covariance, list[str]]:
     if sr is not None:
         notes.append("the reduced-form se was not used: " + reason)
     return Covariance(METHOD_WORST, worst_case_matrices(b, s, p, sp), None, None, 0.0,
-                      words), notes
+                      words, _worst_centred(s, p, sp)), notes
 
 
 def core_from(estimate: float, first_stage: float, matrix: np.ndarray, critical: float,
-              inflation: float = 0.0) -> Core:
+              inflation: float = 0.0, centred: tuple[float, float] | None = None) -> Core:
     """The :class:`~sensiv.sensitivity.linear_core.Core` of ``(ρ̂ − γ)/π̂`` for one covariance
-    of ``(ρ̂, π̂)``.
+    of ``(ρ̂, π̂)`` (``centred``: its ``Var(ρ̂ − Bπ̂)`` and ``Cov(ρ̂ − Bπ̂, π̂)`` as constructed,
+    see :class:`Covariance`; else formed from ``matrix``).
 
     Examples
     --------
@@ -182,8 +192,10 @@ def core_from(estimate: float, first_stage: float, matrix: np.ndarray, critical:
     """
     b, p = estimate, first_stage
     v_rr, v_rp, v_pp = float(matrix[0, 0]), float(matrix[0, 1]), float(matrix[1, 1])
-    q00 = (v_rr - 2.0 * b * v_rp + b * b * v_pp) / (p * p) + inflation
-    q01 = (b * v_pp - v_rp) / p**3
+    w_rr, w_rp = centred if centred is not None else (v_rr - 2.0 * b * v_rp + b * b * v_pp,
+                                                      v_rp - b * v_pp)
+    q00 = w_rr / (p * p) + inflation
+    q01 = -w_rp / p**3
     q11 = v_pp / p**4
     quad = np.array([[q00, q01], [q01, q11]])
     return Core(FOCUS, (INSTRUMENT,), b, np.array([1.0 / p]), quad, critical)

@@ -39,6 +39,7 @@ import pandas as pd
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy import stats
 from typer.testing import CliRunner
 
 from sensiv.sensitivity import bounds
@@ -693,3 +694,29 @@ def test_published_missing_direct_and_precision():
     result = invoke("published", "--estimate", "0.75", "--se", "0.25", "--first-stage", "4.2",
                     "--direct=0:0")
     assert result.exit_code == 2 and "--first-stage-f" in result.stderr
+
+
+@pytest.mark.parametrize("estimate", [0.0, 3.0, 83_047_444.0])
+def test_worst_case_far_from_zero_keeps_its_digits(estimate):
+    # |B|·SP far above S·|P|: the printed S²P² is below the rounding of Var(ρ̂), so the
+    # variance and the Anderson–Rubin set are built from Var(ρ̂ − Bπ̂) = S²P² and
+    # Cov(ρ̂ − Bπ̂, π̂) = ±SP·S·|P| as constructed (module notes of published_covariance).
+    # Expected, computed here from those two formulas (common practice, no source): at γ = 0
+    # the se is the printed S, and β₀ = B + δ is in the AR set of one extreme correlation
+    # when δ²P² ≤ χ²(δ² SP² ∓ 2δ·SP·S·|P| + S²P²).
+    s, p, f, level = 1.0, 8_966_174_194_181.0, 1.0, 0.5
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = published_analysis(estimate=estimate, se=s, first_stage=p, first_stage_f=f,
+                                 direct="0:0", confidence_level=level)
+    sp = abs(p) / math.sqrt(f)
+    chi2 = stats.chi2.ppf(level, 1)
+    roots = []
+    for sign in (1.0, -1.0):  # (P² − χ²SP²) δ² ± 2χ² SP·S·|P| δ − χ² S²P² ≤ 0
+        roots.extend(np.roots([p * p - chi2 * sp * sp, sign * 2 * chi2 * sp * s * abs(p),
+                               -chi2 * s * s * p * p]).real)
+    assert res.se == pytest.approx(s, rel=1e-12)
+    low, high = res.ar_set[0].low - estimate, res.ar_set[-1].high - estimate
+    assert (low, high) == pytest.approx((min(roots), max(roots)), rel=1e-6)
+    z = stats.norm.ppf(0.5 + level / 2)
+    assert res.union_ci.low - estimate == pytest.approx(-z * s, rel=1e-6)
