@@ -122,12 +122,21 @@ class ScoreRows:
         self._direct = [b for b in blocks if b.name not in routes]
         for j, b in enumerate(self._direct):
             routes[b.name] = (len(residuals) + len(bases) + j, None)
+        # Each residual unit keeps the columns of the centred row that some of its blocks' L
+        # reads (the outcome's never: a score is a residual times instruments or regressors).
+        self._supports = [_support([left for unit, left in routes.values() if unit == j])
+                          for j in range(len(residuals))]
+        for name, (unit, left) in routes.items():
+            if unit < len(residuals):
+                routes[name] = (unit, left[self._supports[unit]])
+        self._runs = [_runs(support) for support in self._supports]
         self._routes = [(b.name, *routes[b.name]) for b in blocks]
         self._residual_map = (np.column_stack(residuals) if residuals
                               else np.zeros((width, 0)))
         self._direct_maps = _DirectMaps(self._direct, mean) if self._direct else None
         self._bases = [(v[1:], v[0] - mean @ v[1:]) for v in bases]
-        self.widths = ([width] * len(residuals) + [distinct_count(v.shape[1]) for v in bases]
+        self.widths = ([len(support) for support in self._supports]
+                       + [distinct_count(v.shape[1]) for v in bases]
                        + [b.size for b in self._direct])
         self._buffers: dict[tuple, np.ndarray] = {}
 
@@ -148,8 +157,10 @@ class ScoreRows:
             if weights is not None:
                 e *= weights[:, None]
             for j in range(n_residuals):
-                h = self._scratch(("h", j), n, values.shape[1] + 1)
-                out.append(np.multiply(centred, e[:, j:j + 1], out=h))
+                h = self._scratch(("h", j), n, len(self._supports[j]))
+                for source, target in self._runs[j]:
+                    np.multiply(centred[:, source], e[:, j:j + 1], out=h[:, target])
+                out.append(h)
         for j, (v_map, v_offset) in enumerate(self._bases):
             v = np.matmul(values, v_map, out=self._scratch(("v", j), n, v_map.shape[1]))
             v += v_offset
@@ -201,6 +212,22 @@ class ScoreRows:
         """Each block's per-cluster score sums from each unit's per-cluster row sums."""
         return {name: per_cluster[unit] if left is None else per_cluster[unit] @ left
                 for name, unit, left in self._routes}
+
+
+def _support(maps: Sequence[np.ndarray]) -> np.ndarray:
+    """Rows of the centred row that some of ``maps`` reads (all of them if none does)."""
+    used = np.zeros(maps[0].shape[0], dtype=bool)
+    for m in maps:
+        used |= np.any(m != 0, axis=1)
+    return np.flatnonzero(used) if used.any() else np.arange(used.size)
+
+
+def _runs(support: np.ndarray) -> list[tuple[slice, slice]]:
+    """``support`` as contiguous runs: (columns of the centred row, columns of the unit's)."""
+    breaks = np.flatnonzero(np.diff(support) != 1) + 1
+    starts, stops = np.r_[0, breaks], np.r_[breaks, support.size]
+    return [(slice(int(support[a]), int(support[b - 1]) + 1), slice(int(a), int(b)))
+            for a, b in zip(starts, stops)]
 
 
 class _DirectMaps:
