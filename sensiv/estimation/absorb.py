@@ -14,8 +14,9 @@ the demeaned columns, and nothing is refitted per curve point.
   no tuning), column by column, until the relative change of the column falls below the
   tolerance (default :data:`DEFAULT_TOLERANCE`).  When all but the largest fixed effect have
   few levels together, the iteration starts from their exact solution beside the largest
-  (:mod:`sensiv.estimation.absorb_direct`); its first step is one plain sweep, which usually
-  changes it by rounding only, so one step is reported.
+  (:mod:`sensiv.estimation.absorb_direct`); its first step checks it by one plain sweep (with
+  two fixed effects, by the exact length of that sweep's change from one group sum), which
+  usually changes it by rounding only, so one step is reported.
 * **Singletons** (a level met in a single row) are dropped, iterated until none remain for
   several fixed effects: such a row is fitted exactly by its own indicator and only inflates
   the row count (common practice, no source).
