@@ -68,6 +68,7 @@ class SweepCheck:
     pairs: object  # D_b'D_s (rows), dense or CSR
     big_first: bool
 
+
 @dataclass(frozen=True, slots=True)
 class DirectPlan:
     """What the direct solve needs for every column (built once per design)."""
@@ -225,5 +226,6 @@ def sweep_change(plan: DirectPlan, residual: np.ndarray, weights: np.ndarray | N
     square = float(check.counts @ (means * means))
     if not check.big_first:
         back = (plan.cross @ means) / plan.big_totals
-        square += float(plan.big_counts @ (back * back)) - 2.0 * float(back @ (check.pairs @ means))
+        square += (float(plan.big_counts @ (back * back))
+                   - 2.0 * float(back @ (check.pairs @ means)))
     return float(np.sqrt(max(square, 0.0)))

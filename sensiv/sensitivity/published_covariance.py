@@ -93,7 +93,7 @@ class Covariance:
     implied_correlation: float | None  # before clipping
     inflation: float
     words: str
-    centred: tuple[tuple[float, float], ...] = ()
+    centred: tuple[tuple[float, float], ...]
 
     def to_dict(self) -> dict:
         single = self.matrices[0] if len(self.matrices) == 1 else None
