@@ -74,10 +74,11 @@ def _check_frame(frame: Any, what: str) -> None:
 
 
 FRAME_CHUNK_ROWS = 65_536
-"""Rows per validated chunk of an in-memory frame (``chunk_rows=None``): the cleaned chunks
-are kept, so the source holds one float64 copy of the used columns and the conversion and
+"""Rows per validated chunk of an in-memory frame (``chunk_rows=None``): the conversion and
 the passes work on blocks that stay in the processor's caches, instead of three whole-frame
-copies (a column subset, the numeric columns, the block) at once."""
+copies (a column subset, the numeric columns, the block) at once.  A frame of plain numeric
+columns is re-read chunk by chunk from its own arrays at every pass (the source holds no copy
+of its rows); otherwise the cleaned chunks are kept (one float64 copy of the used columns)."""
 
 
 def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None,
@@ -87,7 +88,9 @@ def from_frame(frame: pd.DataFrame, spec: Spec, *, chunk_rows: int | None = None
 
     ``description`` names the data in messages (e.g. the file the frame was read from).
 
-    Every row is validated here, so a bad value raises now rather than later.
+    Every row is validated here, so a bad value raises now rather than later.  A frame whose
+    used columns are all plain numbers is read again from its own arrays at every pass: do
+    not modify it while the source is in use.
 
     Raises
     ------

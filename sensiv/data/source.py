@@ -104,7 +104,8 @@ class Source:
     description: str
     _frames: Callable[[], Iterator[pd.DataFrame]] = field(repr=False, compare=False)
     _levels: dict[str, tuple[str, ...]] = field(repr=False, compare=False)
-    # In-memory sources keep the chunks they validated, so later passes do not convert again.
+    # In-memory sources that are not re-read from their frame (``_resident``) keep the chunks
+    # they validated, so later passes do not convert again.
     _cache: tuple[Chunk, ...] | None = field(default=None, repr=False, compare=False)
     # The parsed row filter and the kind ("numeric" / "text") of each column it reads.
     _filter: tuple[Node, dict[str, str]] | None = field(default=None, repr=False, compare=False)
@@ -125,6 +126,9 @@ class Source:
     _columns: Callable[[], Iterator[Sequence[np.ndarray]]] | None = field(
         default=None, repr=False, compare=False)
     _ahead: bool = field(default=False, repr=False, compare=False)
+    # An in-memory frame of plain numeric columns: validated once, then re-read from the
+    # frame's own arrays at every pass (one chunk at a time) instead of kept as a copy.
+    _resident: bool = field(default=False, repr=False, compare=False)
 
     @property
     def frames(self) -> Callable[[], Iterator[pd.DataFrame]]:
@@ -145,12 +149,12 @@ class Source:
         """A copy without its rows or readers (only what cleaning a frame needs), to send to
         the workers of a cluster together with the frames of one partition."""
         return dataclasses.replace(self, _frames=_no_frames, _cache=None, origin=None,
-                                   _columns=None)
+                                   _columns=None, _resident=False)
 
     @property
     def in_memory(self) -> bool:
         """Whether the validated chunks are held in memory (a frame) rather than re-read."""
-        return self._cache is not None
+        return self._cache is not None or self._resident
 
     def keep(self, frame: pd.DataFrame) -> np.ndarray:
         """Mask of the rows of a raw frame that the row filter keeps (all without one)."""
@@ -363,6 +367,15 @@ def build_source(spec: Spec, description: str, available: Sequence[Any],
                          streamed=not eager)
     source = Source(spec, layout, description, frames, levels, None, row_filter_kinds,
                     tuple(notes), _columns=None if text else columns, _ahead=ahead)
+    if eager and source._columns is not None:
+        # Plain numeric columns: every row is validated now, but the chunks are not kept.
+        # Re-reading a chunk of the frame's arrays costs one copy of it (its pages reused
+        # from the previous chunk's), while keeping them all costs a float64 copy of the
+        # used columns and the first touch of every one of its pages (measured at 1e6 x 58
+        # columns: 0.04 s per pass against 1.1 s and 0.46 GB to build the copy).
+        for _ in source.chunks():
+            pass
+        return dataclasses.replace(source, _resident=True)
     if eager:
         return dataclasses.replace(source, _cache=tuple(source.chunks()))
     return source

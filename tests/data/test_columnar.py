@@ -206,3 +206,31 @@ def test_plainly_finite_never_passes_what_the_full_checks_refuse(seed):
         check_scale(column, "column", 0)                   # does not raise
     if 1e-140 < scale < 1e140 and seed % 4:
         assert plainly_finite(column)                      # ordinary data take the fast path
+
+
+def test_a_frame_source_keeps_no_copy_of_the_rows():
+    """A frame of plain numeric columns is validated once and re-read from its own arrays at
+    every pass: after construction the source holds no float64 copy of the used columns
+    (measured with tracemalloc, which sees numpy's allocations), and every pass gives the
+    same chunks bit for bit.  Common practice, no source."""
+    import tracemalloc
+
+    rng = np.random.default_rng(11)
+    n = 200_000
+    frame = pd.DataFrame({name: rng.standard_normal(n) for name in ("y", "x", "z", "w1")})
+    spec = Spec("y", ["x"], ["z"], ["w1"])
+    used_bytes = n * 5 * 8                                   # four columns and the constant
+    tracemalloc.start()
+    try:
+        source = from_frame(frame, spec, chunk_rows=50_000)
+        held, _ = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert source.in_memory
+    assert held < 0.1 * used_bytes, held
+    first, second = list(source.chunks()), list(source.chunks())
+    assert [len(c.values) for c in first] == [50_000] * 4
+    for a, b in zip(first, second):
+        np.testing.assert_array_equal(a.values, b.values)
+    np.testing.assert_array_equal(np.vstack([c.values for c in first])[:, :4],
+                                  frame[["y", "x", "z", "w1"]].to_numpy())
