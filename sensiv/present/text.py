@@ -15,15 +15,16 @@ from sensiv.present.text_units import breakdown_sentence, crossing_lines
 from sensiv.sensitivity import bounds, prior
 
 
-def _table(header: list[str], rows: list[list[str]]) -> list[str]:
+def _table(header: list[str], rows: list[list[str]], text: frozenset[int] = frozenset({0})
+           ) -> list[str]:
+    """Columns padded to their widths: the ``text`` columns flush left, numbers flush right."""
     widths = [max(len(r[j]) for r in [header, *rows]) for j in range(len(header))]
-    line = "  ".join(h.ljust(w) if j == 0 else h.rjust(w) for j, (h, w) in
-                     enumerate(zip(header, widths)))
-    out = [line, "-" * len(line)]
-    for r in rows:
-        out.append("  ".join(c.ljust(w) if j == 0 else c.rjust(w) for j, (c, w) in
-                             enumerate(zip(r, widths))))
-    return out
+
+    def line(cells: list[str]) -> str:
+        return "  ".join(c.ljust(w) if j in text else c.rjust(w)
+                         for j, (c, w) in enumerate(zip(cells, widths))).rstrip()
+
+    return [line(header), "-" * (sum(widths) + 2 * len(widths) - 2), *map(line, rows)]
 
 
 def fit_summary(fit) -> str:
@@ -167,4 +168,5 @@ def text_table(table) -> str:
     estimate or bounds, interval and breakdown (assumptions are in the report)."""
     header, rows = table_cells(table)
     keep = [0, 2, 3, 4]
-    return "\n".join(_table([header[j] for j in keep], [[r[j] for j in keep] for r in rows]))
+    return "\n".join(_table([header[j] for j in keep], [[r[j] for j in keep] for r in rows],
+                            text=frozenset({0, 3})))

@@ -70,6 +70,19 @@ def table_words(units, outcome: str = "outcome") -> str:
     return "direct effect up to " + ", ".join(parts)
 
 
+def _nearest(lo, hi) -> tuple[str, str]:
+    """Where the crossings are (``a direct effect of -0.03 (nearest below zero) or 0.052
+    (nearest above zero)``) and, for a side without one, a clause that says so."""
+    below = None if lo is None else f"{format_number(lo)} (nearest below zero)"
+    above = None if hi is None else f"{format_number(hi)} (nearest above zero)"
+    if below and above:
+        return f"a direct effect of {below} or {above}", ""
+    if below or above:
+        side = "positive" if above is None else "negative"
+        return f"a direct effect of {below or above}", f"; no {side} direct effect does"
+    return "no direct effect", ""
+
+
 def crossing_lines(instruments, b) -> list[str]:
     """Per instrument alone, where an end of the interval crosses the threshold: where the
     conclusion breaks, or — when there is no conclusion at zero direct effect — where one
@@ -77,16 +90,14 @@ def crossing_lines(instruments, b) -> list[str]:
     theta = format_number(b.threshold)
     lines = []
     for z, lo, hi in zip(instruments, b.direct_lower, b.direct_upper):
-        lo_t = "none" if lo is None else format_number(lo)
-        hi_t = "none" if hi is None else format_number(hi)
+        where, other_side = _nearest(lo, hi)
         if b.scale == 0:
             lines.append(f"  {labels.name(z)} alone: a conclusion about {theta} would first "
-                         f"appear at a direct effect of {lo_t} (nearest below zero) or {hi_t} (nearest "
-                         "above zero), where the interval stops containing it")
+                         f"appear at {where}, where the interval stops containing it"
+                         + other_side)
         else:
             lines.append(f"  {labels.name(z)} alone: an end of the interval crosses {theta} at "
-                         f"a direct effect of {lo_t} (nearest below zero) or {hi_t} (nearest above "
-                         "zero)")
+                         f"{where}{other_side}")
     return lines
 
 
