@@ -80,7 +80,8 @@ class Absorption:
     dropped_controls : tuple of str
         Controls with no variation left within the fixed effects, dropped from the model.
     streamed : bool
-        Whether the demeaning streamed over chunks (one fixed effect on a file).
+        Whether the demeaning streamed over chunks (one fixed effect on a file, or two on a
+        file too large to hold in memory).
     """
 
     effects: tuple[str, ...]
@@ -109,9 +110,15 @@ class Absorption:
     def assumptions(self) -> list[str]:
         listed = ", ".join(f"'{name}' ({levels} levels)"
                            for name, levels in zip(self.effects, self.levels))
+        steps = f"{self.iterations} step{'s' if self.iterations != 1 else ''}"
+        # The requested tolerance, not the change reached (rounding noise that differs in its
+        # last digits between the in-memory and the streamed solve), unless it was missed.
         how = ("exactly, by group means" if len(self.effects) == 1 else
-               f"by alternating projections to a relative tolerance {self.tolerance:.1e} "
-               f"after {self.iterations} steps")
+               f"by alternating projections to within the relative tolerance "
+               f"{self.requested_tolerance:.1e} after {steps}"
+               if self.tolerance <= self.requested_tolerance else
+               f"by alternating projections, stopped after {steps} at a relative change "
+               f"{self.tolerance:.1e} above the tolerance {self.requested_tolerance:.1e}")
         text = [f"fixed effects of {listed} absorbed ({how}): every coefficient, first stage "
                 "and direct effect is a within-group quantity; the fixed effects' own "
                 "coefficients are not reported"]

@@ -3,8 +3,13 @@ partialled out (see :mod:`sensiv.estimation.absorb`): every pass of the moments 
 runs unchanged on the demeaned columns.
 
 * **In memory** (a frame, or several fixed effects on a file): the used columns are gathered as
-  float64 (one copy of them; a streamed file with several fixed effects is loaded this way),
-  singletons are dropped, and the columns are demeaned once and kept.
+  float64 (one copy of them; a streamed file with several fixed effects is loaded this way
+  while its used columns fit in
+  :func:`~sensiv.estimation.absorb_streamed.two_way_budget`), singletons are dropped, and the
+  columns are demeaned once and kept.
+* **Two fixed effects streamed** (a file whose used columns exceed the budget):
+  :mod:`sensiv.estimation.absorb_streamed` — level and pair tables in a first pass, the direct
+  solve on them, every later pass demeaned by two look-ups.
 * **Streamed** (one fixed effect on a file): a first pass gathers per-level row counts, weight
   sums, weighted sums and the within-level minimum and maximum of every column — memory grows
   with the levels, not the rows; every later pass demeans each chunk by the level means.
@@ -26,6 +31,7 @@ from sensiv.core.errors import AbsorbConvergenceWarning, InputError
 from sensiv.core.memory import release_freed
 from sensiv.data.source import Chunk, Layout
 from sensiv.estimation import absorb as fe
+from sensiv.estimation import absorb_streamed
 from sensiv.estimation.absorb_view import (GroupAbsorbed, LevelCodes, Stream, apply_drops,
                                            demean_chunks, group_absorbed, model_roles, refusal)
 from sensiv.estimation.label_codes import LabelCodes, cluster_label_columns
@@ -45,7 +51,7 @@ class AbsorbedSource:
     notes: tuple[str, ...] = ()
     _cache: tuple[Chunk, ...] | None = field(default=None, repr=False)
     _source: object = field(default=None, repr=False)
-    _stream: Stream | None = field(default=None, repr=False)
+    _stream: Stream | absorb_streamed.TwoWayStream | None = field(default=None, repr=False)
     moments: Moments | None = field(default=None, repr=False)
     """Pass 1's moments when pass 0 already gave them (streamed one-way absorption)."""
 
@@ -53,6 +59,10 @@ class AbsorbedSource:
         if self._cache is not None:
             for chunk in self._cache:
                 yield from _pieces(chunk)
+            return
+        if isinstance(self._stream, absorb_streamed.TwoWayStream):
+            yield from absorb_streamed.demean_chunks(self._source.chunks(), self._stream,
+                                                    self.absorption.effects, self.description)
             return
         yield from demean_chunks(self._source.chunks(), self._stream,
                                  self.absorption.effects[0], self.description)
@@ -121,12 +131,26 @@ def _core_columns(source, keep: np.ndarray, n_core: int) -> np.ndarray:
     return values[keep][:, :n_core]
 
 
-def _in_memory(source, tolerance: float, max_iterations: int) -> AbsorbedSource:
-    spec, layout = source.spec, source.layout
-    all_chunks = []
-    for chunk in source.chunks():   # each frame read is freed; its pages go back at once
-        all_chunks.append(chunk)
+def _held_chunks(source, budget: float | None = None) -> list[Chunk] | None:
+    """Every chunk of ``source`` (each frame read is freed; its pages go back at once), or
+    ``None`` as soon as their values take more than ``budget`` bytes."""
+    held, size = [], 0
+    for chunk in source.chunks():
+        held.append(chunk)
+        size += chunk.values.nbytes
         release_freed()
+        if budget is not None and size > budget:
+            held.clear()
+            release_freed()
+            return None
+    return held
+
+
+def _in_memory(source, tolerance: float, max_iterations: int,
+               all_chunks: list[Chunk] | None = None) -> AbsorbedSource:
+    spec, layout = source.spec, source.layout
+    if all_chunks is None:
+        all_chunks = _held_chunks(source)
     n_dropped = sum(c.n_dropped for c in all_chunks)
     n_filtered = sum(c.n_filtered for c in all_chunks)
     values, weights, clusters, groups = _gather(all_chunks, len(spec.absorb), source.description)
@@ -345,4 +369,16 @@ def absorb_source(source, *, tolerance: float | None = None,
         # dask: the used columns are gathered here and demeaned as numpy does (in memory)
     if len(source.spec.absorb) == 1 and not getattr(source, "in_memory", True):
         return _streamed(source)
-    return _in_memory(source, tolerance, max_iterations)
+    held = None
+    if (len(source.spec.absorb) == 2 and engine == "numpy"
+            and not getattr(source, "in_memory", True)):
+        # Held (one read, then passes over the rows in memory) unless their values exceed
+        # the budget; then streamed (three reads, memory in the levels), where it can be.
+        held = _held_chunks(source, absorb_streamed.two_way_budget())
+        found = None if held is not None else absorb_streamed.streamed(source, tolerance)
+        if found is not None:
+            return AbsorbedSource(source.spec, found.layout, source.description,
+                                  found.absorption,
+                                  tuple(getattr(source, "notes", ())) + found.notes, None,
+                                  source, found.stream, found.moments)
+    return _in_memory(source, tolerance, max_iterations, held)

@@ -1,0 +1,132 @@
+"""Pass 0 of two absorbed fixed effects on a streamed file: per-level and per-pair sums of
+every column (memory grows with the levels and their distinct pairs, not the rows), and the
+singletons dropped from those tables alone (see :mod:`sensiv.estimation.absorb_streamed`)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from sensiv.data.source import Chunk
+from sensiv.estimation import absorb as fe
+from sensiv.estimation.absorb_view import LevelCodes
+from sensiv.estimation.moments import BLOCK_ROWS, Moments, chunk_moments, empty_moments
+
+
+@dataclass
+class Tables:
+    """What pass 0 gathers (per fixed effect ``k``: ``counts[k]``, ``totals[k]``, ``sums[k]``)."""
+
+    codes: tuple[LevelCodes, LevelCodes]
+    counts: list
+    totals: list
+    sums: list
+    keys: np.ndarray  # (code of the first << 32) | code of the second, sorted, distinct
+    pair_rows: np.ndarray
+    pair_weights: np.ndarray
+    raw: Moments
+    shift: np.ndarray | None = None
+    chunks: int = 0
+
+    @classmethod
+    def empty(cls, columns) -> Tables:
+        nothing = np.zeros(0)
+        return cls((LevelCodes(), LevelCodes()), [None, None], [None, None], [None, None],
+                   nothing.astype(np.int64), nothing, nothing, empty_moments(columns))
+
+
+def _grown(array: np.ndarray | None, size: int, width: int | None = None) -> np.ndarray:
+    shape = (size,) if width is None else (size, width)
+    if array is None:
+        return np.zeros(shape)
+    if array.shape[0] >= size:
+        return array
+    return np.concatenate([array, np.zeros((size - array.shape[0],) + shape[1:])])
+
+
+def _add_pairs(t: Tables, key: np.ndarray, rows: np.ndarray, weights: np.ndarray) -> None:
+    """One chunk's pairs of levels (distinct, sorted ``key``) added to the sorted table:
+    memory grows with the distinct pairs, whatever the number of chunks."""
+    if t.keys.size == 0:
+        t.keys, t.pair_rows, t.pair_weights = key, rows, weights
+        return
+    at = np.searchsorted(t.keys, key)
+    found = at < t.keys.size
+    found[found] = t.keys[at[found]] == key[found]
+    t.pair_rows[at[found]] += rows[found]
+    t.pair_weights[at[found]] += weights[found]
+    new = ~found
+    if new.any():
+        t.keys = np.insert(t.keys, at[new], key[new])
+        t.pair_rows = np.insert(t.pair_rows, at[new], rows[new])
+        t.pair_weights = np.insert(t.pair_weights, at[new], weights[new])
+
+
+def _add_chunk(t: Tables, chunk: Chunk) -> None:
+    values, weights = chunk.values, chunk.weights
+    if t.shift is None:
+        t.shift = values[0].copy()
+    codes = []
+    for k in range(2):
+        c, n = t.codes[k].encode(chunk.groups[k])
+        codes.append(c)
+        t.counts[k] = _grown(t.counts[k], n)
+        t.totals[k] = _grown(t.totals[k], n)
+        t.sums[k] = _grown(t.sums[k], n, values.shape[1])
+        t.counts[k][:n] += np.bincount(c, minlength=n)
+        t.totals[k][:n] += fe.group_weights(c, n, weights)
+    shifted = values - t.shift
+    w_values = shifted if weights is None else shifted * weights[:, None]
+    for k in range(2):
+        n = t.counts[k].size
+        for j in range(values.shape[1]):
+            t.sums[k][:, j] += np.bincount(codes[k], weights=w_values[:, j], minlength=n)
+    key, local = np.unique((codes[0] << 32) | codes[1], return_inverse=True)
+    rows = np.bincount(local, minlength=key.size).astype(np.float64)
+    _add_pairs(t, key, rows, rows.copy() if weights is None
+               else np.bincount(local, weights=weights, minlength=key.size))
+
+
+def level_tables(source) -> Tables:
+    """Pass 0: per-level and per-pair sums of every (shifted) column, and the raw moments."""
+    t = Tables.empty(source.layout.columns)
+    scratch = None
+    for chunk in source.chunks():
+        t.chunks += 1
+        if scratch is None:
+            scratch = np.empty((BLOCK_ROWS, chunk.values.shape[1]), order="F")
+        t.raw = t.raw + chunk_moments(t.raw.columns, chunk.values, chunk.weights,
+                                      chunk.n_dropped, chunk.n_filtered, scratch)
+        if chunk.values.shape[0]:
+            _add_chunk(t, chunk)
+    return t
+
+
+def drop_singletons(t: Tables) -> tuple[list[np.ndarray], np.ndarray, int]:
+    """Levels kept per fixed effect, pairs kept, rows dropped; the tables are updated in place.
+
+    A level with one row left holds that row's weighted values in its sums (and its weight in
+    its total), so the row is taken out of the other fixed effect's level by subtraction."""
+    key = t.keys
+    pa, pb = key >> 32, key & 0xFFFFFFFF
+    counts = [t.counts[0].copy(), t.counts[1].copy()]
+    alive = np.ones(key.size, dtype=bool)
+    dropped = 0
+    while True:
+        single = [counts[0] == 1, counts[1] == 1]
+        hit = np.flatnonzero(alive & (single[0][pa] | single[1][pb]))
+        if hit.size == 0:
+            break
+        a, b = pa[hit], pb[hit]
+        via_a = single[0][a]
+        row = np.where(via_a[:, None], t.sums[0][a], t.sums[1][b])
+        weight = np.where(via_a, t.totals[0][a], t.totals[1][b])
+        for k, level in ((0, a), (1, b)):
+            np.subtract.at(t.sums[k], level, row)
+            np.subtract.at(t.totals[k], level, weight)
+            np.subtract.at(counts[k], level, 1.0)
+        alive[hit] = False
+        dropped += hit.size
+    t.counts = counts
+    return [counts[0] > 0, counts[1] > 0], alive, dropped
