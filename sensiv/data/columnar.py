@@ -1,7 +1,8 @@
 """The fast path from plain numeric columns to clean float64 blocks, without pandas.
 
 When every used column is a plain numeric column (integers, floats or booleans: no text
-control, no cluster or absorbed fixed effect, no row filter), a reader hands over, per chunk,
+control, no text cluster or absorbed fixed effect, no categorical control, no row filter; a
+cluster or fixed-effect column of numbers is a column of labels), a reader hands over, per chunk,
 one 1-D array per used column — slices of a frame's numpy columns, or the columns of an Arrow
 record batch — and :func:`clean_arrays` checks and copies them straight into the column-major
 block of a :class:`~sensiv.data.source.Chunk`.  The checks and messages are those of the
@@ -28,7 +29,7 @@ import numpy as np
 from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_MAGNITUDE
 from sensiv.data.convert import check_scale, data_row, extremes
-from sensiv.data.spec import Spec, roles, used_columns
+from sensiv.data.spec import Spec, cluster_columns, roles, used_columns
 
 _UPPER = 0.25 * MAX_MAGNITUDE ** 2
 _LOWER = 4.0 / MAX_MAGNITUDE ** 2
@@ -49,13 +50,15 @@ class Cleaned:
     rows: int
     kept: int
     missing: dict[str, int]
+    clusters: np.ndarray | None = None  # as Chunk.clusters: (rows,) or (rows, 2) labels
+    groups: tuple[np.ndarray, ...] | None = None  # as Chunk.groups: one per absorbed effect
 
 
 def fast_columns(spec: Spec, kinds: dict[str, str]) -> list[str] | None:
     """The columns the fast path reads (:func:`sensiv.data.spec.used_columns`), or ``None``
-    when ``spec`` needs the general path (a row filter, clusters, absorbed fixed effects,
-    categorical controls) or a column's kind (``kinds[name]``) is not ``"plain"``."""
-    if spec.where is not None or spec.cluster is not None or spec.absorb or spec.categorical:
+    when ``spec`` needs the general path (a row filter, categorical controls) or a column's
+    kind (``kinds[name]``) is not ``"plain"`` (text clusters and fixed effects among them)."""
+    if spec.where is not None or spec.categorical:
         return None
     names = used_columns(spec)
     return names if all(kinds.get(name) == "plain" for name in names) else None
@@ -112,15 +115,20 @@ def clean_arrays(arrays: Sequence[np.ndarray], spec: Spec, where: str, first_row
     into a column-major float64 block, rows with a missing value dropped.  ``first_row``:
     the data rows before this chunk (for messages)."""
     names = used_columns(spec)
-    columns = {name: (a if a.dtype == np.float64 else a.astype(np.float64))
+    labels = set(label_columns(spec))
+    columns = {name: (a if a.dtype == np.float64 or name in labels else a.astype(np.float64))
                for name, a in zip(names, arrays)}
     n = len(arrays[0]) if arrays else 0
     missing: dict[str, int] = {}
     drop = None
     for role, name in roles(spec):
         column = columns[name]
-        mask = None if plainly_finite(column) else checked_column(column, role, name, where,
-                                                                  first_row)
+        if name in labels:          # labels: only missing (NaN where Arrow had a null)
+            mask = np.isnan(column) if column.dtype.kind == "f" else None
+            mask = None if mask is None or not mask.any() else mask
+        else:
+            mask = None if plainly_finite(column) else checked_column(column, role, name,
+                                                                      where, first_row)
         missing[name] = 0 if mask is None else int(mask.sum())
         if mask is not None:
             drop = mask if drop is None else drop | mask
@@ -136,7 +144,20 @@ def clean_arrays(arrays: Sequence[np.ndarray], spec: Spec, where: str, first_row
     if spec.weight is not None:
         w = columns[spec.weight]
         weights = np.array(w if keep is None else w[keep], dtype=np.float64)
-    return Cleaned(values, weights, n, kept, missing)
+
+    def kept_labels(name: str) -> np.ndarray:
+        return columns[name] if keep is None else columns[name][keep]
+
+    names = cluster_columns(spec)
+    clusters = (None if not names else kept_labels(names[0]) if len(names) == 1
+                else np.column_stack([kept_labels(name) for name in names]))
+    groups = tuple(kept_labels(name) for name in spec.absorb) if spec.absorb else None
+    return Cleaned(values, weights, n, kept, missing, clusters, groups)
+
+
+def label_columns(spec: Spec) -> list[str]:
+    """The columns read as labels, not numbers: the cluster and absorbed fixed-effect columns."""
+    return list(dict.fromkeys([*cluster_columns(spec), *spec.absorb]))
 
 
 def cleaned(batches: Iterator[Sequence[np.ndarray]], spec: Spec, where: str, *,

@@ -179,7 +179,8 @@ class Source:
             for item in cleaned(self._columns(), self.spec, self.description,
                                 ahead=self._ahead):
                 tally.add(item.rows, item.kept, item.missing)
-                yield Chunk(item.values, item.weights, None, item.rows - item.kept)
+                yield Chunk(item.values, item.weights, item.clusters, item.rows - item.kept,
+                            0, item.groups)
         else:
             yield from clean_chunks(self, self._frames(), tally)
         tally.finish()

@@ -18,7 +18,7 @@ on each fixed effect and the weighted cross-tabulation of the two: the residual 
   nested in a cluster variable; every later pass demeans its chunks the same way.
 
 It serves a file whose used columns exceed :func:`two_way_budget` (below it, one read and
-passes over the rows in memory are faster than three reads: 0.4 against 0.7 s at 1e6 rows).  When
+passes over the rows in memory are as fast as three reads at 1e6 rows, and slower beyond).  When
 the smaller fixed effect has more than :data:`~sensiv.estimation.absorb_direct.DIRECT_LEVELS`
 levels, when the sweep's change exceeds the tolerance, or when the file is one chunk, the
 caller holds the rows in memory instead, so the results are those of the in-memory path in
@@ -55,11 +55,12 @@ def two_way_budget() -> float:
                                                            IN_MEMORY_SHARE * available))
 
 
-HELD_BYTES = 256 * 2 ** 20
-"""Used columns held in memory for two absorbed fixed effects at most (measured with
-``tests/benchmarks/bench_absorb.py``, 11 columns: at 1e6 rows, 84 MB, held 0.4 s against
-streamed 0.7 s; at 5e6 rows, 420 MB, held 4.0 s and 836 MB peak against streamed 3.7 s and
-302 MB)."""
+HELD_BYTES = 128 * 2 ** 20
+"""Used columns held in memory for two absorbed fixed effects at most (the values of the
+model columns; measured on the design of ``tests/benchmarks/bench_absorb.py``, 8 model
+columns, cluster covariance, best of 3: at 1e6 rows (61 MiB) held 0.43 s against streamed
+0.54 s; at 4e6 rows held 2.4 s against streamed 1.8 s; at 5e6 rows held 3.7 s and 946 MB peak
+against streamed 2.5 s and 293 MB)."""
 
 IN_MEMORY_SHARE = 0.2
 """Share of the available memory the used columns of a two-way absorption may take in memory

@@ -25,6 +25,9 @@ from sensiv.estimation.moments import accumulate
 
 SPEC = Spec("y", ["x"], ["z"], controls=["a", "b", "c", "d"])
 WEIGHTED = Spec("y", ["x"], ["z"], controls=["a", "b", "d"], weight="w")
+LABELLED = Spec("y", ["x"], ["z"], controls=["a", "b", "d"], weight="w", cluster="c",
+                absorb=("f", "c"))                   # a cluster that is also absorbed
+TWO_WAY = Spec("y", ["x"], ["z"], controls=["a", "d"], cluster=("c", "f"), absorb=("f",))
 
 
 def random_frame(seed: int, n: int = 1_003, missing: bool = True) -> pd.DataFrame:
@@ -39,6 +42,7 @@ def random_frame(seed: int, n: int = 1_003, missing: bool = True) -> pd.DataFram
         "c": rng.integers(0, 20, n).astype(np.uint8),     # uint8
         "d": rng.standard_normal(n) * 1e6,
         "w": rng.random(n) + 0.1,
+        "f": rng.integers(0, 30, n) * 1_000_003,          # int64 labels far beyond any scale
         "unused": ["text"] * n,
     })
     if missing:
@@ -65,8 +69,13 @@ def assert_same_chunks(fast, general):
         assert (a.weights is None) == (b.weights is None)
         if a.weights is not None:
             np.testing.assert_array_equal(a.weights, b.weights)
-        assert (a.n_dropped, a.n_filtered, a.clusters, a.groups) == (
-            b.n_dropped, b.n_filtered, b.clusters, b.groups)
+        assert (a.n_dropped, a.n_filtered) == (b.n_dropped, b.n_filtered)
+        assert (a.clusters is None) == (b.clusters is None)
+        if a.clusters is not None:                     # the same labels, row for row
+            np.testing.assert_array_equal(a.clusters, b.clusters)
+        assert (a.groups is None) == (b.groups is None)
+        for x, y in zip(a.groups or (), b.groups or ()):
+            np.testing.assert_array_equal(x, y)
     m_fast = accumulate(fast.chunks(), fast.layout.columns)
     m_general = accumulate(general.chunks(), general.layout.columns)
     assert (m_fast.n, m_fast.n_dropped) == (m_general.n, m_general.n_dropped)
@@ -75,7 +84,7 @@ def assert_same_chunks(fast, general):
 
 
 @pytest.mark.parametrize("seed", [1, 2, 3])
-@pytest.mark.parametrize("spec", [SPEC, WEIGHTED])
+@pytest.mark.parametrize("spec", [SPEC, WEIGHTED, LABELLED, TWO_WAY])
 @pytest.mark.parametrize("chunk_rows", [None, 97])
 def test_frame_fast_path_gives_the_general_chunks(monkeypatch, seed, spec, chunk_rows):
     frame = random_frame(seed)
@@ -99,15 +108,17 @@ def write_parquet(path, frame: pd.DataFrame, row_group_size: int = 300) -> None:
     nulls = rng.random(n) < 0.04
     z = pa.array(frame["z"].to_numpy(), mask=nulls)            # int64 with nulls
     a = pa.array(frame["a"].to_numpy(), mask=rng.random(n) < 0.03)   # bool with nulls
+    f = pa.array(frame["f"].to_numpy(), mask=rng.random(n) < 0.03)   # labels with nulls
     table = table.set_column(table.schema.get_field_index("z"), "z", z)
     table = table.set_column(table.schema.get_field_index("a"), "a", a)
+    table = table.set_column(table.schema.get_field_index("f"), "f", f)
     levels = pa.array(np.array(["p", "q", "r"])[rng.integers(0, 3, n)]).dictionary_encode()
     table = table.append_column("g", levels)
     pq.write_table(table, path, row_group_size=row_group_size)
 
 
 @pytest.mark.parametrize("seed", [4, 5])
-@pytest.mark.parametrize("spec", [SPEC, WEIGHTED])
+@pytest.mark.parametrize("spec", [SPEC, WEIGHTED, LABELLED, TWO_WAY])
 @pytest.mark.parametrize("chunk_rows", [100_000, 128])
 def test_parquet_fast_path_gives_the_general_chunks(tmp_path, monkeypatch, seed, spec,
                                                      chunk_rows):
@@ -124,6 +135,10 @@ def test_dictionary_and_text_columns_take_the_general_path(tmp_path):
     with_text = Spec("y", ["x"], ["z"], controls=["a", "g"])
     assert from_file(path, with_text)._columns is None
     assert from_file(path, Spec("y", ["x"], ["z"], cluster="g"))._columns is None
+    assert from_file(path, Spec("y", ["x"], ["z"], absorb=("g",)))._columns is None
+    # numbers as labels (clusters, fixed effects) take the fast path
+    assert from_file(path, Spec("y", ["x"], ["z"], cluster="c", absorb=("f",)))._columns \
+        is not None
     assert from_file(path, Spec("y", ["x"], ["z"], where="d > 0"))._columns is None
     frame = random_frame(6)
     frame["e"] = pd.array(np.arange(len(frame)) % 5, dtype="Int64")   # an extension dtype
