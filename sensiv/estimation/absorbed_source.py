@@ -139,7 +139,7 @@ def _held_chunks(source, budget: float | None = None) -> list[Chunk] | None:
         held.append(chunk)
         size += chunk.values.nbytes
         release_freed()
-        if budget is not None and size > budget:
+        if budget is not None and size > budget:   # read again by the streamed passes
             held.clear()
             release_freed()
             return None

@@ -70,9 +70,10 @@ def table_words(units, outcome: str = "outcome") -> str:
     return "direct effect up to " + ", ".join(parts)
 
 
-def _nearest(lo, hi) -> tuple[str, str]:
+def _nearest(lo, hi) -> tuple[str, str] | None:
     """Where the crossings are (``a direct effect of -0.03 (nearest below zero) or 0.052
-    (nearest above zero)``) and, for a side without one, a clause that says so."""
+    (nearest above zero)``) and, for a side without one, a clause that says so; ``None``
+    without any."""
     below = None if lo is None else f"{format_number(lo)} (nearest below zero)"
     above = None if hi is None else f"{format_number(hi)} (nearest above zero)"
     if below and above:
@@ -80,7 +81,7 @@ def _nearest(lo, hi) -> tuple[str, str]:
     if below or above:
         side = "positive" if above is None else "negative"
         return f"a direct effect of {below or above}", f"; no {side} direct effect does"
-    return "no direct effect", ""
+    return None
 
 
 def crossing_lines(instruments, b) -> list[str]:
@@ -90,7 +91,13 @@ def crossing_lines(instruments, b) -> list[str]:
     theta = format_number(b.threshold)
     lines = []
     for z, lo, hi in zip(instruments, b.direct_lower, b.direct_upper):
-        where, other_side = _nearest(lo, hi)
+        found = _nearest(lo, hi)
+        if found is None:
+            what = (f"makes a conclusion about {theta} appear" if b.scale == 0 else
+                    f"makes an end of the interval cross {theta}")
+            lines.append(f"  {labels.name(z)} alone: no direct effect {what}")
+            continue
+        where, other_side = found
         if b.scale == 0:
             lines.append(f"  {labels.name(z)} alone: a conclusion about {theta} would first "
                          f"appear at {where}, where the interval stops containing it"

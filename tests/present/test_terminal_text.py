@@ -56,8 +56,10 @@ def test_crossings_name_the_side_without_one():
         crossing_lines(["z"], both)[0]
     neither = bounds.Breakdown(0.0, 0.0, (None,), (None,), "none")
     assert crossing_lines(["z"], neither) == [
-        "  z alone: a conclusion about 0 would first appear at no direct effect, where the "
-        "interval stops containing it"]
+        "  z alone: no direct effect makes a conclusion about 0 appear"]
+    never = bounds.Breakdown(0.0, 2.0, (None,), (None,), "β > 0")
+    assert crossing_lines(["z"], never) == [
+        "  z alone: no direct effect makes an end of the interval cross 0"]
     below_only = bounds.Breakdown(0.0, 0.0, (-0.2,), (None,), "none")
     assert crossing_lines(["z"], below_only)[0].endswith(
         "at a direct effect of -0.2 (nearest below zero), where the interval stops containing "
