@@ -206,6 +206,33 @@ def origin_columns(origin: Origin) -> list[str]:
     return list(_arrow_dataset(list(origin.paths), origin.kind, origin.base).schema.names)
 
 
+def _dataset_columns(files: list[str], base: str | None, schema: Any, spec: Any, rows: int
+                     ) -> Callable[[], Iterator[list]] | None:
+    """The fast path's chunks of a Parquet data set whose used columns are Arrow numbers
+    (:mod:`sensiv.data.columnar`): each record batch's columns as numpy arrays, file by file,
+    or ``None`` for the general path."""
+    from sensiv.data.columnar import arrow_array, arrow_kind, fast_columns
+
+    if not isinstance(spec, Spec):
+        return None
+    kinds = {name: arrow_kind(schema.field(name).type) for name in read_columns(spec)
+             if name in schema.names}
+    names = fast_columns(spec, kinds)
+    if names is None:
+        return None
+
+    def batches() -> Iterator[list]:
+        dataset = _arrow_dataset(files, "parquet", base)
+        for fragment in dataset.get_fragments():
+            try:
+                for batch in fragment.to_batches(schema=dataset.schema, columns=names,
+                                                 batch_size=rows):
+                    yield [arrow_array(batch.column(name)) for name in names]
+            except _read_errors() as exc:
+                raise _corrupt(Path(fragment.path).name, "Parquet", exc) from exc
+    return batches
+
+
 def _dataset_reader(files: list[str], fmt: str, base: str | None, used: list[str], rows: int
                     ) -> Callable[[], Iterator[pd.DataFrame]]:
     def frames() -> Iterator[pd.DataFrame]:
@@ -353,5 +380,8 @@ def from_dataset(path: Any, spec: Spec, *, chunk_rows: int) -> Source:
                              "with at least one row")
         return [frame]
 
-    source = build_source(spec, description, available, samples, make_frames, eager=False)
+    columns = (_dataset_columns(files, base, dataset.schema, spec, chunk_rows)
+               if "::" not in text and fmt == "parquet" else None)
+    source = build_source(spec, description, available, samples, make_frames, eager=False,
+                          columns=columns, ahead=columns is not None)
     return dataclasses.replace(source, origin=origin, chunk_rows=chunk_rows)

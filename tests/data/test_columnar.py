@@ -15,6 +15,7 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
+import sensiv.data.datasets as datasets
 import sensiv.data.readers as readers
 from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_MAGNITUDE
@@ -56,6 +57,7 @@ def general_source(monkeypatch, read, *args, **kwargs):
     with monkeypatch.context() as patch:
         patch.setattr(readers, "_frame_columns", lambda *a: None)
         patch.setattr(readers, "_parquet_columns", lambda *a: None)
+        patch.setattr(datasets, "_dataset_columns", lambda *a: None)
         return read(*args, **kwargs)
 
 
@@ -126,6 +128,20 @@ def test_parquet_fast_path_gives_the_general_chunks(tmp_path, monkeypatch, seed,
     write_parquet(path, random_frame(seed))
     fast = from_file(path, spec, chunk_rows=chunk_rows)
     general = general_source(monkeypatch, from_file, path, spec, chunk_rows=chunk_rows)
+    assert_same_chunks(fast, general)
+
+
+@pytest.mark.parametrize("spec", [WEIGHTED, LABELLED, TWO_WAY,
+                                  Spec("y", ["x"], ["z"], controls=["a"], cluster="part")])
+def test_partitioned_parquet_fast_path_gives_the_general_chunks(tmp_path, monkeypatch, spec):
+    frame = random_frame(8)
+    for part in range(3):                     # hive partitions: part=0, part=1, part=2
+        folder = tmp_path / "set" / f"part={part}"
+        folder.mkdir(parents=True)
+        write_parquet(folder / "piece.parquet", frame.iloc[part::3].reset_index(drop=True),
+                      row_group_size=90)
+    fast = from_file(tmp_path / "set", spec, chunk_rows=64)
+    general = general_source(monkeypatch, from_file, tmp_path / "set", spec, chunk_rows=64)
     assert_same_chunks(fast, general)
 
 
