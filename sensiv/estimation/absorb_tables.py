@@ -37,12 +37,16 @@ class Tables:
 
 
 def _grown(array: np.ndarray | None, size: int, width: int | None = None) -> np.ndarray:
-    shape = (size,) if width is None else (size, width)
+    """``array`` with room for ``size`` levels: doubled when it grows, so that levels met
+    chunk after chunk cost amortised constant copying (the spare rows stay 0: no rows)."""
+    tail = () if width is None else (width,)
     if array is None:
-        return np.zeros(shape)
+        return np.zeros((size,) + tail)
     if array.shape[0] >= size:
         return array
-    return np.concatenate([array, np.zeros((size - array.shape[0],) + shape[1:])])
+    grown = np.zeros((max(size, 2 * array.shape[0]),) + tail)
+    grown[:array.shape[0]] = array
+    return grown
 
 
 def _add_pairs(t: Tables, key: np.ndarray, rows: np.ndarray, weights: np.ndarray) -> None:
@@ -79,9 +83,9 @@ def _add_chunk(t: Tables, chunk: Chunk) -> None:
     shifted = values - t.shift
     w_values = shifted if weights is None else shifted * weights[:, None]
     for k in range(2):
-        n = t.counts[k].size
+        n = len(t.codes[k].labels())
         for j in range(values.shape[1]):
-            t.sums[k][:, j] += np.bincount(codes[k], weights=w_values[:, j], minlength=n)
+            t.sums[k][:n, j] += np.bincount(codes[k], weights=w_values[:, j], minlength=n)
     key, local = np.unique((codes[0] << 32) | codes[1], return_inverse=True)
     rows = np.bincount(local, minlength=key.size).astype(np.float64)
     _add_pairs(t, key, rows, rows.copy() if weights is None
@@ -100,6 +104,10 @@ def level_tables(source) -> Tables:
                                       chunk.n_dropped, chunk.n_filtered, scratch)
         if chunk.values.shape[0]:
             _add_chunk(t, chunk)
+    for k in range(2):          # the spare rows of the doubled tables cut off
+        n = len(t.codes[k].labels())
+        if t.counts[k] is not None:
+            t.counts[k], t.totals[k], t.sums[k] = t.counts[k][:n], t.totals[k][:n], t.sums[k][:n]
     return t
 
 
