@@ -22,18 +22,31 @@ class Tables:
     counts: list
     totals: list
     sums: list
-    keys: np.ndarray  # (code of the first << 32) | code of the second, sorted, distinct
-    pair_rows: np.ndarray
-    pair_weights: np.ndarray
+    pairs: LevelCodes  # the pairs of levels met: (code of the first << 32) | code of the second
+    pair_rows: np.ndarray | None
+    pair_weights: np.ndarray | None  # None without weights (the rows then)
     raw: Moments
     shift: np.ndarray | None = None
     chunks: int = 0
+    keys: np.ndarray | None = None  # the pairs' keys in the order of their codes (at the end)
 
     @classmethod
     def empty(cls, columns) -> Tables:
-        nothing = np.zeros(0)
         return cls((LevelCodes(), LevelCodes()), [None, None], [None, None], [None, None],
-                   nothing.astype(np.int64), nothing, nothing, empty_moments(columns))
+                   LevelCodes(), None, None, empty_moments(columns))
+
+    def finish(self) -> None:
+        """The spare rows of the doubled tables cut off; the pairs' keys as one array."""
+        for k in range(2):
+            n = len(self.codes[k].labels())
+            if self.counts[k] is not None:
+                self.counts[k], self.totals[k] = self.counts[k][:n], self.totals[k][:n]
+                self.sums[k] = self.sums[k][:n]
+        self.keys = np.asarray(self.pairs.labels(), dtype=np.int64)
+        size = self.keys.size
+        self.pair_rows = np.zeros(0) if self.pair_rows is None else self.pair_rows[:size]
+        self.pair_weights = (self.pair_rows if self.pair_weights is None
+                             else self.pair_weights[:size])
 
 
 def _grown(array: np.ndarray | None, size: int, width: int | None = None) -> np.ndarray:
@@ -47,24 +60,6 @@ def _grown(array: np.ndarray | None, size: int, width: int | None = None) -> np.
     grown = np.zeros((max(size, 2 * array.shape[0]),) + tail)
     grown[:array.shape[0]] = array
     return grown
-
-
-def _add_pairs(t: Tables, key: np.ndarray, rows: np.ndarray, weights: np.ndarray) -> None:
-    """One chunk's pairs of levels (distinct, sorted ``key``) added to the sorted table:
-    memory grows with the distinct pairs, whatever the number of chunks."""
-    if t.keys.size == 0:
-        t.keys, t.pair_rows, t.pair_weights = key, rows, weights
-        return
-    at = np.searchsorted(t.keys, key)
-    found = at < t.keys.size
-    found[found] = t.keys[at[found]] == key[found]
-    t.pair_rows[at[found]] += rows[found]
-    t.pair_weights[at[found]] += weights[found]
-    new = ~found
-    if new.any():
-        t.keys = np.insert(t.keys, at[new], key[new])
-        t.pair_rows = np.insert(t.pair_rows, at[new], rows[new])
-        t.pair_weights = np.insert(t.pair_weights, at[new], weights[new])
 
 
 def _add_chunk(t: Tables, chunk: Chunk) -> None:
@@ -86,10 +81,14 @@ def _add_chunk(t: Tables, chunk: Chunk) -> None:
         n = len(t.codes[k].labels())
         for j in range(values.shape[1]):
             t.sums[k][:n, j] += np.bincount(codes[k], weights=w_values[:, j], minlength=n)
-    key, local = np.unique((codes[0] << 32) | codes[1], return_inverse=True)
-    rows = np.bincount(local, minlength=key.size).astype(np.float64)
-    _add_pairs(t, key, rows, rows.copy() if weights is None
-               else np.bincount(local, weights=weights, minlength=key.size))
+    # Pairs of levels: coded as levels of their own (a hash look-up of the chunk's distinct
+    # pairs among those met), so the table grows with the distinct pairs, not the chunks.
+    pair, n = t.pairs.encode((codes[0] << 32) | codes[1])
+    t.pair_rows = _grown(t.pair_rows, n)
+    t.pair_rows[:n] += np.bincount(pair, minlength=n)
+    if weights is not None:
+        t.pair_weights = _grown(t.pair_weights, n)
+        t.pair_weights[:n] += np.bincount(pair, weights=weights, minlength=n)
 
 
 def level_tables(source) -> Tables:
@@ -104,10 +103,7 @@ def level_tables(source) -> Tables:
                                       chunk.n_dropped, chunk.n_filtered, scratch)
         if chunk.values.shape[0]:
             _add_chunk(t, chunk)
-    for k in range(2):          # the spare rows of the doubled tables cut off
-        n = len(t.codes[k].labels())
-        if t.counts[k] is not None:
-            t.counts[k], t.totals[k], t.sums[k] = t.counts[k][:n], t.totals[k][:n], t.sums[k][:n]
+    t.finish()
     return t
 
 

@@ -185,6 +185,7 @@ def test_singletons_from_level_tables_equal_the_row_wise_iteration(seed):
     tables = absorb_tables.Tables.empty(("a", "b"))
     for chunk in chunks:
         absorb_tables._add_chunk(tables, chunk)
+    tables.finish()
     kept, _, dropped = absorb_tables.drop_singletons(tables)
     codes = [tables.codes[k].labels().get_indexer(frame[f"f{k + 1}"]) for k in range(2)]
     keep = fe.singleton_rows([np.asarray(c) for c in codes])
