@@ -179,8 +179,9 @@ def _in_memory(source, tolerance: float, max_iterations: int,
     release_freed()                 # the labels and the demeaning's scratch rows
     if len(codes) > 1 and achieved > tolerance:
         warnings.warn(f"alternating projections for the fixed effects {', '.join(spec.absorb)} "
-                      f"stopped after {steps} steps at a relative change {achieved:.2e}, above "
-                      f"the tolerance {tolerance:.1e}; results may be inaccurate",
+                      f"stopped after {steps} step{'s' if steps != 1 else ''} at a relative "
+                      f"change {achieved:.2e}, above the tolerance {tolerance:.1e}; results may "
+                      "be inaccurate",
                       AbsorbConvergenceWarning, stacklevel=4)
     absorbed = [j for j in range(values.shape[1])
                 if not fe.spread(values[:, j], weights) > fe.ABSORBED_SHARE * total[j]]

@@ -45,7 +45,8 @@ def absorbed_line(fit) -> str | None:
     listed = ", ".join(f"{name} ({levels} levels)"
                        for name, levels in zip(absorption.effects, absorption.levels))
     how = ("exact" if len(absorption.effects) == 1 else
-           f"{absorption.iterations} steps, relative tolerance "
+           f"{absorption.iterations} step{'s' if absorption.iterations != 1 else ''}, "
+           "relative tolerance "
            f"{format_number(absorption.tolerance, 2)}")
     return (f"absorbed fixed effects: {listed}; {how}; {absorption.n_singletons} singleton "
             "rows dropped; their coefficients (and the constant) are not shown")
