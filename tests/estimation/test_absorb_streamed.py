@@ -222,5 +222,6 @@ def test_a_streamed_two_way_fit_holds_no_copy_of_the_rows(tmp_path):
     finally:
         tracemalloc.stop()
     assert fit.absorption.streamed
-    # in memory the rows are gathered (one float64 copy of the used columns and more)
-    assert peak < 0.75 * rows_bytes, peak
+    # held in memory the rows are gathered (measured: 2.8x rows_bytes); streamed, chunks in
+    # flight and level tables only (measured: 0.64x)
+    assert peak < rows_bytes, peak
