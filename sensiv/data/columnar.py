@@ -29,7 +29,7 @@ import numpy as np
 from sensiv.core.errors import InputError
 from sensiv.core.limits import MAX_MAGNITUDE
 from sensiv.data.convert import check_scale, data_row, extremes
-from sensiv.data.spec import Spec, cluster_columns, roles, used_columns
+from sensiv.data.spec import Spec, cluster_columns, read_columns, roles, used_columns
 
 _UPPER = 0.25 * MAX_MAGNITUDE ** 2
 _LOWER = 4.0 / MAX_MAGNITUDE ** 2
@@ -62,6 +62,21 @@ def fast_columns(spec: Spec, kinds: dict[str, str]) -> list[str] | None:
         return None
     names = used_columns(spec)
     return names if all(kinds.get(name) == "plain" for name in names) else None
+
+
+def arrow_fast_columns(spec: Any, schema: Any) -> list[str] | None:
+    """:func:`fast_columns` of an Arrow ``schema`` (a Parquet file's or data set's): the
+    columns its batches hand to the fast path, or ``None`` for the general path."""
+    if not isinstance(spec, Spec):
+        return None
+    kinds = {name: arrow_kind(schema.field(name).type) for name in read_columns(spec)
+             if schema.get_field_index(name) >= 0}
+    return fast_columns(spec, kinds)
+
+
+def batch_arrays(batch: Any, names: Sequence[str]) -> list[np.ndarray]:
+    """The ``names`` columns of an Arrow record batch as numpy arrays (:func:`arrow_array`)."""
+    return [arrow_array(batch.column(name)) for name in names]
 
 
 def plainly_finite(column: np.ndarray) -> bool:

@@ -211,13 +211,9 @@ def _dataset_columns(files: list[str], base: str | None, schema: Any, spec: Any,
     """The fast path's chunks of a Parquet data set whose used columns are Arrow numbers
     (:mod:`sensiv.data.columnar`): each record batch's columns as numpy arrays, file by file,
     or ``None`` for the general path."""
-    from sensiv.data.columnar import arrow_array, arrow_kind, fast_columns
+    from sensiv.data.columnar import arrow_fast_columns, batch_arrays
 
-    if not isinstance(spec, Spec):
-        return None
-    kinds = {name: arrow_kind(schema.field(name).type) for name in read_columns(spec)
-             if name in schema.names}
-    names = fast_columns(spec, kinds)
+    names = arrow_fast_columns(spec, schema)
     if names is None:
         return None
 
@@ -227,7 +223,7 @@ def _dataset_columns(files: list[str], base: str | None, schema: Any, spec: Any,
             try:
                 for batch in fragment.to_batches(schema=dataset.schema, columns=names,
                                                  batch_size=rows):
-                    yield [arrow_array(batch.column(name)) for name in names]
+                    yield batch_arrays(batch, names)
             except _read_errors() as exc:
                 raise _corrupt(Path(fragment.path).name, "Parquet", exc) from exc
     return batches

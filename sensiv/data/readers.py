@@ -27,7 +27,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sensiv.core.errors import InputError
-from sensiv.data.columnar import arrow_array, arrow_kind, fast_columns, numpy_kind
+from sensiv.data.columnar import arrow_fast_columns, batch_arrays, fast_columns, numpy_kind
 from sensiv.data.datasets import Origin, from_dask, from_dataset, is_dask_frame, is_dataset
 from sensiv.data.source import Source, build_source
 from sensiv.data.spec import Spec, cluster_columns, read_columns
@@ -358,19 +358,14 @@ def _parquet_columns(path: Path, spec: Any, rows: int
     record batch's columns as numpy arrays (no pandas), or ``None`` for the general path."""
     import pyarrow.parquet as pq
 
-    if not isinstance(spec, Spec):
-        return None
-    schema = pq.read_schema(path)
-    kinds = {name: arrow_kind(schema.field(name).type) for name in read_columns(spec)
-             if schema.get_field_index(name) >= 0}
-    names = fast_columns(spec, kinds)
+    names = arrow_fast_columns(spec, pq.read_schema(path)) if isinstance(spec, Spec) else None
     if names is None:
         return None
 
     def batches() -> Iterator[list[np.ndarray]]:
         with pq.ParquetFile(path, pre_buffer=False, buffer_size=PARQUET_BUFFER_BYTES) as handle:
             for batch in handle.iter_batches(batch_size=rows, columns=names, use_threads=True):
-                yield [arrow_array(batch.column(name)) for name in names]
+                yield batch_arrays(batch, names)
     return lambda: _guarded(path, "parquet", batches)
 
 

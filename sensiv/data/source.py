@@ -38,7 +38,7 @@ import numpy as np
 from sensiv.core.errors import IdentifierWarning, InputError
 from sensiv.data.convert import (as_float, data_row, dtype_kind, identifier_notes, level_index,
                                  level_strings, missing_mask, scan_levels, Tally, text_controls)
-from sensiv.data.columnar import check_weights, checked_column, cleaned
+from sensiv.data.columnar import check_weights, checked_column, cleaned, label_columns
 from sensiv.data.dense_size import check_dense_size
 from sensiv.data.spec import check_columns, cluster_columns, roles, row_filter, Spec
 from sensiv.data.where import check_kinds, filter_columns, keep_mask, Node
@@ -205,8 +205,9 @@ def _numeric_columns(frame: pd.DataFrame, source: Source, first_row: int) -> tup
     missing_counts: dict[str, int] = {}
     drop = np.zeros(len(frame), dtype=bool)
     numeric: dict[str, np.ndarray] = {}
+    labels = set(label_columns(spec))
     for role, name in roles(spec):
-        if name in source._levels or name in cluster_columns(spec) or name in spec.absorb:
+        if name in source._levels or name in labels:
             mask = missing_mask(frame[name])
         else:
             column = numeric[name] = as_float(frame[name], role, name, where, first_row)
