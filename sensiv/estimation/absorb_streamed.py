@@ -92,6 +92,7 @@ class _Solved:
     big_totals: np.ndarray  # (compact codes)
     cross: object  # D_b'WD_s (compact codes), dense or CSR
     pairs: object  # D_b'D_s (compact codes)
+    pair_codes: tuple[np.ndarray, np.ndarray]  # each pair's levels (compact codes, Spec order)
 
 
 def _table(rows: np.ndarray, cols: np.ndarray, data: np.ndarray, shape: tuple[int, int]):
@@ -145,7 +146,7 @@ def solve(t: Tables, kept: list[np.ndarray], alive: np.ndarray,
     small_counts = np.where(kept[small], t.counts[small], 0.0)
     return _Solved(big, levels, (kept[0], kept[1]), (effects[0], effects[1]),
                    np.asfortranarray(full_means), small_counts, t.counts[big][kept[big]],
-                   big_totals, cross, pairs)
+                   big_totals, cross, pairs, codes)
 
 
 def _codes(stream: TwoWayStream, chunk: Chunk, description: str, effects) -> list[np.ndarray]:
@@ -330,18 +331,16 @@ def streamed(source, tolerance: float) -> Streamed | None:
     moments = Moments(tuple(new_layout.columns), moments.n, moments.n_dropped,
                       moments.weight_sum, moments.mean[keep_cols],
                       moments.comoment[np.ix_(keep_cols, keep_cols)], moments.n_filtered)
-    absorption = _absorption(spec, layout, t, solved, check, alive, n_singletons, achieved,
-                             tolerance, dropped)
+    absorption = _absorption(spec, layout, solved, check, n_singletons, achieved, tolerance,
+                             dropped)
     return Streamed(stream, absorption, new_layout, notes, moments)
 
 
-def _absorption(spec, layout, t: Tables, solved: _Solved, check: _Check, alive: np.ndarray,
-                n_singletons: int, achieved: float, tolerance: float, dropped) -> fe.Absorption:
+def _absorption(spec, layout, solved: _Solved, check: _Check, n_singletons: int,
+                achieved: float, tolerance: float, dropped) -> fe.Absorption:
     """Levels, counted levels (the second less the connected components of the two), nesting
     in the cluster variables, as :func:`sensiv.estimation.absorbed_source` reports them."""
-    renumber = [np.cumsum(k) - 1 for k in solved.kept]
-    key = t.keys[alive]
-    a, b = renumber[0][key >> 32], renumber[1][key & 0xFFFFFFFF]
+    a, b = solved.pair_codes
     levels = solved.levels
     counted = (levels[0] - 1 + int(not layout.constant),
                levels[1] - fe.components(a, levels[0], b, levels[1]))
